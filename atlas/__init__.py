@@ -1,0 +1,45 @@
+"""approx-atlas: how wrong is the normal shortcut to the binomial, and where is it safe.
+
+The public API. The engine is imported at once; the cube, query and chart layers (which pull
+in xarray and, later, netCDF4 and matplotlib) are imported on first use, so ``import atlas``
+stays light and never imports matplotlib, dask or netCDF4.
+"""
+
+__version__ = "0.1.0"
+
+from atlas.approximations import METHODS  # noqa: E402 - __version__ first: submodules read it
+from atlas.engine import METRICS, worst_error, worst_interval  # noqa: E402
+
+_LAZY = {
+    "build_atlas": "atlas.build",
+    "save_atlas": "atlas.cube",
+    "open_atlas": "atlas.query",
+    "Atlas": "atlas.query",
+}
+
+__all__ = [
+    "METHODS",
+    "METRICS",
+    "Atlas",
+    "__version__",
+    "build_atlas",
+    "open_atlas",
+    "save_atlas",
+    "worst_error",
+    "worst_interval",
+]
+
+
+def __getattr__(name):
+    """Import the heavier layers on first use of one of their names."""
+    if name in _LAZY:
+        import importlib
+
+        value = getattr(importlib.import_module(_LAZY[name]), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'atlas' has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_LAZY))

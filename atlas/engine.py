@@ -1,0 +1,460 @@
+"""Exact worst-case errors of the approximations, for one (n, p) and for many.
+
+For X ~ Bin(n, p) with CDF F and an approximation G (see :mod:`atlas.approximations`), let
+D(k) = F(k) - G(k) on k = -1..n. The two metrics are
+
+- ``interval`` (W(n, p)): max over 0 <= a <= b <= n of |P(a <= X <= b) - (G(b) - G(a-1))|.
+  Since P(a <= X <= b) - (G(b) - G(a-1)) = D(b) - D(a-1), this equals max D - min D, attained
+  on the interval from one extreme to the other: a - 1 = min(k_max, k_min), b = max(k_max, k_min).
+- ``cdf``: max over k = 0..n of |D(k)|.
+
+How the extremes are found, and why it is exact
+-----------------------------------------------
+1. *Window.* D is evaluated on a window [lo, hi] around the mean, plus the end points k = -1 and
+   k = n. The window starts at mu +- (9 sigma + 10) and is doubled until the tails it leaves out
+   cannot matter: for k < lo, |D(k)| <= F(lo - 1) + |G(lo - 1)|, and for k > hi,
+   |D(k)| <= (1 - F(hi)) + |1 - G(hi)|, because F is monotone and every G is monotone in its far
+   tails (each is a normal or Poisson CDF there, or a Hermite polynomial times phi beyond its last
+   turning point, which lies below |z| = 3). Both bounds are computed for every cell and must be
+   below ``TAIL_TOL`` = 1e-17; so the omitted k change neither metric by more than 1e-17.
+2. *Narrow windows* (at most ``FULL_LIMIT`` integers) are evaluated at every integer, many p at
+   once: F from the binomial pmf summed upward from F(lo - 1).
+3. *Wide windows* (large sigma) use a nested search: D is sampled every sigma/6 or closer, the
+   three best local maxima (and minima) are bracketed and each bracket is resampled on 16 points
+   until it holds at most 16 integers, which are all evaluated. For sigma > ``FULL_LIMIT`` / 20 the
+   function D is smooth on the scale of sigma (every method's D(k) is a smooth function of z with
+   an expansion in powers of 1/sigma), so each extreme lies in the bracket of a sampled local
+   extreme; the test suite checks the search against the every-integer evaluation.
+
+F comes from ``scipy.stats.binom`` (Boost's incomplete beta), which agrees with a 35-digit mpmath
+sum to about 1e-14 at n = 10^8; ``scipy.special.bdtr`` is not used, as it loses up to 0.1 there.
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from atlas.approximations import METHODS, approximate_cdf, check_method
+
+try:
+    # The ufuncs behind scipy.stats.binom (Boost's incomplete beta), called directly to skip the
+    # generic argument checks of scipy.stats, which cost more than the evaluation on small arrays.
+    # tests/test_engine.py checks that they agree with scipy.stats.binom.
+    from scipy.special._ufuncs import _binom_cdf, _binom_pmf, _binom_sf
+except ImportError:  # pragma: no cover - a SciPy that has moved them
+    from scipy import stats
+
+    _binom_cdf, _binom_pmf, _binom_sf = stats.binom.cdf, stats.binom.pmf, stats.binom.sf
+
+METRICS = ("interval", "cdf")
+
+TAIL_TOL = 1e-17
+FULL_LIMIT = 2048
+_START_SIGMAS = 9.0
+_START_MARGIN = 10.0
+_COARSE_PER_SIGMA = 6.0
+_CANDIDATES = 3
+_REFINE_POINTS = 32
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """Worst-case errors of several methods at one n over a vector of p.
+
+    Attributes
+    ----------
+    methods : tuple of str
+        The methods, in the order of the first axis.
+    interval, cdf : numpy.ndarray
+        float64 arrays of shape (len(methods), len(p)).
+    lo, hi : numpy.ndarray
+        int64 arrays of the same shape: the worst interval [a, b] for the interval metric.
+    """
+
+    methods: tuple
+    interval: np.ndarray
+    cdf: np.ndarray
+    lo: np.ndarray
+    hi: np.ndarray
+
+
+N_MAX = 10**15
+
+
+def check_n(n):
+    """Return ``n`` as an int64 array, or raise ValueError naming the bad value."""
+    arr = np.asarray(n)
+    numeric = np.issubdtype(arr.dtype, np.integer) or np.issubdtype(arr.dtype, np.floating)
+    if arr.dtype == bool or not numeric:
+        raise ValueError(f"`n` must be an integer >= 1; got {_show(n)}.")
+    flat = arr.ravel().astype(np.float64)
+    bad = ~np.isfinite(flat) | (flat < 1) | (flat != np.round(flat)) | (flat > N_MAX)
+    if bad.any():
+        value = arr.ravel()[bad][0]
+        if np.isfinite(flat[bad][0]) and flat[bad][0] > N_MAX:
+            raise ValueError(f"`n` must be at most {N_MAX:.0e}; got {_show(value)}.")
+        raise ValueError(f"`n` must be an integer >= 1; got {_show(value)}.")
+    return arr.astype(np.int64)
+
+
+def check_p(p):
+    """Return ``p`` as a float64 array, or raise ValueError naming the bad value."""
+    try:
+        arr = np.asarray(p, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise ValueError(f"`p` must be in the open interval (0, 1); got {_show(p)}.") from None
+    flat = arr.ravel()
+    bad = ~((flat > 0.0) & (flat < 1.0))
+    if bad.any():
+        raise ValueError(f"`p` must be in the open interval (0, 1); got {_show(flat[bad][0])}.")
+    return arr
+
+
+def check_metric(metric):
+    """Return ``metric`` if valid, else raise ValueError listing the valid ones."""
+    if not isinstance(metric, str) or metric not in METRICS:
+        valid = ", ".join(repr(m) for m in METRICS)
+        raise ValueError(f"`metric` must be one of {valid}; got {metric!r}.")
+    return metric
+
+
+def _show(value):
+    """Format a bad value for an error message: 10.5, nan, 'x'."""
+    if isinstance(value, np.generic):
+        value = value.item()
+    return repr(value)
+
+
+def _windows(n, p, methods):
+    """Per-p windows [lo, hi] (0 <= lo <= hi <= n) outside which |D| < TAIL_TOL for all methods."""
+    mu = n * p
+    sigma = np.sqrt(n * p * (1.0 - p))
+    width = _START_SIGMAS * sigma + _START_MARGIN
+    lo = np.zeros(p.shape, dtype=np.int64)
+    hi = np.full(p.shape, n, dtype=np.int64)
+    todo = np.arange(p.size)
+    while todo.size:
+        sub_p = p[todo]
+        cand_lo = np.maximum(0, np.floor(mu[todo] - width[todo])).astype(np.int64)
+        cand_hi = np.minimum(n, np.ceil(mu[todo] + width[todo])).astype(np.int64)
+        lo[todo], hi[todo] = cand_lo, cand_hi
+        bound = np.zeros(todo.size)
+        has_low = cand_lo > 0
+        has_high = cand_hi < n - 1
+        k_low = np.maximum(cand_lo - 1, 0)
+        bound = np.where(has_low, _binom_cdf(k_low, n, sub_p), 0.0)
+        bound = np.maximum(bound, np.where(has_high, _binom_sf(cand_hi, n, sub_p), 0.0))
+        ends = np.stack([k_low, cand_hi])
+        for method in methods:
+            g_low, g_high = approximate_cdf(ends, n, sub_p, method)
+            tail = np.where(has_low, np.abs(g_low), 0.0) + np.where(has_high, np.abs(1 - g_high), 0)
+            bound = np.maximum(bound, tail)
+        # F's and G's tail bounds add, so half the tolerance for each keeps the sum below it.
+        done = (bound <= 0.5 * TAIL_TOL) | ((cand_lo == 0) & (cand_hi >= n - 1))
+        width[todo[~done]] *= 2.0
+        todo = todo[~done]
+    return lo, hi
+
+
+def _deviation(k, n, p, method, sign):
+    """sign * D(k) = sign * (F(k) - G(k)) for integer arrays k, with p broadcast against k."""
+    return sign * (_binom_cdf(k, n, p) - approximate_cdf(k, n, p, method))
+
+
+def _cdf_rows(n, p, lo, hi):
+    """F(k) at every integer of [lo_r, hi_r] for each row r, padded to a rectangle.
+
+    F is summed upward from F(lo - 1): one incomplete-beta call per row and one pmf per integer,
+    since the pmf costs a few per cent of a CDF call near the mean at large n.
+
+    Returns
+    -------
+    k, valid, cdf : numpy.ndarray
+        Integer points (padding repeats hi), the mask of real points, and F at the points.
+    """
+    width = int((hi - lo).max()) + 1
+    k = lo[:, None] + np.arange(width)[None, :]
+    valid = k <= hi[:, None]
+    k = np.minimum(k, hi[:, None])
+    pmf = np.where(valid, _binom_pmf(k, n, p[:, None]), 0.0)
+    start = np.where(lo > 0, _binom_cdf(lo - 1, n, p), 0.0)
+    return k, valid, start[:, None] + np.cumsum(pmf, axis=1)
+
+
+def _every_integer(n, p, lo, hi, methods):
+    """Extremes of D over [lo, hi] evaluated at every integer, for rows of p at one n.
+
+    Returns arrays (len(methods), rows) of max D, its k, min D, its k.
+    """
+    k, valid, cdf = _cdf_rows(n, p, lo, hi)
+    shape = (len(methods), p.size)
+    out = [np.empty(shape), np.empty(shape, np.int64), np.empty(shape), np.empty(shape, np.int64)]
+    rows = np.arange(p.size)
+    for i, method in enumerate(methods):
+        d = cdf - approximate_cdf(k, n, p[:, None], method)
+        imax = np.argmax(np.where(valid, d, -np.inf), axis=1)
+        imin = np.argmin(np.where(valid, d, np.inf), axis=1)
+        out[0][i], out[1][i] = d[rows, imax], k[rows, imax]
+        out[2][i], out[3][i] = d[rows, imin], k[rows, imin]
+    return out
+
+
+def _nested_search(n, p, lo, hi, methods):
+    """Extremes of D over [lo, hi] by the nested search described in the module notes."""
+    sigma = np.sqrt(n * p * (1.0 - p))
+    span = (hi - lo).astype(np.float64)
+    # The number of samples depends on each row's own window only, so that a p's result does
+    # not depend on the other p computed with it (builds are identical however they are split).
+    counts = np.clip(np.ceil(span / sigma * _COARSE_PER_SIGMA), 64, 8192).astype(np.int64) + 1
+    if np.unique(counts).size > 1:
+        shape = (len(methods), p.size)
+        out = [np.empty(shape), np.empty(shape, np.int64), np.empty(shape), np.empty(shape, np.int64)]
+        for c in np.unique(counts):
+            rows = counts == c
+            got = _nested_search(n, p[rows], lo[rows], hi[rows], methods)
+            for whole, part in zip(out, got):
+                whole[:, rows] = part
+        return out
+    frac = np.linspace(0.0, 1.0, int(counts[0]))
+    coarse = np.round(lo[:, None] + frac[None, :] * span[:, None]).astype(np.int64)
+    pcol = p[:, None]
+    coarse_cdf = _binom_cdf(coarse, n, pcol)
+    shape = (len(methods), p.size)
+    out = [np.empty(shape), np.empty(shape, np.int64), np.empty(shape), np.empty(shape, np.int64)]
+    for i, method in enumerate(methods):
+        d = coarse_cdf - approximate_cdf(coarse, n, pcol, method)
+        # Maxima of D and maxima of -D (the minima of D) are refined together.
+        both = np.concatenate([d, -d])
+        value, where = _refine(n, np.tile(p, 2), np.tile(coarse, (2, 1)), both, method)
+        out[0][i], out[1][i] = value[: p.size], where[: p.size]
+        out[2][i], out[3][i] = -value[p.size :], where[p.size :]
+    return out
+
+
+def _refine(n, p, coarse, sd, method):
+    """Refine the best local maxima of sampled s D to the exact integer maximum of s D.
+
+    Rows of ``sd`` hold s D on the ``coarse`` points, with s = +1 for the first half of the rows
+    and s = -1 for the second half. Each of the best local maxima is bracketed by its two
+    neighbouring samples; a bracket wider than ``FULL_LIMIT`` is resampled on
+    ``_REFINE_POINTS`` points and narrowed around its best sample, and every integer of the final
+    brackets is evaluated.
+    """
+    rows, count = sd.shape
+    sign = np.where(np.arange(rows) < rows // 2, 1.0, -1.0)
+    # Local maxima of the samples (plateaus count); the best _CANDIDATES of each row.
+    padded = np.pad(sd, ((0, 0), (1, 1)), constant_values=-np.inf)
+    inner = padded[:, 1:-1]
+    peaks = np.where((inner >= padded[:, :-2]) & (inner >= padded[:, 2:]), inner, -np.inf)
+    take = min(_CANDIDATES, count)
+    best = np.argsort(-peaks, axis=1)[:, :take]
+    # A sample lies within half a spacing of its peak, so the peak exceeds the sample by at most
+    # about |second difference| / 8; keep only candidates whose peak could beat the best sample
+    # (with that bound taken 8 times larger, for safety). The best candidate is always kept.
+    value = np.take_along_axis(inner, best, axis=1)
+    curve = np.abs(
+        np.take_along_axis(padded, best, axis=1)
+        - 2 * value
+        + np.take_along_axis(padded, best + 2, axis=1)
+    )
+    curve[~np.isfinite(curve)] = np.inf
+    keep = np.isfinite(value) & (value + curve >= value[:, :1])
+    keep[:, 0] = True
+    row_idx, col = np.nonzero(keep)
+    idx = best[row_idx, col]
+    lower = coarse[row_idx, np.maximum(idx - 1, 0)]
+    upper = coarse[row_idx, np.minimum(idx + 1, count - 1)]
+    prow = p[row_idx]
+    srow = sign[row_idx][:, None]
+    while (upper - lower + 1 > FULL_LIMIT).any():
+        wide = np.flatnonzero(upper - lower + 1 > FULL_LIMIT)
+        steps = np.linspace(0.0, 1.0, _REFINE_POINTS)
+        span = (upper[wide] - lower[wide]).astype(np.float64)
+        pts = np.round(lower[wide][:, None] + steps[None, :] * span[:, None]).astype(np.int64)
+        vals = _deviation(pts, n, prow[wide][:, None], method, srow[wide])
+        j = np.argmax(vals, axis=1)
+        h = np.arange(wide.size)
+        lower[wide] = pts[h, np.maximum(j - 1, 0)]
+        upper[wide] = pts[h, np.minimum(j + 1, _REFINE_POINTS - 1)]
+    k, valid, cdf = _cdf_rows(n, prow, lower, upper)
+    vals = np.where(valid, srow * (cdf - approximate_cdf(k, n, prow[:, None], method)), -np.inf)
+    j = np.argmax(vals, axis=1)
+    h = np.arange(j.size)
+    value = np.full((rows, take), -np.inf)
+    where = np.zeros((rows, take), dtype=np.int64)
+    value[row_idx, col] = vals[h, j]
+    where[row_idx, col] = k[h, j]
+    pick = np.argmax(value, axis=1)[:, None]
+    return (
+        np.take_along_axis(value, pick, axis=1)[:, 0],
+        np.take_along_axis(where, pick, axis=1)[:, 0],
+    )
+
+
+def evaluate(n, p, *, methods=METHODS, full=False):
+    """Worst-case interval and CDF errors of several methods at one n, for a vector of p.
+
+    Parameters
+    ----------
+    n : int
+        Number of trials, n >= 1.
+    p : array_like of float
+        One-dimensional success probabilities, each 0 < p < 1.
+    methods : sequence of str, optional
+        Methods from :data:`atlas.METHODS`; all of them by default.
+    full : bool, optional
+        Evaluate every integer of the window even when it is wide (slow; for checking the search).
+
+    Returns
+    -------
+    Evaluation
+        Arrays of shape (len(methods), len(p)).
+
+    Raises
+    ------
+    ValueError
+        For n that is not an integer >= 1, p outside (0, 1), or an unknown method.
+
+    Notes
+    -----
+    interval = max D - min D over k = -1..n; cdf = max |D| over k = 0..n; D = F - G. See the
+    module notes for the window and the search, and their guarantee.
+
+    Examples
+    --------
+    >>> ev = evaluate(10, [0.5], methods=("normal_cc",))
+    >>> round(float(ev.interval[0, 0]), 6), int(ev.lo[0, 0]), int(ev.hi[0, 0])
+    (0.005372, 2, 8)
+    """
+    n_arr = check_n(n)
+    if n_arr.ndim != 0:
+        raise ValueError(f"`n` must be a single integer here; got shape {n_arr.shape}.")
+    n = int(n_arr)
+    p = np.atleast_1d(check_p(p)).astype(np.float64)
+    if p.ndim != 1:
+        raise ValueError(f"`p` must be one-dimensional here; got shape {p.shape}.")
+    methods = tuple(check_method(m) for m in methods)
+    lo, hi = _windows(n, p, methods)
+    shape = (len(methods), p.size)
+    dmax, kmax = np.empty(shape), np.empty(shape, np.int64)
+    dmin, kmin = np.empty(shape), np.empty(shape, np.int64)
+    narrow = full | (hi - lo + 1 <= FULL_LIMIT)
+    for rows, finder in ((narrow, _every_integer), (~narrow, _nested_search)):
+        if rows.any():
+            got = finder(n, p[rows], lo[rows], hi[rows], methods)
+            dmax[:, rows], kmax[:, rows], dmin[:, rows], kmin[:, rows] = got
+    interval = np.empty(shape)
+    cdf = np.empty(shape)
+    a = np.empty(shape, np.int64)
+    b = np.empty(shape, np.int64)
+    for i, method in enumerate(methods):
+        # The end points: D(-1) = -G(-1) counts for the interval metric only; D(n) = 1 - G(n).
+        g_first, g_last = approximate_cdf(np.array([[-1], [n]]), n, p, method)
+        d_first, d_last = -g_first, 1.0 - g_last
+        hi_val = np.maximum(dmax[i], d_last)
+        hi_k = np.where(d_last > dmax[i], n, kmax[i])
+        lo_val = np.minimum(dmin[i], d_last)
+        lo_k = np.where(d_last < dmin[i], n, kmin[i])
+        cdf[i] = np.maximum(hi_val, -lo_val)
+        hi_k = np.where(d_first > hi_val, -1, hi_k)
+        hi_val = np.maximum(hi_val, d_first)
+        lo_k = np.where(d_first < lo_val, -1, lo_k)
+        lo_val = np.minimum(lo_val, d_first)
+        interval[i] = hi_val - lo_val
+        a[i] = np.minimum(hi_k, lo_k) + 1
+        b[i] = np.maximum(np.maximum(hi_k, lo_k), a[i])
+    return Evaluation(methods, interval, cdf, a, b)
+
+
+def _broadcast_evaluate(n, p, method):
+    """Evaluate one method over broadcast n and p, grouping the cells by n."""
+    n_arr = check_n(n)
+    p_arr = check_p(p)
+    method = check_method(method)
+    if n_arr.ndim == 0 and p_arr.ndim == 0:
+        ev = evaluate(int(n_arr), p_arr.reshape(1), methods=(method,))
+        return tuple(np.asarray(x[0, 0]) for x in (ev.interval, ev.cdf, ev.lo, ev.hi))
+    n_b, p_b = np.broadcast_arrays(n_arr, p_arr)
+    shape = n_b.shape
+    n_flat, p_flat = n_b.ravel(), p_b.ravel()
+    interval, cdf = np.empty(n_flat.size), np.empty(n_flat.size)
+    a, b = np.empty(n_flat.size, np.int64), np.empty(n_flat.size, np.int64)
+    for value in np.unique(n_flat):
+        cells = np.flatnonzero(n_flat == value)
+        ev = evaluate(int(value), p_flat[cells], methods=(method,))
+        interval[cells], cdf[cells] = ev.interval[0], ev.cdf[0]
+        a[cells], b[cells] = ev.lo[0], ev.hi[0]
+    return tuple(x.reshape(shape) for x in (interval, cdf, a, b))
+
+
+def worst_error(n, p, *, method="normal_cc", metric="interval"):
+    """Exact worst-case error of an approximation to Bin(n, p).
+
+    Parameters
+    ----------
+    n : int or array_like of int
+        Number of trials, n >= 1.
+    p : float or array_like of float
+        Success probability, 0 < p < 1. Broadcast against ``n``.
+    method : str, optional
+        One of :data:`atlas.METHODS`; default ``"normal_cc"``.
+    metric : {"interval", "cdf"}, optional
+        ``"interval"`` (default): the largest error of any interval probability P(a <= X <= b);
+        ``"cdf"``: the largest error of P(X <= k).
+
+    Returns
+    -------
+    float or numpy.ndarray
+        A float for scalar inputs, else an array of the broadcast shape.
+
+    Raises
+    ------
+    ValueError
+        If n is not an integer >= 1, p is outside (0, 1) or NaN, or method or metric is unknown.
+
+    Notes
+    -----
+    With D(k) = F(k) - G(k), k = -1..n: interval = max D - min D; cdf = max_{k >= 0} |D(k)|.
+
+    Examples
+    --------
+    >>> round(worst_error(10, 0.5), 6)
+    0.005372
+    >>> worst_error([10, 20], [[0.5], [0.1]]).shape
+    (2, 2)
+    """
+    check_metric(metric)
+    interval, cdf, _, _ = _broadcast_evaluate(n, p, method)
+    out = interval if metric == "interval" else cdf
+    return float(out) if out.ndim == 0 else out
+
+
+def worst_interval(n, p, *, method="normal_cc"):
+    """The interval [a, b] on which the interval error of :func:`worst_error` is attained.
+
+    Parameters
+    ----------
+    n, p : array_like
+        As for :func:`worst_error`.
+    method : str, optional
+        One of :data:`atlas.METHODS`.
+
+    Returns
+    -------
+    tuple
+        ``(a, b)`` with 0 <= a <= b <= n: ints for scalar inputs, else int64 arrays.
+
+    Raises
+    ------
+    ValueError
+        As for :func:`worst_error`.
+
+    Examples
+    --------
+    >>> worst_interval(10, 0.5)
+    (2, 8)
+    """
+    _, _, a, b = _broadcast_evaluate(n, p, method)
+    if a.ndim == 0:
+        return int(a), int(b)
+    return a, b
