@@ -19,7 +19,7 @@ How the extremes are found, and why it is exact
    below ``TAIL_TOL`` = 1e-17; so the omitted k change neither metric by more than 1e-17.
 2. *Narrow windows* (at most ``FULL_LIMIT`` integers) are evaluated at every integer, many p at
    once: F from the binomial pmf summed upward from F(lo - 1).
-3. *Wide windows* (large sigma) use a nested search: D is sampled every sigma/6 or closer, the
+3. *Wide windows* (large sigma) use a nested search: D is sampled every sigma/5 or closer, the
    three best local maxima (and minima) are bracketed and each bracket is resampled on 16 points
    until it holds at most 16 integers, which are all evaluated. For sigma > ``FULL_LIMIT`` / 20 the
    function D is smooth on the scale of sigma (every method's D(k) is a smooth function of z with
@@ -52,7 +52,7 @@ TAIL_TOL = 1e-17
 FULL_LIMIT = 2048
 _START_SIGMAS = 9.0
 _START_MARGIN = 10.0
-_COARSE_PER_SIGMA = 6.0
+_COARSE_PER_SIGMA = 5.0
 _CANDIDATES = 3
 _REFINE_POINTS = 32
 
@@ -83,6 +83,8 @@ N_MAX = 10**15
 
 def check_n(n):
     """Return ``n`` as an int64 array, or raise ValueError naming the bad value."""
+    if type(n) is int and 1 <= n <= N_MAX:  # the common scalar case, without numpy's checks
+        return np.int64(n)
     arr = np.asarray(n)
     numeric = np.issubdtype(arr.dtype, np.integer) or np.issubdtype(arr.dtype, np.floating)
     if arr.dtype == bool or not numeric:
@@ -99,6 +101,8 @@ def check_n(n):
 
 def check_p(p):
     """Return ``p`` as a float64 array, or raise ValueError naming the bad value."""
+    if type(p) is float and 0.0 < p < 1.0:
+        return np.float64(p)
     try:
         arr = np.asarray(p, dtype=np.float64)
     except (TypeError, ValueError):
@@ -243,22 +247,21 @@ def _refine(n, p, coarse, sd, method):
     rows, count = sd.shape
     sign = np.where(np.arange(rows) < rows // 2, 1.0, -1.0)
     # Local maxima of the samples (plateaus count); the best _CANDIDATES of each row.
-    padded = np.pad(sd, ((0, 0), (1, 1)), constant_values=-np.inf)
-    inner = padded[:, 1:-1]
-    peaks = np.where((inner >= padded[:, :-2]) & (inner >= padded[:, 2:]), inner, -np.inf)
+    peak = np.ones(sd.shape, dtype=bool)
+    peak[:, 1:] &= sd[:, 1:] >= sd[:, :-1]
+    peak[:, :-1] &= sd[:, :-1] >= sd[:, 1:]
     take = min(_CANDIDATES, count)
-    best = np.argsort(-peaks, axis=1)[:, :take]
+    best = np.argsort(np.where(peak, -sd, np.inf), axis=1)[:, :take]
     # A sample lies within half a spacing of its peak, so the peak exceeds the sample by at most
     # about |second difference| / 8; keep only candidates whose peak could beat the best sample
-    # (with that bound taken 8 times larger, for safety). The best candidate is always kept.
-    value = np.take_along_axis(inner, best, axis=1)
-    curve = np.abs(
-        np.take_along_axis(padded, best, axis=1)
-        - 2 * value
-        + np.take_along_axis(padded, best + 2, axis=1)
-    )
-    curve[~np.isfinite(curve)] = np.inf
-    keep = np.isfinite(value) & (value + curve >= value[:, :1])
+    # (with that bound taken 8 times larger, for safety). The best candidate is always kept, and
+    # so is a candidate at either end of the samples, whose second difference is unknown.
+    r = np.arange(rows)[:, None]
+    before, after = np.maximum(best - 1, 0), np.minimum(best + 1, count - 1)
+    value = sd[r, best]
+    curve = np.abs(sd[r, before] - 2 * value + sd[r, after])
+    curve[(best == 0) | (best == count - 1) | ~np.isfinite(curve)] = np.inf
+    keep = peak[r, best] & (value + curve >= value[:, :1])
     keep[:, 0] = True
     row_idx, col = np.nonzero(keep)
     idx = best[row_idx, col]
@@ -266,9 +269,9 @@ def _refine(n, p, coarse, sd, method):
     upper = coarse[row_idx, np.minimum(idx + 1, count - 1)]
     prow = p[row_idx]
     srow = sign[row_idx][:, None]
-    while (upper - lower + 1 > FULL_LIMIT).any():
-        wide = np.flatnonzero(upper - lower + 1 > FULL_LIMIT)
-        steps = np.linspace(0.0, 1.0, _REFINE_POINTS)
+    steps = np.linspace(0.0, 1.0, _REFINE_POINTS)
+    while (upper - lower >= FULL_LIMIT).any():
+        wide = np.flatnonzero(upper - lower >= FULL_LIMIT)
         span = (upper[wide] - lower[wide]).astype(np.float64)
         pts = np.round(lower[wide][:, None] + steps[None, :] * span[:, None]).astype(np.int64)
         vals = _deviation(pts, n, prow[wide][:, None], method, srow[wide])
@@ -284,11 +287,8 @@ def _refine(n, p, coarse, sd, method):
     where = np.zeros((rows, take), dtype=np.int64)
     value[row_idx, col] = vals[h, j]
     where[row_idx, col] = k[h, j]
-    pick = np.argmax(value, axis=1)[:, None]
-    return (
-        np.take_along_axis(value, pick, axis=1)[:, 0],
-        np.take_along_axis(where, pick, axis=1)[:, 0],
-    )
+    pick = np.argmax(value, axis=1)
+    return value[r[:, 0], pick], where[r[:, 0], pick]
 
 
 def evaluate(n, p, *, methods=METHODS, full=False):
@@ -329,11 +329,14 @@ def evaluate(n, p, *, methods=METHODS, full=False):
     n_arr = check_n(n)
     if n_arr.ndim != 0:
         raise ValueError(f"`n` must be a single integer here; got shape {n_arr.shape}.")
-    n = int(n_arr)
     p = np.atleast_1d(check_p(p)).astype(np.float64)
     if p.ndim != 1:
         raise ValueError(f"`p` must be one-dimensional here; got shape {p.shape}.")
-    methods = tuple(check_method(m) for m in methods)
+    return _evaluate(int(n_arr), p, tuple(check_method(m) for m in methods), full)
+
+
+def _evaluate(n, p, methods, full=False):
+    """:func:`evaluate` on checked arguments: int n, 1-D float64 p, a tuple of methods."""
     lo, hi = _windows(n, p, methods)
     shape = (len(methods), p.size)
     dmax, kmax = np.empty(shape), np.empty(shape, np.int64)
@@ -372,7 +375,7 @@ def _broadcast_evaluate(n, p, method):
     p_arr = check_p(p)
     method = check_method(method)
     if n_arr.ndim == 0 and p_arr.ndim == 0:
-        ev = evaluate(int(n_arr), p_arr.reshape(1), methods=(method,))
+        ev = _evaluate(int(n_arr), p_arr.reshape(1).astype(np.float64), (method,))
         return tuple(np.asarray(x[0, 0]) for x in (ev.interval, ev.cdf, ev.lo, ev.hi))
     n_b, p_b = np.broadcast_arrays(n_arr, p_arr)
     shape = n_b.shape
@@ -381,7 +384,7 @@ def _broadcast_evaluate(n, p, method):
     a, b = np.empty(n_flat.size, np.int64), np.empty(n_flat.size, np.int64)
     for value in np.unique(n_flat):
         cells = np.flatnonzero(n_flat == value)
-        ev = evaluate(int(value), p_flat[cells], methods=(method,))
+        ev = _evaluate(int(value), p_flat[cells].astype(np.float64), (method,))
         interval[cells], cdf[cells] = ev.interval[0], ev.cdf[0]
         a[cells], b[cells] = ev.lo[0], ev.hi[0]
     return tuple(x.reshape(shape) for x in (interval, cdf, a, b))

@@ -1,0 +1,91 @@
+"""Benchmark of the exact error engine: ratios measured in one run.
+
+Prints, each as a ratio with its target:
+
+1. speed-up at n = 10^6, p = 0.3 (normal_cc, interval metric) over the naive full evaluation a
+   user would write: scipy.stats.binom.cdf over k = -1..n minus the normal CDF, max minus min
+   (target: at least 500x);
+2. growth: the cost of a cell at n = 10^8 over a cell at n = 10^4, p = 0.5 (target: at most 30x);
+3. the cost of a cell against the floor of evaluating the normal CDF once per integer in
+   mu +- 8 sigma (scipy.special.ndtr on that array), at n = 10^6, p = 0.3 and at n = 10^8, p = 0.5;
+4. for information: the per-cell cost of all seven methods at once, and of a batch of p.
+
+Timings are the median of repeated runs, measured in this one process, so the ratios do not
+depend on the machine's speed (they do depend on its load: run it on a quiet machine).
+
+Usage: python build_scripts/bench_engine.py [--repeat R]
+"""
+
+import argparse
+import statistics
+import time
+
+import numpy as np
+from scipy import special, stats
+
+import atlas
+from atlas.engine import evaluate
+
+
+def timed(func, repeat):
+    """Median wall time of ``func()`` over ``repeat`` runs, after one warm-up run."""
+    func()
+    times = []
+    for _ in range(repeat):
+        start = time.perf_counter()
+        func()
+        times.append(time.perf_counter() - start)
+    return statistics.median(times)
+
+
+def naive(n, p):
+    """The full evaluation a user would write first."""
+    k = np.arange(-1, n + 1)
+    mu, sigma = n * p, np.sqrt(n * p * (1 - p))
+    d = stats.binom.cdf(k, n, p) - stats.norm.cdf((k + 0.5 - mu) / sigma)
+    return d.max() - d.min()
+
+
+def floor(n, p):
+    """The normal CDF evaluated once per integer in mu +- 8 sigma."""
+    mu, sigma = n * p, np.sqrt(n * p * (1 - p))
+    k = np.arange(np.floor(mu - 8 * sigma), np.ceil(mu + 8 * sigma) + 1)
+    return special.ndtr((k + 0.5 - mu) / sigma)
+
+
+def main(argv=None):
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--repeat", type=int, default=50, help="timed runs per figure")
+    args = parser.parse_args(argv)
+    r = args.repeat
+
+    n, p = 10**6, 0.3
+    cell = timed(lambda: atlas.worst_error(n, p), r)
+    full = timed(lambda: naive(n, p), max(3, r // 10))
+    check = abs(naive(n, p) - atlas.worst_error(n, p))
+    print(f"[1] n=1e6, p=0.3 normal_cc: engine {cell * 1e3:.3f} ms, naive {full * 1e3:.1f} ms")
+    print(f"    speed-up {full / cell:.0f}x (target >= 500x); |engine - naive| = {check:.1e}")
+
+    small = timed(lambda: atlas.worst_error(10**4, 0.5), r)
+    large = timed(lambda: atlas.worst_error(10**8, 0.5), r)
+    print(f"[2] p=0.5: n=1e4 {small * 1e3:.3f} ms, n=1e8 {large * 1e3:.3f} ms")
+    print(f"    growth {large / small:.1f}x (target <= 30x)")
+
+    for nn, pp, t in ((10**6, 0.3, cell), (10**8, 0.5, large)):
+        f = timed(lambda nn=nn, pp=pp: floor(nn, pp), r)
+        print(
+            f"[3] n={nn:.0e}, p={pp}: floor (ndtr on mu +- 8 sigma) {f * 1e3:.3f} ms; "
+            f"engine / floor = {t / f:.2f}"
+        )
+
+    every = timed(lambda: evaluate(n, [p]), r)
+    ps = np.linspace(0.05, 0.95, 200)
+    batch = timed(lambda: evaluate(n, ps), max(3, r // 10))
+    print(
+        f"[4] n=1e6: all 7 methods, one p: {every * 1e3:.3f} ms per cell; "
+        f"200 p at once: {batch / ps.size * 1e3:.3f} ms per cell (7 methods)"
+    )
+
+
+if __name__ == "__main__":
+    main()
