@@ -1,0 +1,90 @@
+"""The engine's window and nested search against evaluation at every integer.
+
+The engine evaluates D = F - G on a window around the mean, and on wide windows it searches
+instead of evaluating every integer (see the notes of atlas/engine.py). These tests check both
+shortcuts against the plain evaluation; the expected values are computed here, not literals.
+"""
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose, assert_array_equal
+from scipy import stats
+
+from atlas import METHODS, engine
+from atlas.approximations import approximate_cdf
+
+P_VALUES = np.array([1e-4, 0.003, 0.02, 0.1, 0.25, 0.5, 0.61, 0.9, 0.99, 0.9999])
+
+
+def full_range(n, p, method):
+    """Interval and CDF errors from D at every k = -1..n (scipy.stats.binom for F)."""
+    k = np.arange(-1, n + 1)
+    d = stats.binom.cdf(k, n, p) - approximate_cdf(k, n, p, method)
+    return d.max() - d.min(), np.abs(d[1:]).max()
+
+
+@pytest.mark.parametrize("n", [1, 2, 7, 40, 333, 2500])
+def test_window_loses_nothing(n):
+    # The window leaves out only k where |D| < TAIL_TOL = 1e-17, so it must agree with the
+    # evaluation over all k = -1..n to rounding (1e-14 covers summing ~3000 pmf terms).
+    ev = engine.evaluate(n, P_VALUES)
+    for i, method in enumerate(METHODS):
+        for j, p in enumerate(P_VALUES):
+            interval, cdf = full_range(n, p, method)
+            assert_allclose(ev.interval[i, j], interval, rtol=1e-11, atol=1e-14)
+            assert_allclose(ev.cdf[i, j], cdf, rtol=1e-11, atol=1e-14)
+
+
+@pytest.mark.parametrize("n", [30_000, 250_000, 2_000_000])
+def test_nested_search_finds_the_extremes(n):
+    # Wide windows are searched; full=True evaluates every integer of the same window.
+    p = np.array([0.002, 0.05, 0.3, 0.5, 0.77, 0.95])
+    fast = engine.evaluate(n, p)
+    slow = engine.evaluate(n, p, full=True)
+    # F comes from one incomplete beta plus a pmf sum in both, summed from different points:
+    # they differ by rounding only (measured below 1e-13).
+    assert_allclose(fast.interval, slow.interval, rtol=1e-10, atol=2e-13)
+    assert_allclose(fast.cdf, slow.cdf, rtol=1e-10, atol=2e-13)
+
+
+def test_nested_search_is_used_at_large_sigma():
+    # The search path must really run in the test above: its window exceeds FULL_LIMIT.
+    lo, hi = engine._windows(250_000, np.array([0.3]), METHODS)
+    assert (hi - lo + 1)[0] > engine.FULL_LIMIT
+
+
+def test_result_of_a_p_does_not_depend_on_its_neighbours():
+    # Builds split the p axis in chunks; each cell must come out bit for bit the same.
+    p = np.array([0.001, 0.02, 0.3, 0.5, 0.9])
+    for n in (3, 900, 40_000, 5_000_000):
+        together = engine.evaluate(n, p)
+        for j in range(p.size):
+            alone = engine.evaluate(n, p[j : j + 1])
+            assert_array_equal(together.interval[:, j], alone.interval[:, 0])
+            assert_array_equal(together.cdf[:, j], alone.cdf[:, 0])
+            assert_array_equal(together.lo[:, j], alone.lo[:, 0])
+            assert_array_equal(together.hi[:, j], alone.hi[:, 0])
+
+
+def test_window_tail_bound_holds():
+    # Outside the window F and G are both within TAIL_TOL of 0 (below) or 1 (above).
+    for n in (50, 5000, 10**6):
+        lo, hi = engine._windows(n, P_VALUES, METHODS)
+        for j, p in enumerate(P_VALUES):
+            if lo[j] > 0:
+                assert stats.binom.cdf(lo[j] - 1, n, p) <= engine.TAIL_TOL
+                for method in METHODS:
+                    assert abs(approximate_cdf(lo[j] - 1, n, p, method)) <= engine.TAIL_TOL
+            if hi[j] < n - 1:
+                assert stats.binom.sf(hi[j], n, p) <= engine.TAIL_TOL
+                for method in METHODS:
+                    assert abs(1 - approximate_cdf(hi[j], n, p, method)) <= engine.TAIL_TOL
+
+
+def test_private_binomial_ufuncs_match_scipy_stats():
+    # The engine calls the ufuncs behind scipy.stats.binom directly, for speed.
+    k = np.array([0, 3, 17, 299_000, 300_000, 301_234])
+    n, p = 10**6, 0.3
+    assert_array_equal(engine._binom_cdf(k, n, p), stats.binom.cdf(k, n, p))
+    assert_array_equal(engine._binom_sf(k, n, p), stats.binom.sf(k, n, p))
+    assert_array_equal(engine._binom_pmf(k, n, p), stats.binom.pmf(k, n, p))
