@@ -58,7 +58,12 @@ def test_parse_n_endpoints_exact():
 
 @pytest.mark.parametrize(
     ("values", "expected"),
-    [([3, 1, 3], [1, 3]), (np.array([5, 2], dtype=np.int32), [2, 5]), ([4.0, 2.0], [2, 4]), (9, [9])],
+    [
+        ([3, 1, 3], [1, 3]),
+        (np.array([5, 2], dtype=np.int32), [2, 5]),
+        ([4.0, 2.0], [2, 4]),
+        (9, [9]),
+    ],
 )
 def test_parse_n_sequence(values, expected):
     n = parse_n(values)
@@ -74,6 +79,7 @@ def _message(rule, item, spec):
 
 
 FORMS_N = "items must be 'k', 'a:b' or 'log:a:b:m'"
+TOO_MANY = "must have at most 10000000 values"
 
 
 @pytest.mark.parametrize(
@@ -102,8 +108,8 @@ FORMS_N = "items must be 'k', 'a:b' or 'log:a:b:m'"
         ("1,,2", FORMS_N, ""),
         ("1,2,", FORMS_N, ""),
         ("", FORMS_N, ""),
-        ("1:100000000", "must have at most 10000000 values", "1:100000000"),
-        ("log:1:100000000:10000001", "must have at most 10000000 values", "log:1:100000000:10000001"),
+        ("1:100000000", TOO_MANY, "1:100000000"),
+        ("log:1:100000000:10000001", TOO_MANY, "log:1:100000000:10000001"),
     ],
 )
 def test_parse_n_refuses(spec, rule, item):
@@ -176,8 +182,14 @@ def test_parse_p_prefers_explicit_values():
 
 
 def test_parse_p_keeps_distinct_explicit_values():
-    # Explicit values are kept however close; only generated ones give way.
+    # Typed values (single values and the ends of ranges) are kept however close; only
+    # generated ones give way.
     assert parse_p("0.3,0.30000000000000004").size == 2
+    # Near 1 the logit points crowd within 1e-12 of the end; the typed end 1 - 2**-52 stays.
+    b = 1 - 2**-52
+    p = parse_p(f"logit:0.5:{b!r}:34")
+    assert p[-1] == b
+    assert np.all(np.diff(p) > 1e-12 * p[1:])
 
 
 def test_parse_p_endpoints_exact():
@@ -214,7 +226,7 @@ OPEN = "values must be in the open interval (0, 1)"
         ("lin:0.1:0.5:1", "point counts m must be integers >= 2", "lin:0.1:0.5:1"),
         ("log:0.1:0.5:-3", "point counts m must be integers >= 2", "log:0.1:0.5:-3"),
         ("logit:0.1:0.5:3.5", "point counts m must be integers >= 2", "logit:0.1:0.5:3.5"),
-        ("lin:0.1:0.5:10000001", "must have at most 10000000 values", "lin:0.1:0.5:10000001"),
+        ("lin:0.1:0.5:10000001", TOO_MANY, "lin:0.1:0.5:10000001"),
         ("lin:0.1:0.5", FORMS_P, "lin:0.1:0.5"),
         ("0.1:0.5", FORMS_P, "0.1:0.5"),
         ("foo:0.1:0.5:3", FORMS_P, "foo:0.1:0.5:3"),
@@ -322,10 +334,9 @@ def test_parse_p_properties(items):
     assert p.dtype == np.float64
     assert np.all(np.diff(p) > 0)  # sorted and unique
     assert np.all((p > 0) & (p < 1))
-    # Explicit values and the ends of every range are on the axis, or a value within 1e-12
-    # (relative) of them is.
-    for value in (v for _, values in items for v in values):
-        assert np.min(np.abs(p - value)) <= 1e-12 * value
+    # Every value typed in the spec, single or the end of a range, is on the axis exactly.
+    typed = {v for _, values in items for v in values}
+    assert typed <= set(p.tolist())
 
 
 @given(st.lists(st.integers(1, 10**6), min_size=1, max_size=20))
