@@ -38,6 +38,34 @@ def _moments(k, n, p):
     return k, n, p, q, mu, np.sqrt(mu * q)
 
 
+def _split(v):
+    """Veltkamp's split v = hi + lo, with hi holding the leading 25 bits of v.
+
+    Then n * hi is exact for integer n < 2^28, so n v = n hi + n lo carries only the tiny
+    rounding of n lo (Dekker 1971, Numer. Math. 18, 224-242).
+    """
+    c = v * 268435457.0  # 2^28 + 1
+    hi = c - (c - v)
+    return hi, v - hi
+
+
+def _offset(x, n, p, q):
+    """x - n p, computed without the rounding of the product n p.
+
+    A rounded n p is off by up to half an ulp of a number as large as n p, which moves z by that
+    much over sigma (1e-12 of G at n = 10^8). Writing n p = n hi + n lo (see :func:`_split`)
+    makes the difference exact to rounding of the result; for p > 1/2 the difference is taken as
+    (x - n) + n q, since q = 1 - p is exact there (Sterbenz) and n q is the small number.
+    """
+    p_hi, p_lo = _split(p)
+    q_hi, q_lo = _split(q)
+    return np.where(
+        p <= 0.5,
+        (x - n * p_hi) - n * p_lo,
+        ((x - n) + n * q_hi) + n * q_lo,
+    )
+
+
 def _phi(z):
     """Standard normal density."""
     return np.exp(-0.5 * z * z) / _SQRT_2PI
@@ -68,7 +96,7 @@ def normal_cc(k, n, p):
     0.119296
     """
     k, n, p, q, mu, sigma = _moments(k, n, p)
-    return special.ndtr((k + 0.5 - mu) / sigma)
+    return special.ndtr(_offset(k + 0.5, n, p, q) / sigma)
 
 
 # One-term Edgeworth (skewness) correction, the main term of Uspensky (1937), Introduction to
@@ -92,7 +120,7 @@ def edgeworth_cc(k, n, p):
     0.114427
     """
     k, n, p, q, mu, sigma = _moments(k, n, p)
-    z = (k + 0.5 - mu) / sigma
+    z = _offset(k + 0.5, n, p, q) / sigma
     return special.ndtr(z) - (q - p) / (6.0 * sigma) * (z * z - 1.0) * _phi(z)
 
 
@@ -121,7 +149,7 @@ def edgeworth2_cc(k, n, p):
     0.112052
     """
     k, n, p, q, mu, sigma = _moments(k, n, p)
-    z = (k + 0.5 - mu) / sigma
+    z = _offset(k + 0.5, n, p, q) / sigma
     z2 = z * z
     g1 = (q - p) / sigma
     g2 = (1.0 - 6.0 * p * q) / (sigma * sigma)
@@ -156,7 +184,7 @@ def normal(k, n, p):
     0.07865
     """
     k, n, p, q, mu, sigma = _moments(k, n, p)
-    return special.ndtr((k - mu) / sigma)
+    return special.ndtr(_offset(k, n, p, q) / sigma)
 
 
 # Poisson limit: G(k) = Poisson(n p) CDF at k. For p > 1/2 the count of failures n - X is the
@@ -189,7 +217,7 @@ def poisson(k, n, p):
     high = ~low
     # P(Y >= n - k) = sf(n - k - 1); the count of failures has mean n q.
     m = n[high] - k[high] - 1.0
-    out[high] = np.where(m < 0, 1.0, special.pdtrc(np.maximum(m, 0.0), (n - mu)[high]))
+    out[high] = np.where(m < 0, 1.0, special.pdtrc(np.maximum(m, 0.0), (n * q)[high]))
     return out
 
 
@@ -272,12 +300,9 @@ def peizer_pratt(k, n, p):
     kk = np.clip(k, 0.0, n - 1.0)
     s = kk + 0.5
     t = n - kk - 0.5
-    d = (
-        kk
-        + 2.0 / 3.0
-        - (n + 1.0 / 3.0) * p
-        + 0.02 * (q / (kk + 1.0) - p / (n - kk) + (q - 0.5) / (n + 1.0))
-    )
+    # k + 2/3 - (n + 1/3) p = (k - n p) + 2/3 - p/3, with k - n p taken exactly (see _offset).
+    centre = _offset(kk, n, p, q) + (2.0 / 3.0 - p / 3.0)
+    d = centre + 0.02 * (q / (kk + 1.0) - p / (n - kk) + (q - 0.5) / (n + 1.0))
     spread = (1.0 + q * _pp_g(s / mu) + p * _pp_g(t / (n * q))) / ((n + 1.0 / 6.0) * p * q)
     value = special.ndtr(d * np.sqrt(spread))
     return _at_ends(k, n, value)

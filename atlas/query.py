@@ -1,6 +1,140 @@
-"""The Atlas object: answers from the cube, computed exactly where the cube has no cell."""
+"""The Atlas object: answers from the cube, computed exactly where the cube has no cell.
 
-from atlas import cube
+A cell (n, p) is read from the cube when n is a value of the atlas's n axis, p equals a value of
+its p axis exactly (float equality, no tolerance) and the method is one the atlas stores. Every
+other cell is computed exactly by :mod:`atlas.engine`. Nothing is ever interpolated, and every
+answer that matters to a decision says which of the two it came from.
+
+The error variables are read from the file one method at a time, on first use, and kept in
+memory; they are returned as float64 whether the file stores float64 or float32 (the compact
+embedded atlas: attribute ``error_precision``, 7 significant digits).
+
+Reading a file. :func:`open_atlas` reads the file with netCDF4 directly and builds the
+``xarray.Dataset`` only when :attr:`Atlas.dataset` is first used, so that a command-line query
+imports neither xarray nor pandas nor dask (xarray imports dask while decoding the method names
+whenever dask is installed). It applies the checks of :func:`atlas.cube.load_dataset`, with the
+same messages. Each file is opened once per process, and that one netCDF4 handle (and the Dataset
+built on it) is shared by every Atlas of the file and closed when the last of them is closed or
+garbage collected: with netCDF4 1.7.5 (and so with xarray on top of it), reading the
+variable-length method names through a second handle on an open file, closing that handle and
+opening the file again is a segmentation fault.
+"""
+
+import os
+import threading
+import weakref
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from atlas.approximations import check_method
+from atlas.engine import check_metric, check_n, check_p, evaluate
+
+__all__ = ["Atlas", "Verdict", "check_tol", "open_atlas"]
+
+_VARIABLES = {"interval": "interval_error", "cdf": "cdf_error"}
+# The schema of atlas.cube, repeated here because atlas.cube imports xarray (tests/test_query.py
+# checks that the copies agree).
+_SCHEMA_VERSION = "1"
+_DATA_VARIABLES = ("interval_error", "cdf_error", "interval_lo", "interval_hi")
+_ENGINE_BLOCK = 128  # n values computed per step when min_n searches down from the top n
+
+
+def _show(value):
+    """Format a bad value for an error message: 0, nan, 'x'."""
+    if isinstance(value, np.generic):
+        value = value.item()
+    return repr(value)
+
+
+def check_tol(tol):
+    """Return ``tol`` as a float64 array, or raise ValueError unless every value is in (0, inf).
+
+    Examples
+    --------
+    >>> float(check_tol(0.01))
+    0.01
+    >>> check_tol(0)
+    Traceback (most recent call last):
+    ...
+    ValueError: `tol` must be a positive finite number; got 0.
+    """
+    arr = np.asarray(tol)
+    if arr.dtype == bool or arr.dtype.kind not in "iuf":
+        raise ValueError(f"`tol` must be a positive finite number; got {_show(tol)}.")
+    values = arr.astype(np.float64)
+    bad = ~(np.isfinite(values) & (values > 0))
+    if bad.any():
+        raise ValueError(f"`tol` must be a positive finite number; got {_show(arr[bad][0])}.")
+    return values
+
+
+def _scalar(arr, name, what):
+    """Refuse an array where one value is wanted (is_safe, min_n, best_method)."""
+    if arr.ndim != 0:
+        raise ValueError(f"`{name}` must be a single {what} here; got shape {arr.shape}.")
+    return arr.item()
+
+
+def _fmt(x):
+    """A number for people: three significant digits."""
+    return f"{x:.3g}"
+
+
+@dataclass(frozen=True)
+class Verdict:
+    """The answer to "is the approximation within ``tol`` at (n, p)?".
+
+    Attributes
+    ----------
+    safe : bool
+        ``error <= tol``.
+    error : float
+        The exact worst-case error of ``method`` under ``metric`` at (n, p).
+    tol : float
+        The tolerance asked for.
+    margin : float
+        ``tol - error``: positive when safe, negative by how much the error exceeds ``tol``.
+    method, metric : str
+        What was measured.
+    n : int
+    p : float
+    worst_interval : tuple of int
+        ``(a, b)``: an interval P(a <= X <= b) whose approximation errs by the interval error
+        (the interval metric's worst case, reported under either metric).
+    source : {"atlas", "computed"}
+        ``"atlas"``: a stored cell of the cube; ``"computed"``: computed exactly by the engine
+        because (n, p) is not a grid cell or the method is not stored.
+    """
+
+    safe: bool
+    error: float
+    tol: float
+    margin: float
+    method: str
+    metric: str
+    n: int
+    p: float
+    worst_interval: tuple
+    source: str
+
+    def explain(self):
+        """One line for people.
+
+        Examples
+        --------
+        >>> Verdict(False, 0.0244, 0.01, -0.0144, "normal_cc", "interval", 50, 0.1, (2, 6),
+        ...         "atlas").explain()
+        'n=50, p=0.1: normal_cc interval error 0.0244 <= tol 0.01? no (margin -0.0144); worst interval [2, 6]; from the atlas'
+        """  # noqa: E501 - a doctest's output line cannot be wrapped
+        a, b = self.worst_interval
+        where = "from the atlas" if self.source == "atlas" else "computed exactly (no atlas cell)"
+        return (
+            f"n={self.n}, p={self.p:.6g}: {self.method} {self.metric} error {_fmt(self.error)} "
+            f"<= tol {_fmt(self.tol)}? {'yes' if self.safe else 'no'} "
+            f"(margin {_fmt(self.margin)}); worst interval [{a}, {b}]; {where}"
+        )
 
 
 class Atlas:
@@ -9,7 +143,7 @@ class Atlas:
     Parameters
     ----------
     dataset : xarray.Dataset
-        An atlas Dataset (see :mod:`atlas.cube`).
+        An atlas Dataset (see :mod:`atlas.cube`), opened lazily from a file or in memory.
     path : pathlib.Path, optional
         The file it came from.
 
@@ -17,23 +151,674 @@ class Atlas:
     ----------
     dataset : xarray.Dataset
     path : pathlib.Path or None
+
+    Notes
+    -----
+    For X ~ Bin(n, p), F its CDF and G an approximation, D(k) = F(k) - G(k) on k = -1..n. The
+    ``interval`` metric is max D - min D, the largest error of any P(a <= X <= b); the ``cdf``
+    metric is max over k = 0..n of |D(k)|. Cells off the grid are computed exactly by
+    :func:`atlas.engine.evaluate`; none is interpolated.
+
+    Examples
+    --------
+    >>> from atlas import build_atlas
+    >>> at = Atlas(build_atlas(n="1:40", p="0.1,0.5", methods="normal_cc,edgeworth_cc",
+    ...                        progress=False))
+    >>> round(at.error(10, 0.5), 6)
+    0.005372
+    >>> at.is_safe(10, 0.5, 0.01).safe
+    True
     """
 
     def __init__(self, dataset, path=None):
-        self.dataset = dataset
+        self._dataset = dataset
         self.path = path
+        self._cache = {}
+        self._file = None  # the shared _AtlasFile when opened by open_atlas
+
+    @property
+    def dataset(self):
+        """The atlas as an ``xarray.Dataset`` (built on the open file on first use)."""
+        if self._dataset is None:
+            self._dataset = self._file.dataset()
+        return self._dataset
 
     @property
     def methods(self):
         """The methods held in the atlas, as a tuple of str."""
-        return tuple(str(m) for m in self.dataset["method"].values)
+        methods = self._cache.get("methods")
+        if methods is None:
+            values = self._file.nc.variables["method"][:] if self._file else None
+            if values is None:
+                values = self.dataset["method"].values
+            methods = self._cache["methods"] = tuple(str(m) for m in np.ravel(values))
+        return methods
+
+    @property
+    def attrs(self):
+        """The global attributes of the atlas (title, history, comment, checksum, ...)."""
+        if self._file is not None and self._dataset is None:
+            nc = self._file.nc
+            return {name: nc.getncattr(name) for name in nc.ncattrs()}
+        return dict(self.dataset.attrs)
+
+    @property
+    def n(self):
+        """The n axis, a read-only int64 array."""
+        return self._axes()[0]
+
+    @property
+    def p(self):
+        """The p axis, a read-only float64 array."""
+        return self._axes()[1]
+
+    @property
+    def dense_n(self):
+        """The largest grid n up to which the grid holds every integer from its first n.
+
+        Within that run, :meth:`min_n` is exact for every integer n (1..2000 in the default
+        atlas).
+        """
+        n_axis = self.n
+        steps = np.flatnonzero(np.diff(n_axis) != 1)
+        return int(n_axis[steps[0]] if steps.size else n_axis[-1])
 
     def __repr__(self):
-        ds = self.dataset
         where = f" from {str(self.path)!r}" if self.path is not None else ""
-        return (
-            f"<Atlas{where}: {ds.sizes['n']} n x {ds.sizes['p']} p x {ds.sizes['method']} methods>"
+        sizes = f"{self.n.size} n x {self.p.size} p x {len(self.methods)} methods"
+        return f"<Atlas{where}: {sizes}>"
+
+    def close(self):
+        """Close the file behind the atlas (values already read stay available).
+
+        An atlas from :func:`open_atlas` shares its open file with the other atlases of the same
+        file; the file is closed when the last of them is closed or garbage collected.
+        """
+        if self._file is None:
+            self.dataset.close()
+        else:
+            _release(self)
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+    # --- reading the cube -------------------------------------------------------------------
+
+    def _axes(self):
+        axes = self._cache.get("axes")
+        if axes is None:
+            if self._file is not None:
+                n_values = self._file.nc.variables["n"][:]
+                p_values = self._file.nc.variables["p"][:]
+            else:
+                n_values, p_values = self.dataset["n"].values, self.dataset["p"].values
+            n_axis = np.array(n_values, dtype=np.int64)
+            p_axis = np.array(p_values, dtype=np.float64)
+            n_axis.flags.writeable = False
+            p_axis.flags.writeable = False
+            axes = self._cache["axes"] = (n_axis, p_axis)
+        return axes
+
+    def _stored(self, name, method):
+        """The (n, p) slice of one variable for one stored method, read once and kept."""
+        key = (name, method)
+        values = self._cache.get(key)
+        if values is None:
+            index = self.methods.index(method)
+            if self._file is not None and not self._file.nc.isopen():
+                raise ValueError(f"the atlas file is closed: {str(self.path)!r}.")
+            try:
+                if self._file is not None:
+                    values = np.asarray(self._file.nc.variables[name][index])
+                else:
+                    values = np.asarray(self.dataset[name].isel(method=index).values)
+            except Exception as err:  # netCDF4/HDF5 raise RuntimeError or OSError on a bad chunk
+                where = f"{str(self.path)!r}" if self.path is not None else "the Dataset"
+                raise ValueError(
+                    f"the atlas is corrupt: {name} of {method} cannot be read from {where} "
+                    f"({type(err).__name__}: {err})."
+                ) from None
+            self._cache[key] = values
+        return values
+
+    def _locate(self, n, p):
+        """Grid indices of flat n and p, and the mask of cells that are exactly on the grid."""
+        n_axis, p_axis = self._axes()
+        i = np.minimum(np.searchsorted(n_axis, n), n_axis.size - 1)
+        j = np.minimum(np.searchsorted(p_axis, p), p_axis.size - 1)
+        return (n_axis[i] == n) & (p_axis[j] == p), i, j
+
+    def _cells(self, n, p, method, metric, *, bounds=False):
+        """Errors (and worst intervals) at broadcast n and p, and the mask of cube cells."""
+        n_arr, p_arr = check_n(n), check_p(p)
+        check_metric(metric)
+        method = check_method(method)
+        n_b, p_b = np.broadcast_arrays(n_arr, p_arr)
+        shape = n_b.shape
+        n_flat, p_flat = n_b.ravel(), p_b.ravel()
+        stored = method in self.methods
+        if stored:
+            hit, i, j = self._locate(n_flat, p_flat)
+        else:
+            hit = np.zeros(n_flat.size, dtype=bool)
+        variable = _VARIABLES[metric]
+        if stored and hit.all():  # the fast path of vectorised lookups
+            values = self._stored(variable, method)[i, j].astype(np.float64)
+            lo = hi = None
+            if bounds:
+                lo = self._stored("interval_lo", method)[i, j].astype(np.int64)
+                hi = self._stored("interval_hi", method)[i, j].astype(np.int64)
+        else:
+            values = np.empty(n_flat.size)
+            lo, hi = np.empty(n_flat.size, np.int64), np.empty(n_flat.size, np.int64)
+            if hit.any():
+                ih, jh = i[hit], j[hit]
+                values[hit] = self._stored(variable, method)[ih, jh]
+                if bounds:
+                    lo[hit] = self._stored("interval_lo", method)[ih, jh]
+                    hi[hit] = self._stored("interval_hi", method)[ih, jh]
+            miss = ~hit
+            got = _compute(n_flat[miss], p_flat[miss], method)
+            values[miss] = got[metric]
+            lo[miss], hi[miss] = got["lo"], got["hi"]
+        out = (values.reshape(shape), hit.reshape(shape))
+        if bounds:
+            out += (lo.reshape(shape), hi.reshape(shape))
+        return out
+
+    def _columns(self, start, stop, p_values, method, metric):
+        """Errors at grid n[start:stop] for the given p: from the cube when p and method are
+        stored, else computed by the engine. Shape (stop - start, len(p_values))."""
+        n_axis, p_axis = self._axes()
+        if method in self.methods:
+            j = np.searchsorted(p_axis, p_values).clip(0, p_axis.size - 1)
+            if np.all(p_axis[j] == p_values):
+                return self._stored(_VARIABLES[metric], method)[start:stop][:, j].astype(np.float64)
+        out = np.empty((stop - start, p_values.size))
+        for row, value in enumerate(n_axis[start:stop]):
+            ev = evaluate(int(value), p_values, methods=(method,))
+            out[row] = ev.interval[0] if metric == "interval" else ev.cdf[0]
+        return out
+
+    def _smallest_safe_suffix(self, p_values, tol, method, metric):
+        """Smallest grid n with the worst error over ``p_values`` <= tol there and above."""
+        n_axis, p_axis = self._axes()
+        stored = method in self.methods and np.isin(p_values, p_axis).all()
+        block = n_axis.size if stored else _ENGINE_BLOCK
+        stop = n_axis.size
+        while stop > 0:  # downward from the top n, so the engine stops at the first failure
+            start = max(0, stop - block)
+            worst = self._columns(start, stop, p_values, method, metric).max(axis=1)
+            failed = np.flatnonzero(~(worst <= tol))  # NaN would count as a failure
+            if failed.size:
+                first = start + int(failed[-1]) + 1
+                return int(n_axis[first]) if first < n_axis.size else None
+            stop = start
+        return int(n_axis[0])
+
+    # --- the questions ------------------------------------------------------------------------
+
+    def on_grid(self, n=None, p=None, *, method="normal_cc"):
+        """Whether answers at (n, p) come from the cube rather than the engine.
+
+        Parameters
+        ----------
+        n : int or array_like of int, optional
+            Number of trials; omitted, only ``p`` is checked (as for :meth:`min_n`).
+        p : float or array_like of float, optional
+            Success probability; omitted, only ``n`` is checked.
+        method : str, optional
+            A method of :data:`atlas.METHODS`; one the atlas does not store is never on the grid.
+
+        Returns
+        -------
+        bool or numpy.ndarray of bool
+            True where n is on the n axis and p equals a value of the p axis exactly.
+
+        Raises
+        ------
+        ValueError
+            For a bad n, p or method.
+        """
+        method = check_method(method)
+        n_axis, p_axis = self._axes()
+        n_arr = None if n is None else check_n(n)
+        p_arr = None if p is None else check_p(p)
+        hit = np.asarray(method in self.methods)
+        if n_arr is not None:
+            hit = hit & np.isin(n_arr, n_axis)
+        if p_arr is not None:
+            hit = hit & np.isin(p_arr, p_axis)
+        return bool(hit) if hit.ndim == 0 else hit
+
+    def select_p(self, p_lo, p_hi):
+        """The grid p in the closed interval [p_lo, p_hi].
+
+        Parameters
+        ----------
+        p_lo, p_hi : float
+            ``0 < p_lo <= p_hi < 1``.
+
+        Returns
+        -------
+        numpy.ndarray
+            The p of the atlas grid with p_lo <= p <= p_hi, at least one.
+
+        Raises
+        ------
+        ValueError
+            For p outside (0, 1), p_lo > p_hi, or an interval that holds no grid p.
+        """
+        lo = _scalar(check_p(p_lo), "p_lo", "number")
+        hi = _scalar(check_p(p_hi), "p_hi", "number")
+        if lo > hi:
+            raise ValueError(f"`p_lo` must be <= `p_hi`; got p_lo={lo!r} > p_hi={hi!r}.")
+        p_axis = self.p
+        chosen = p_axis[(p_axis >= lo) & (p_axis <= hi)]
+        if chosen.size == 0:
+            first, last = float(p_axis[0]), float(p_axis[-1])
+            raise ValueError(
+                f"[`p_lo`, `p_hi`] must hold a p of the atlas grid; got [{lo!r}, {hi!r}], and "
+                f"the grid's {p_axis.size} p run from {first!r} to {last!r}."
+            )
+        return chosen
+
+    def error(self, n, p, *, method="normal_cc", metric="interval"):
+        """Exact worst-case error at broadcast n and p: from the cube on the grid, else computed.
+
+        Parameters
+        ----------
+        n : int or array_like of int
+            Number of trials, n >= 1.
+        p : float or array_like of float
+            Success probability, 0 < p < 1; broadcast against ``n``.
+        method : str, optional
+            One of :data:`atlas.METHODS`, default ``"normal_cc"``. A method the atlas does not
+            store is computed by the engine.
+        metric : {"interval", "cdf"}, optional
+            ``"interval"`` (default): the largest error of any P(a <= X <= b); ``"cdf"``: of
+            any P(X <= k).
+
+        Returns
+        -------
+        float or numpy.ndarray
+            A float for scalar n and p, else a float64 array of the broadcast shape.
+
+        Raises
+        ------
+        ValueError
+            If n is not an integer >= 1, p is outside (0, 1), or method or metric is unknown.
+
+        Notes
+        -----
+        A cell is read from the cube when n is on the n axis and p equals a p of the axis
+        exactly; every other cell is computed exactly by :func:`atlas.engine.evaluate`, grouped
+        by n. With D(k) = F(k) - G(k), k = -1..n: interval = max D - min D,
+        cdf = max over k = 0..n of |D(k)|.
+
+        Examples
+        --------
+        >>> from atlas import build_atlas
+        >>> at = Atlas(build_atlas(n="10,20", p="0.5", methods="normal_cc", progress=False))
+        >>> round(at.error(10, 0.5), 6), round(at.error(11, 0.5), 6)  # a cube cell, a computed one
+        (0.005372, 0.005011)
+        """
+        values, _ = self._cells(n, p, method, metric)
+        return float(values) if values.ndim == 0 else values
+
+    def safe(self, n, p, tol, *, method="normal_cc", metric="interval"):
+        """Whether the error is within ``tol``, vectorised over n, p and tol.
+
+        Parameters
+        ----------
+        n, p, method, metric
+            As for :meth:`error`.
+        tol : float or array_like of float
+            Tolerance, 0 < tol < inf, broadcast against n and p.
+
+        Returns
+        -------
+        bool or numpy.ndarray of bool
+            ``error(n, p) <= tol``.
+
+        Raises
+        ------
+        ValueError
+            As for :meth:`error`, or for a tol that is not positive and finite.
+        """
+        tol = check_tol(tol)
+        values, _ = self._cells(n, p, method, metric)
+        out = values <= tol
+        return bool(out) if out.ndim == 0 else out
+
+    def is_safe(self, n, p, tol, *, method="normal_cc", metric="interval"):
+        """The verdict at one (n, p): the error, the margin, the worst interval and the source.
+
+        Parameters
+        ----------
+        n : int
+            Number of trials, n >= 1.
+        p : float
+            Success probability, 0 < p < 1.
+        tol : float
+            Tolerance, 0 < tol < inf.
+        method, metric : str, optional
+            As for :meth:`error`.
+
+        Returns
+        -------
+        Verdict
+            ``safe`` is ``error <= tol``; ``margin`` is ``tol - error``.
+
+        Raises
+        ------
+        ValueError
+            As for :meth:`error`; for a tol that is not positive and finite; for arrays (use
+            :meth:`safe`).
+
+        Examples
+        --------
+        >>> from atlas import build_atlas
+        >>> at = Atlas(build_atlas(n="10,20", p="0.5", methods="normal_cc", progress=False))
+        >>> v = at.is_safe(10, 0.5, 0.005)
+        >>> v.safe, round(v.error, 6), v.worst_interval, v.source
+        (False, 0.005372, (2, 8), 'atlas')
+        """
+        n_value = _scalar(check_n(n), "n", "integer")
+        p_value = _scalar(check_p(p), "p", "number")
+        tol_value = float(_scalar(check_tol(tol), "tol", "number"))
+        values, hit, lo, hi = self._cells(n_value, p_value, method, metric, bounds=True)
+        error = float(values)
+        return Verdict(
+            safe=bool(error <= tol_value),
+            error=error,
+            tol=tol_value,
+            margin=tol_value - error,
+            method=method,
+            metric=metric,
+            n=int(n_value),
+            p=float(p_value),
+            worst_interval=(int(lo), int(hi)),
+            source="atlas" if bool(hit) else "computed",
         )
+
+    def min_n(self, p, tol, *, method="normal_cc", metric="interval"):
+        """The smallest grid n from which on the error stays within ``tol`` at this p.
+
+        Parameters
+        ----------
+        p : float
+            Success probability, 0 < p < 1. Off the p axis, the column is computed by the engine
+            over the same n grid.
+        tol : float
+            Tolerance, 0 < tol < inf.
+        method, metric : str, optional
+            As for :meth:`error`.
+
+        Returns
+        -------
+        int or None
+            The smallest n* of the atlas's n axis such that error(n, p) <= tol for n = n* and
+            for every larger n of the axis; None if the largest n of the axis fails.
+
+        Raises
+        ------
+        ValueError
+            As for :meth:`error`, or for a tol that is not positive and finite.
+
+        Notes
+        -----
+        The guarantee is a statement about the grid. Where the n axis holds every integer (from
+        its first n up to :attr:`dense_n`, 1..2000 in the default atlas) and n* lies there, the
+        answer is exact for all integers: every integer n from n* to ``dense_n`` is within tol,
+        and n* - 1 (if on the axis) is not. Beyond ``dense_n`` only the grid values of n are
+        checked, not the integers between them: the error is not monotone in n in general, so
+        an n between two grid points can exceed tol.
+
+        Examples
+        --------
+        >>> from atlas import build_atlas
+        >>> at = Atlas(build_atlas(n="1:40", p="0.5", methods="normal_cc", progress=False))
+        >>> at.min_n(0.5, 0.01)  # W(5, 1/2) = 0.01114 > 0.01 >= W(n, 1/2) for n = 6..40
+        6
+        """
+        p_value = _scalar(check_p(p), "p", "number")
+        tol_value = float(_scalar(check_tol(tol), "tol", "number"))
+        check_metric(metric)
+        method = check_method(method)
+        return self._smallest_safe_suffix(np.array([p_value]), tol_value, method, metric)
+
+    def min_n_over(self, p_lo, p_hi, tol, *, method="normal_cc", metric="interval"):
+        """The smallest grid n from which on the error stays within ``tol`` for every grid p in
+        [p_lo, p_hi].
+
+        Parameters
+        ----------
+        p_lo, p_hi : float
+            The closed interval of p, ``0 < p_lo <= p_hi < 1``; it must hold a grid p.
+        tol : float
+            Tolerance, 0 < tol < inf.
+        method, metric : str, optional
+            As for :meth:`error`.
+
+        Returns
+        -------
+        int or None
+            The smallest n* of the n axis such that error(n, p) <= tol for every grid p in the
+            interval (see :meth:`select_p`), at n* and every larger grid n; None if none.
+
+        Raises
+        ------
+        ValueError
+            For bad p, p_lo > p_hi, an interval holding no grid p, or a bad tol, method, metric.
+
+        Notes
+        -----
+        Only the grid p in [p_lo, p_hi] are checked, never the p between them; as for
+        :meth:`min_n`, only the grid n are checked beyond :attr:`dense_n`.
+        """
+        chosen = self.select_p(p_lo, p_hi)
+        tol_value = float(_scalar(check_tol(tol), "tol", "number"))
+        check_metric(metric)
+        method = check_method(method)
+        return self._smallest_safe_suffix(chosen, tol_value, method, metric)
+
+    def best_method(self, n, p, *, metric="interval"):
+        """The atlas's methods ranked by their error at (n, p), best first.
+
+        Parameters
+        ----------
+        n : int
+            Number of trials, n >= 1.
+        p : float
+            Success probability, 0 < p < 1.
+        metric : {"interval", "cdf"}, optional
+
+        Returns
+        -------
+        list of tuple
+            ``(method, error)`` pairs sorted by error, ties in the atlas's method order.
+
+        Raises
+        ------
+        ValueError
+            For a bad n, p or metric, or arrays.
+        """
+        n_value = _scalar(check_n(n), "n", "integer")
+        p_value = _scalar(check_p(p), "p", "number")
+        check_metric(metric)
+        methods = self.methods
+        hit, i, j = self._locate(np.array([n_value]), np.array([p_value]))
+        if hit[0]:
+            variable = _VARIABLES[metric]
+            errors = [float(self._stored(variable, m)[i[0], j[0]]) for m in methods]
+        else:
+            ev = evaluate(int(n_value), [p_value], methods=methods)
+            errors = [float(x) for x in (ev.interval if metric == "interval" else ev.cdf)[:, 0]]
+        order = sorted(range(len(methods)), key=lambda k: (errors[k], k))
+        return [(methods[k], errors[k]) for k in order]
+
+    def safe_region(self, tol, *, method="normal_cc", metric="interval"):
+        """Where on the grid the error is within ``tol``.
+
+        Parameters
+        ----------
+        tol : float
+            Tolerance, 0 < tol < inf.
+        method, metric : str, optional
+            As for :meth:`error`; a method the atlas does not store is computed over the whole
+            grid by the engine (as long as building it).
+
+        Returns
+        -------
+        xarray.DataArray
+            Boolean, dims (n, p), the atlas's coordinates; attrs ``tol``, ``method``,
+            ``metric``, ``long_name`` and ``description``.
+
+        Raises
+        ------
+        ValueError
+            For a bad tol, method or metric.
+        """
+        import xarray as xr
+
+        tol_value = float(_scalar(check_tol(tol), "tol", "number"))
+        check_metric(metric)
+        method = check_method(method)
+        n_axis, p_axis = self._axes()
+        errors = self._columns(0, n_axis.size, p_axis, method, metric)
+        return xr.DataArray(
+            errors <= tol_value,
+            dims=("n", "p"),
+            coords={"n": self.dataset["n"], "p": self.dataset["p"]},
+            name="safe",
+            attrs={
+                "long_name": f"{method} {metric} error within the tolerance",
+                "description": f"{_VARIABLES[metric]} <= tol for method {method}",
+                "tol": tol_value,
+                "method": method,
+                "metric": metric,
+            },
+        )
+
+
+def _compute(n, p, method):
+    """Engine errors at flat n and p for one method, each distinct (n, p) computed once."""
+    out = {
+        "interval": np.empty(n.size),
+        "cdf": np.empty(n.size),
+        "lo": np.empty(n.size, np.int64),
+        "hi": np.empty(n.size, np.int64),
+    }
+    for value in np.unique(n):
+        cells = np.flatnonzero(n == value)
+        p_unique, back = np.unique(p[cells], return_inverse=True)
+        ev = evaluate(int(value), p_unique, methods=(method,))
+        out["interval"][cells] = ev.interval[0][back]
+        out["cdf"][cells] = ev.cdf[0][back]
+        out["lo"][cells] = ev.lo[0][back]
+        out["hi"][cells] = ev.hi[0][back]
+    return out
+
+
+def _default_path():
+    """The embedded atlas: the same file as :func:`atlas.cube.default_path`."""
+    return Path(__file__).with_name("data") / "default_atlas.nc"
+
+
+def _open_netcdf(path):
+    """Open an atlas file with netCDF4 and apply the checks of :func:`atlas.cube.load_dataset`."""
+    if not path.is_file():
+        raise FileNotFoundError(f"`path` names no atlas file: {str(path)!r}.")
+    import netCDF4
+
+    try:
+        nc = netCDF4.Dataset(path, "r")
+    except Exception as err:  # netCDF4 raises OSError for a file that is not NetCDF
+        raise ValueError(
+            f"`path` is not a readable atlas file: {str(path)!r} ({type(err).__name__}: {err})."
+        ) from None
+    try:
+        schema = nc.getncattr("atlas_schema") if "atlas_schema" in nc.ncattrs() else None
+        if schema is None:
+            raise ValueError(
+                f"`path` is NetCDF but not an atlas file (it has no 'atlas_schema' attribute): "
+                f"{str(path)!r}."
+            )
+        if schema != _SCHEMA_VERSION:
+            raise ValueError(
+                f"`path` holds an atlas of schema version {schema!r}; this version of approx-atlas "
+                f"reads schema {_SCHEMA_VERSION!r}: {str(path)!r}."
+            )
+        missing = [v for v in (*_DATA_VARIABLES, "method", "n", "p") if v not in nc.variables]
+        if missing:
+            raise ValueError(
+                f"`path` lacks the atlas variables {', '.join(missing)}: {str(path)!r}."
+            )
+        odd = [v for v in _DATA_VARIABLES if nc.variables[v].dimensions != ("method", "n", "p")]
+        if odd:
+            raise ValueError(
+                f"`path` has atlas variables without the dimensions (method, n, p): "
+                f"{', '.join(odd)}: {str(path)!r}."
+            )
+        nc.set_auto_mask(False)  # plain arrays: the atlas has no fill values
+    except Exception:
+        nc.close()
+        raise
+    return nc
+
+
+def _close_handles(handles):
+    """Close an atlas file's Dataset (if built) and netCDF4 handle; safe to call twice."""
+    ds, nc = handles.pop("ds", None), handles.pop("nc", None)
+    if ds is not None:
+        ds.close()
+    if nc is not None and nc.isopen():
+        nc.close()
+
+
+class _AtlasFile:
+    """One atlas file open in this process: its netCDF4 handle, the Dataset built on that handle
+    when asked for, and the atlases that use them. The file is closed when the last atlas using
+    it is closed or garbage collected."""
+
+    def __init__(self, path):
+        self.path = path
+        self.nc = _open_netcdf(path)
+        self.ds = None
+        self.holders = weakref.WeakSet()
+        self._handles = {"nc": self.nc}
+        self.close = weakref.finalize(self, _close_handles, self._handles)
+
+    def dataset(self):
+        if self.ds is None:
+            import xarray as xr
+
+            # On the open handle, not a second one (see the module notes).
+            self.ds = xr.open_dataset(xr.backends.NetCDF4DataStore(self.nc))
+            self._handles["ds"] = self.ds
+        return self.ds
+
+
+# (st_dev, st_ino, st_size, st_mtime_ns) -> _AtlasFile, held by its atlases only
+_OPEN = weakref.WeakValueDictionary()
+_OPEN_LOCK = threading.Lock()
+
+
+def _release(atlas):
+    """Drop ``atlas`` from its file's holders; close the file when no other atlas holds it."""
+    with _OPEN_LOCK:
+        entry = atlas._file
+        entry.holders.discard(atlas)
+        if len(entry.holders):
+            return
+        for key, value in list(_OPEN.items()):
+            if value is entry:
+                del _OPEN[key]
+        entry.close()
 
 
 def open_atlas(path=None, *, verify=False):
@@ -50,6 +835,8 @@ def open_atlas(path=None, *, verify=False):
     Returns
     -------
     Atlas
+        Only the coordinates and attributes are read on opening; each error variable is read on
+        first use, one method at a time.
 
     Raises
     ------
@@ -57,6 +844,33 @@ def open_atlas(path=None, *, verify=False):
         If the file does not exist.
     ValueError
         If it is not a readable atlas of this schema version, or fails its checksum.
+
+    Notes
+    -----
+    A file already open in this process (the same device, inode, size and modification time)
+    is not opened again: the new Atlas shares the open file, which is closed when the last Atlas
+    sharing it is closed or garbage collected. A file replaced on disk is opened afresh.
     """
-    target = cube.default_path() if path is None else path
-    return Atlas(cube.load_dataset(target, verify=verify), path=target)
+    target = Path(_default_path() if path is None else path)
+    try:
+        st = os.stat(target)
+        key = (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns)
+    except OSError:
+        key = None
+    with _OPEN_LOCK:
+        entry = _OPEN.get(key)
+        if entry is None or not entry.nc.isopen():
+            entry = _AtlasFile(target)  # raises FileNotFoundError / ValueError
+            _OPEN[key] = entry
+        atlas = Atlas(None, path=target)
+        atlas._file = entry
+        entry.holders.add(atlas)
+    if verify:
+        from atlas import cube
+
+        try:
+            cube.verify_checksum(atlas.dataset, target)
+        except Exception:
+            atlas.close()
+            raise
+    return atlas

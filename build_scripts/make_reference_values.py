@@ -2,8 +2,8 @@
 
 The values written here are the independent check on ``atlas.engine``. Nothing in this script
 imports or copies the ``atlas`` package: the exact binomial CDF and every approximation G(k) are
-implemented again, from the definitions in /work/shared/REFERENCES.md, in mpmath arithmetic at
-``DPS`` decimal digits.
+implemented again, from the definitions in REFERENCES.md (the project's reference notes), in
+mpmath arithmetic at ``DPS`` decimal digits.
 
 Method of computation (also stored in the JSON under ``"computation"``):
 
@@ -41,7 +41,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import math
 import multiprocessing
 import os
 import platform
@@ -74,10 +73,19 @@ P_VALUES = (1e-4, 0.001, 0.01, 0.1, 0.3, 0.5, 0.7, 0.99, 0.9999)
 N_VALUES = (1, 2, 3, 5, 10, 20, 50, 100, 1000, 10**4, 10**5, 10**6, 10**7, 10**8)
 # Which methods are computed for which n. normal_cc, edgeworth_cc and edgeworth2_cc share
 # Phi(z) and phi(z), so the last costs almost nothing extra; the other methods each need one more
-# erfc per point and stop at n = 10^6 (10^7 for a few p) to keep the run within ~15 minutes.
+# erfc per point and stop at n = 10^6, plus a few cells beyond, to keep the run within ~15
+# minutes. The cells at p near 1 are cheap (small sigma) and test the rounding of n p.
 OTHER_METHODS = ("normal", "poisson", "camp_paulson", "peizer_pratt")
 OTHER_MAX_N = 10**6
-OTHER_EXTRA_CELLS = ((10**7, 1e-4), (10**7, 0.01), (10**7, 0.5))
+OTHER_EXTRA_CELLS = (
+    (10**7, 1e-4),
+    (10**7, 0.01),
+    (10**7, 0.5),
+    (10**7, 0.99),
+    (10**7, 0.9999),
+    (10**8, 1e-4),
+    (10**8, 0.9999),
+)
 
 # Binomial CDF points at large n, to measure the accuracy of scipy.stats.binom.cdf.
 CDF_CHECK_N = (10**6, 10**7, 10**8)
@@ -356,13 +364,13 @@ def compute_cell(task):
         ks_lo, ks_hi = lo - 1, hi + 1
         if c.p_float <= 0.5:
             h, poisson_check = poisson_cdf_range(c.mu, ks_lo, ks_hi)
-            poisson_g = dict(zip(range(ks_lo, ks_hi + 1), h))
+            poisson_g = dict(zip(range(ks_lo, ks_hi + 1), h, strict=True))
         else:
             lam = c.n * c.q
             # G(k) = 1 - H(n - k - 1), k = ks_lo..ks_hi  <=>  j = n-ks_hi-1 .. n-ks_lo-1
             j0, j1 = c.n - ks_hi - 1, c.n - ks_lo - 1
             h, poisson_check = poisson_cdf_range(lam, j0, j1)
-            poisson_g = {c.n - j - 1: 1 - hj for j, hj in zip(range(j0, j1 + 1), h)}
+            poisson_g = {c.n - j - 1: 1 - hj for j, hj in zip(range(j0, j1 + 1), h, strict=True)}
 
     def g_values(k):
         """Tuple of G(k), one per requested method, sharing the normal-family terms."""
@@ -448,7 +456,9 @@ def compute_cell(task):
         if not lo <= k <= hi:
             continue
         fk = cdf[k - lo]
-        sf = mp.fsum(pmf[k + 1 - lo :])  # upper tail summed from the right end, full relative accuracy
+        sf = mp.fsum(
+            pmf[k + 1 - lo :]
+        )  # upper tail summed from the right end, full relative accuracy
         cdf_points.append({"n": n, "p": c.p_float, "k": k, "cdf": nstr(fk, 25), "sf": nstr(sf, 25)})
 
     meta = {
@@ -536,7 +546,13 @@ def spot_values():
         for m in ALL_METHODS:
             for k in ks:
                 out.append(
-                    {"n": n, "p": float(p), "method": m, "k": k, "G": nstr(approximation_single(m, k, c))}
+                    {
+                        "n": n,
+                        "p": float(p),
+                        "method": m,
+                        "k": k,
+                        "G": nstr(approximation_single(m, k, c)),
+                    }
                 )
     return out
 
@@ -594,6 +610,7 @@ def write_json_atomic(path, payload):
     os.makedirs(directory, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=".reference_values.", suffix=".tmp", dir=directory)
     try:
+        os.chmod(tmp, 0o644)  # mkstemp creates 0600; the data file is an ordinary file
         with os.fdopen(fd, "w") as fh:
             json.dump(payload, fh, indent=1)
             fh.write("\n")
@@ -658,7 +675,8 @@ def main(argv=None):
             ),
             "truncation": (
                 "omitted mass bounded by the Chernoff bound exp(-n KL(a || p)) on each side, "
-                f"recorded per cell as omitted_mass_bound; every bound is < {mpmath.nstr(TAIL_LIMIT, 3)}"
+                "recorded per cell as omitted_mass_bound; every bound is < "
+                f"{mpmath.nstr(TAIL_LIMIT, 3)}"
             ),
             "search": (
                 "D evaluated at every integer of the summation range and at k = -1 and k = n; "

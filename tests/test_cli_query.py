@@ -1,0 +1,346 @@
+"""Tests of the query, min-n, compare and demo commands, called in-process as main([...]).
+
+Expected values come from the Python API on the same atlas (the CLI is a thin layer over it) or
+from the engine by brute force (:func:`atlas.worst_error`), as named beside each check. The atlas
+is the tiny one of tests/conftest.py.
+"""
+
+import json
+import re
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from atlas import METHODS, cube, query, worst_error
+from atlas.cli import main
+from atlas.query import open_atlas
+
+# (source: the engine's float64 results are stored unchanged; rounding only)
+SAME = 1e-12
+
+QUERY_KEYS = {
+    "safe": bool,
+    "error": float,
+    "tol": float,
+    "margin": float,
+    "method": str,
+    "metric": str,
+    "n": int,
+    "p": float,
+    "source": str,
+    "worst_interval": list,
+    "explain": str,
+    "atlas": str,
+}
+
+
+@pytest.fixture(scope="module")
+def path(small_atlas):
+    return str(small_atlas["float64"])
+
+
+@pytest.fixture(scope="module")
+def at(small_atlas):
+    opened = open_atlas(small_atlas["float64"])
+    yield opened
+    opened.close()
+
+
+def run(capsys, *argv):
+    """Run the CLI in-process; return (status, stdout, stderr)."""
+    status = main(list(argv))
+    captured = capsys.readouterr()
+    return status, captured.out, captured.err
+
+
+def run_json(capsys, *argv):
+    status, out, err = run(capsys, *argv, "--json")
+    assert status == 0 and err == ""
+    assert out.count("\n") == 1  # exactly one JSON object on one line
+    return json.loads(out)
+
+
+# --- query ------------------------------------------------------------------------------------
+
+
+def test_query_human(capsys, path, at):
+    status, out, err = run(capsys, "query", "--n", "50", "--p", "0.1", "--tol", "0.01",
+                           "--atlas", path)  # fmt: skip
+    assert status == 0 and err == ""
+    v = at.is_safe(50, 0.1, 0.01)
+    a, b = v.worst_interval
+    assert out.splitlines() == [
+        "Bin(n=50, p=0.1), normal_cc, interval error",
+        f"  error           {v.error:.4g}",
+        "  tolerance       0.01",
+        f"  margin          {v.margin:.4g}  (tolerance - error)",
+        "  verdict         UNSAFE: the error exceeds the tolerance",
+        f"  worst interval  P({a} <= X <= {b})",
+        f"  source          atlas (a stored cell of {path})",
+    ]
+
+
+def test_query_json_schema_and_values(capsys, path, at):
+    record = run_json(capsys, "query", "--n", "50", "--p", "0.1", "--tol", "0.01", "--metric",
+                      "cdf", "--atlas", path)  # fmt: skip
+    assert set(record) == set(QUERY_KEYS)
+    for key, kind in QUERY_KEYS.items():
+        assert type(record[key]) is kind, key
+    assert len(record["worst_interval"]) == 2
+    assert all(type(x) is int for x in record["worst_interval"])
+    v = at.is_safe(50, 0.1, 0.01, metric="cdf")
+    assert record["error"] == v.error and record["safe"] is v.safe is False
+    assert record["margin"] == v.margin and record["source"] == "atlas"
+    assert (record["n"], record["p"], record["tol"]) == (50, 0.1, 0.01)
+    assert (record["method"], record["metric"]) == ("normal_cc", "cdf")
+    assert record["explain"] == v.explain() and record["atlas"] == path
+
+
+def test_query_off_grid_is_computed(capsys, path):
+    record = run_json(capsys, "query", "--n", "41", "--p", "0.123", "--tol", "0.05",
+                      "--method", "edgeworth_cc", "--atlas", path)  # fmt: skip
+    assert record["source"] == "computed"
+    assert_allclose(record["error"], worst_error(41, 0.123, method="edgeworth_cc"), rtol=SAME)
+    _, out, _ = run(capsys, "query", "--n", "41", "--p", "0.123", "--tol", "0.05", "--atlas", path)
+    assert "computed exactly by the engine (not a cell of the atlas grid)" in out
+
+
+def test_query_exit_statuses(capsys, path, at):
+    error = at.error(50, 0.1)
+    safe_tol, unsafe_tol = repr(error * 2), repr(error / 2)
+    base = ["query", "--n", "50", "--p", "0.1", "--atlas", path]
+    assert run(capsys, *base, "--tol", unsafe_tol)[0] == 0  # answered
+    assert run(capsys, *base, "--tol", unsafe_tol, "--strict")[0] == 3  # unsafe
+    assert run(capsys, *base, "--tol", safe_tol, "--strict")[0] == 0  # safe
+    status, out, _ = run(capsys, *base, "--tol", unsafe_tol, "--strict", "--json")
+    assert status == 3 and json.loads(out)["safe"] is False
+
+
+def test_query_float32_atlas(capsys, small_atlas, at):
+    record = run_json(capsys, "query", "--n", "50", "--p", "0.1", "--tol", "0.01",
+                      "--atlas", str(small_atlas["float32"]))  # fmt: skip
+    # float32 rounding: relative error at most 2**-24 (IEEE 754 binary32)
+    assert_allclose(record["error"], at.error(50, 0.1), rtol=2.0**-24)
+    assert type(record["error"]) is float
+
+
+# --- min-n -------------------------------------------------------------------------------------
+
+
+def test_min_n_json(capsys, path, at):
+    record = run_json(capsys, "min-n", "--p", "0.5", "--tol", "0.01", "--atlas", path)
+    assert record["min_n"] == at.min_n(0.5, 0.01) == 6  # brute force in tests/test_query.py
+    assert record["exact_for_integers"] is True and record["dense_n"] == 40
+    assert record["previous_grid_n"] == 5 and record["n_max"] == 5000
+    assert record["source"] == "atlas" and record["p"] == 0.5 and record["p_range"] is None
+    off = run_json(capsys, "min-n", "--p", "0.2", "--tol", "0.005", "--atlas", path)
+    assert off["min_n"] == at.min_n(0.2, 0.005) and off["source"] == "computed"
+    assert off["exact_for_integers"] is (off["min_n"] is not None and off["min_n"] <= 40)
+
+
+def test_min_n_human(capsys, path):
+    status, out, err = run(capsys, "min-n", "--p", "0.5", "--tol", "0.01", "--atlas", path)
+    assert status == 0 and err == ""
+    assert out.splitlines() == [
+        "normal_cc interval error <= 0.01 at p = 0.5: from n = 6 on (n = 6 and every larger "
+        "grid n)",
+        "  exact: every integer n from 6 to 40 is within it; n = 5 is not",
+        "  above n = 40 only the grid values of n are checked",
+        f"  source: atlas (a stored cell of {path})",
+    ]
+    _, out, _ = run(capsys, "min-n", "--p", "0.5", "--tol", "1e-12", "--atlas", path)
+    assert "no n of the atlas grid qualifies" in out
+
+
+def test_min_n_range(capsys, path, at):
+    record = run_json(capsys, "min-n", "--p-range", "0.05:0.5", "--tol", "0.02", "--atlas", path)
+    assert record["min_n"] == at.min_n_over(0.05, 0.5, 0.02)
+    assert record["p_range"] == [0.05, 0.5] and record["p_checked"] == 4 and record["p"] is None
+    status, out, _ = run(capsys, "min-n", "--p-range", "0.05:0.5", "--tol", "0.02", "--atlas", path)
+    assert status == 0 and "every grid p in [0.05, 0.5] (4 values)" in out
+
+
+# --- compare -----------------------------------------------------------------------------------
+
+
+def test_compare(capsys, path, at):
+    record = run_json(capsys, "compare", "--n", "50", "--p", "0.1", "--atlas", path)
+    assert set(record) == {"n", "p", "metric", "source", "ranking"}
+    ranking = [(r["method"], r["error"]) for r in record["ranking"]]
+    assert ranking == at.best_method(50, 0.1)
+    assert [e for _, e in ranking] == sorted(e for _, e in ranking)
+    assert record["source"] == "atlas"
+    status, out, _ = run(capsys, "compare", "--n", "50", "--p", "0.1", "--metric", "cdf",
+                         "--atlas", path)  # fmt: skip
+    lines = out.splitlines()
+    assert status == 0 and len(lines) == 2 + len(METHODS)
+    # computed, REFERENCES.md: peizer_pratt has the smallest max CDF error at (50, 0.1), 2.04e-4
+    assert lines[1].split()[:2] == ["1", "peizer_pratt"]
+
+
+def test_compare_off_grid(capsys, path):
+    record = run_json(capsys, "compare", "--n", "77", "--p", "0.3", "--atlas", path)
+    assert record["source"] == "computed"
+    for item in record["ranking"]:  # brute force
+        assert_allclose(item["error"], worst_error(77, 0.3, method=item["method"]), rtol=SAME)
+
+
+# --- demo --------------------------------------------------------------------------------------
+
+
+def test_demo_on_a_given_atlas(capsys, path, at):
+    status, out, err = run(capsys, "demo", "--atlas", path)
+    assert status == 0 and err == ""
+    lines = out.splitlines()
+    assert 4 <= len(lines) <= 8
+    assert "invented scenario" in lines[0] and "n = 80 fasteners" in lines[0]
+    assert f"  normal_cc: {at.is_safe(80, 0.025, 0.01).explain()}" in lines
+    best, error = at.best_method(80, 0.025)[0]
+    assert any(line.startswith(f"  best method here: {best}, error {error:.3g}") for line in lines)
+    assert any(f"from n = {at.min_n(0.025, 0.01)} on" in line for line in lines)
+    assert lines[-1] == f"  caution: {cube.CAUTION}"
+
+
+@pytest.mark.skipif(not cube.default_path().exists(), reason="the embedded atlas is not built yet")
+def test_demo_on_the_embedded_atlas(capsys):
+    status, out, err = run(capsys, "demo")
+    assert status == 0 and err == "" and "caution:" in out
+
+
+def test_demo_without_the_embedded_atlas(capsys, monkeypatch, tmp_path):
+    missing = tmp_path / "default_atlas.nc"
+    monkeypatch.setattr(query, "_default_path", lambda: missing)
+    status, out, err = run(capsys, "demo")
+    assert (status, out) == (2, "")
+    assert err == f"approx-atlas: error: `path` names no atlas file: {str(missing)!r}.\n"
+
+
+# --- a user's mistakes: one line on stderr, exit status 2 ---------------------------------------
+
+_METHODS = ", ".join(repr(m) for m in METHODS)
+
+
+@pytest.mark.parametrize(
+    ("argv", "message"),
+    [
+        (["query", "--n", "50", "--p", "2", "--tol", "0.01"],
+         "`p` must be in the open interval (0, 1); got 2.0."),
+        (["query", "--n", "-3", "--p", "0.1", "--tol", "0.01"],
+         "`n` must be an integer >= 1; got -3."),
+        (["query", "--n", "2.5", "--p", "0.1", "--tol", "0.01"],
+         "`n` must be an integer >= 1; got 2.5."),
+        (["query", "--n", "abc", "--p", "0.1", "--tol", "0.01"],
+         "`n` must be an integer >= 1; got 'abc'."),
+        (["query", "--n", "50", "--p", "x", "--tol", "0.01"],
+         "`p` must be in the open interval (0, 1); got 'x'."),
+        (["query", "--n", "50", "--p", "nan", "--tol", "0.01"],
+         "`p` must be in the open interval (0, 1); got nan."),
+        (["query", "--n", "50", "--p", "0.1", "--tol", "0"],
+         "`tol` must be a positive finite number; got 0."),
+        (["query", "--n", "50", "--p", "0.1", "--tol", "-0.001"],
+         "`tol` must be a positive finite number; got -0.001."),
+        (["query", "--n", "50", "--p", "0.1", "--tol", "inf"],
+         "`tol` must be a positive finite number; got inf."),
+        (["query", "--n", "50", "--p", "0.1", "--tol", "tiny"],
+         "`tol` must be a positive finite number; got 'tiny'."),
+        (["query", "--n", "50", "--p", "0.1", "--tol", "0.01", "--method", "bogus"],
+         f"`method` must be one of {_METHODS}; got 'bogus'."),
+        (["query", "--n", "50", "--p", "0.1", "--tol", "0.01", "--metric", "max"],
+         "`metric` must be one of 'interval', 'cdf'; got 'max'."),
+        (["min-n", "--p", "1.5", "--tol", "0.01"],
+         "`p` must be in the open interval (0, 1); got 1.5."),
+        (["min-n", "--p", "0.5", "--tol", "0"], "`tol` must be a positive finite number; got 0."),
+        (["min-n", "--p", "0.5", "--tol", "0.01", "--method", "bogus"],
+         f"`method` must be one of {_METHODS}; got 'bogus'."),
+        (["min-n", "--p-range", "0.5", "--tol", "0.01"],
+         "`--p-range` must be LO:HI, such as 0.05:0.95; got '0.5'."),
+        (["min-n", "--p-range", "0.6:0.4", "--tol", "0.01"],
+         "`p_lo` must be <= `p_hi`; got p_lo=0.6 > p_hi=0.4."),
+        (["min-n", "--p-range", "0.11:0.12", "--tol", "0.01"],
+         "[`p_lo`, `p_hi`] must hold a p of the atlas grid; got [0.11, 0.12]"),
+        (["min-n", "--p-range", "0:0.5", "--tol", "0.01"],
+         "`p` must be in the open interval (0, 1); got 0.0."),
+        (["compare", "--n", "0", "--p", "0.1"], "`n` must be an integer >= 1; got 0."),
+        (["compare", "--n", "50", "--p", "0.1", "--metric", "x"],
+         "`metric` must be one of 'interval', 'cdf'; got 'x'."),
+    ],
+)  # fmt: skip
+def test_user_mistakes(capsys, path, argv, message):
+    status, out, err = run(capsys, *argv, "--atlas", path)
+    assert (status, out) == (2, "")
+    assert err.startswith(f"approx-atlas: error: {message}") and err.count("\n") == 1
+    assert "Traceback" not in err
+
+
+def test_missing_atlas_file(capsys, tmp_path):
+    missing = tmp_path / "none.nc"
+    status, out, err = run(capsys, "query", "--n", "50", "--p", "0.1", "--tol", "0.01",
+                           "--atlas", str(missing))  # fmt: skip
+    assert (status, out) == (2, "")
+    assert err == f"approx-atlas: error: `path` names no atlas file: {str(missing)!r}.\n"
+
+
+def test_garbage_atlas_file(capsys, tmp_path):
+    garbage = tmp_path / "garbage.nc"
+    garbage.write_bytes(b"\x89HDF\r\n\x1a\n but nothing else" * 10)
+    for argv in (
+        ["query", "--n", "50", "--p", "0.1", "--tol", "0.01"],
+        ["demo"],
+        ["compare", "--n", "50", "--p", "0.1"],
+        ["min-n", "--p", "0.1", "--tol", "0.01"],
+    ):
+        status, out, err = run(capsys, *argv, "--atlas", str(garbage))
+        assert (status, out) == (2, "")
+        assert err.startswith("approx-atlas: error: `path` is not a readable atlas file: ")
+        assert err.count("\n") == 1 and "Traceback" not in err
+
+
+def test_damaged_atlas_chunks(capsys, tmp_path, small_atlas):
+    data = small_atlas["float64"].read_bytes()
+    refused = 0
+    for frac in (0.3, 0.4, 0.6, 0.7):  # 4 KiB flipped: a data chunk or the HDF5 metadata
+        damaged = bytearray(data)
+        start = int(len(data) * frac)
+        damaged[start : start + 4096] = bytes(b ^ 0xA5 for b in damaged[start : start + 4096])
+        target = tmp_path / f"damaged_{int(frac * 100)}.nc"
+        target.write_bytes(bytes(damaged))
+        for metric in ("interval", "cdf"):  # compare reads one variable for every method
+            status, out, err = run(capsys, "compare", "--n", "50", "--p", "0.1", "--metric",
+                                   metric, "--atlas", str(target))  # fmt: skip
+            if status == 0:
+                continue
+            refused += 1
+            assert (status, out) == (2, "") and err.count("\n") == 1
+            assert re.match(
+                r"approx-atlas: error: (the atlas is corrupt: \w+ of \w+ cannot be read from "
+                r"|`path` is not a readable atlas file: )",
+                err,
+            )
+    assert refused >= 4
+
+
+def test_missing_required_options_are_usage_errors(capsys, path):
+    assert run(capsys, "query", "--n", "50", "--p", "0.1", "--atlas", path)[0] == 2
+    assert run(capsys, "min-n", "--tol", "0.01", "--atlas", path)[0] == 2
+    status, _, err = run(capsys, "min-n", "--p", "0.1", "--p-range", "0.1:0.2", "--tol", "0.01")
+    assert status == 2 and "not allowed with argument" in err
+
+
+def test_numbers_are_parsed_like_the_api(capsys, path, at):
+    # "1e2" is the integer 100 to the API; a p typed in full hits the grid p exactly.
+    a = run_json(capsys, "query", "--n", "1e1", "--p", "0.5", "--tol", "0.01", "--atlas", path)
+    assert a["n"] == 10 and a["source"] == "atlas"
+    assert np.isclose(a["error"], at.error(10, 0.5), rtol=SAME)
+
+
+def test_commands_leave_no_file_open(capsys, small_atlas):
+    # An atlas opened by a command is closed when the command returns (its Atlas is garbage
+    # collected), so a later open of the same file by other code meets no second handle.
+    import gc
+
+    path = str(small_atlas["float32"])
+    assert run(capsys, "query", "--n", "50", "--p", "0.1", "--tol", "0.01", "--atlas", path)[0] == 0
+    assert run(capsys, "compare", "--n", "5", "--p", "0.5", "--atlas", path)[0] == 0
+    gc.collect()
+    assert [e for e in query._OPEN.values() if str(e.path) == path] == []
