@@ -54,16 +54,15 @@ def _offset(x, n, p, q):
 
     A rounded n p is off by up to half an ulp of a number as large as n p, which moves z by that
     much over sigma (1e-12 of G at n = 10^8). Writing n p = n hi + n lo (see :func:`_split`)
-    makes the difference exact to rounding of the result; for p > 1/2 the difference is taken as
+    makes the difference exact to rounding of the result. For p > 1/2 the difference is taken as
     (x - n) + n q, since q = 1 - p is exact there (Sterbenz) and n q is the small number.
+    Both cases are ((x - shift) - a) - b with shift, a, b computed once per (n, p).
     """
-    p_hi, p_lo = _split(p)
-    q_hi, q_lo = _split(q)
-    return np.where(
-        p <= 0.5,
-        (x - n * p_hi) - n * p_lo,
-        ((x - n) + n * q_hi) + n * q_lo,
-    )
+    upper = p > 0.5
+    hi, lo = _split(np.where(upper, q, p))
+    shift = np.where(upper, n, 0.0)
+    sign = np.where(upper, -1.0, 1.0)
+    return ((x - shift) - sign * n * hi) - sign * n * lo
 
 
 def _phi(z):
