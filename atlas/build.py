@@ -6,9 +6,12 @@ or on a dask.distributed cluster (``client=...``, see :mod:`atlas.distributed`).
 depend only on its own (n, p) cells, so every way of running gives the same cube, bit for bit.
 """
 
+import contextlib
 import os
+import signal
 import time
 from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from multiprocessing import get_context
@@ -17,12 +20,21 @@ import numpy as np
 
 from atlas import __version__, grid
 from atlas.approximations import METHODS, check_method
-from atlas.engine import FULL_LIMIT, TAIL_TOL, evaluate
+from atlas.engine import FULL_LIMIT, TAIL_TOL, check_n, evaluate
 
-# Work per chunk, in the engine's point evaluations; about a second on one core.
-CHUNK_COST = 3_000_000
-# A wide-window cell costs about as much as this many points of a narrow one.
-_NESTED_COST = 3_000
+# Target work per chunk, in the units of `cell_cost` (about 0.6 microseconds of one core each
+# for all seven methods): about a second a chunk, so that two workers finish within a second
+# of each other and a checkpoint loses little when a build is stopped.
+CHUNK_COST = 1_500_000
+# The largest cube a build allocates: four arrays of 8 bytes per cell, 3.2 GB.
+MAX_CELLS = 10**8
+# Cost model of `cell_cost`, fitted to timings of atlas.engine.evaluate with all seven methods
+# over the default p axis, n = 1 .. 10^8 (within a factor 2 everywhere): a fixed cost per call
+# of evaluate, a cost per p and per integer of the padded rectangle of narrow windows, and for
+# wide windows a cost per evaluation of the nested search, each _WIDE_WEIGHT narrow points.
+_CALL_COST = 300
+_ROW_COST = 50
+_WIDE_WEIGHT = 2.4
 
 
 @dataclass(frozen=True)
@@ -37,10 +49,50 @@ class Chunk:
 
 
 def cell_cost(n, p):
-    """Estimated engine work for the cells of one n over the vector p (point evaluations)."""
-    sigma = np.sqrt(n * p * (1.0 - p))
-    points = np.minimum(n + 1.0, 18.0 * sigma + 21.0)
-    return float(np.where(points > FULL_LIMIT, _NESTED_COST, points + 50.0).sum())
+    """Estimated engine work for one n over the vector p, in narrow-window point evaluations.
+
+    Parameters
+    ----------
+    n : int
+        The number of trials.
+    p : numpy.ndarray
+        The p values computed together with this n.
+
+    Returns
+    -------
+    float
+
+    Notes
+    -----
+    It follows the structure of :func:`atlas.engine.evaluate`. The window of one p holds
+    ``w = min(n + 1, 18 sigma + 21)`` integers, sigma = sqrt(n p q). Windows of at most
+    ``FULL_LIMIT`` integers are evaluated at every integer of one rectangle, (count of those p)
+    x (widest window), padded. A wider window is sampled ``c = clip(6 w / sigma, 64, 8192) + 1``
+    times and the best samples are refined over brackets of ``b = min(2 w / (c - 1), FULL_LIMIT)``
+    integers, about ``c + 3 b`` evaluations. The model is for all seven methods; fewer methods
+    take less time per chunk, which only makes their chunks shorter.
+    """
+    return float(_costs(np.array([n]), np.asarray(p, dtype=np.float64))[0])
+
+
+def _costs(n, p):
+    """`cell_cost` of every n of an array over the vector p, computed a slab of n at a time."""
+    out = np.empty(n.size)
+    step = max(1, 2**20 // max(p.size, 1))
+    for start in range(0, n.size, step):
+        rows = n[start : start + step].astype(np.float64)[:, None]
+        sigma = np.sqrt(rows * p * (1.0 - p))
+        width = np.minimum(rows + 1.0, 18.0 * sigma + 21.0)
+        wide = width > FULL_LIMIT
+        count = (~wide).sum(axis=1)
+        widest = np.where(wide, 0.0, width).max(axis=1)
+        cost = np.where(count > 0, count * (widest + _ROW_COST), 0.0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            samples = np.clip(np.ceil(6.0 * width / sigma), 64, 8192) + 1.0
+            bracket = np.minimum(2.0 * width / (samples - 1.0), FULL_LIMIT)
+        cost += _WIDE_WEIGHT * np.where(wide, samples + 3.0 * bracket + _ROW_COST, 0.0).sum(axis=1)
+        out[start : start + step] = _CALL_COST + cost
+    return out
 
 
 def plan_chunks(n, p, *, cost=CHUNK_COST, p_block=None):
@@ -60,20 +112,32 @@ def plan_chunks(n, p, *, cost=CHUNK_COST, p_block=None):
     list of Chunk
         Consecutive runs of n within each p block, in a fixed order.
     """
-    p_block = p.size if p_block is None else int(p_block)
-    if p_block < 1:
-        raise ValueError(f"`p_block` must be a positive integer; got {p_block!r}.")
+    n = np.asarray(n)
+    p = np.asarray(p, dtype=np.float64)
+    p_block = p.size if p_block is None else _positive_int("p_block", p_block)
+    if isinstance(cost, bool) or not isinstance(cost, (int, float, np.integer, np.floating)):
+        raise TypeError(f"`chunk_cost` must be a positive number; got {cost!r}.")
+    if not (np.isfinite(cost) and cost > 0):
+        raise ValueError(f"`chunk_cost` must be a positive number; got {cost!r}.")
     chunks = []
     for p_start in range(0, p.size, p_block):
         p_stop = min(p.size, p_start + p_block)
-        block = p[p_start:p_stop]
         start, acc = 0, 0.0
-        for i, value in enumerate(n):
-            acc += cell_cost(int(value), block)
+        for i, work in enumerate(_costs(n, p[p_start:p_stop]).tolist()):
+            acc += work
             if acc >= cost or i == n.size - 1:
                 chunks.append(Chunk(len(chunks), start, i + 1, p_start, p_stop))
                 start, acc = i + 1, 0.0
     return chunks
+
+
+def _positive_int(name, value):
+    """``value`` as an int if it is an integer >= 1, else a TypeError or ValueError naming it."""
+    if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
+        raise TypeError(f"`{name}` must be a positive integer; got {value!r}.")
+    if value < 1:
+        raise ValueError(f"`{name}` must be a positive integer; got {value!r}.")
+    return int(value)
 
 
 def compute_chunk(n, p, methods):
@@ -124,6 +188,12 @@ def check_methods(methods):
         return METHODS
     if isinstance(methods, str):
         methods = [m.strip() for m in methods.split(",")]
+    try:
+        methods = list(methods)
+    except TypeError:
+        raise TypeError(
+            f"`methods` must be a comma-separated string or a sequence of names; got {methods!r}."
+        ) from None
     methods = tuple(check_method(m) for m in methods)
     if not methods:
         raise ValueError("`methods` must name at least one method; got none.")
@@ -167,7 +237,7 @@ def build_atlas(
     methods : str or sequence of str, optional
         Methods (all by default).
     workers : int, optional
-        Local worker processes; None or 1 computes in this process.
+        Local worker processes (``workers >= 1``); None or 1 computes in this process.
     progress : bool, optional
         Show a progress bar (tqdm) when standard error is a terminal.
     client : distributed.Client, optional
@@ -175,9 +245,10 @@ def build_atlas(
     checkpoint : str or os.PathLike, optional
         A directory that keeps finished chunks, so that a rerun computes only missing ones.
     p_block : int, optional
-        Split the p axis into blocks of this many values.
+        Split the p axis into blocks of this many values (default: the whole axis).
     chunk_cost : float, optional
-        Target work per chunk.
+        Target work per chunk, in the units of :func:`cell_cost` (default ``CHUNK_COST``,
+        about a second of one core).
 
     Returns
     -------
@@ -187,21 +258,37 @@ def build_atlas(
     Raises
     ------
     ValueError
-        For a bad grid specification, method list or worker count, before any work starts.
+        For a bad grid specification, method list, worker count, ``p_block`` or
+        ``chunk_cost``, or a grid of more than ``MAX_CELLS`` cells, before any work starts.
+    TypeError
+        For a ``workers``, ``p_block`` or ``chunk_cost`` that is not a number, or an axis that
+        is neither a spec string nor a sequence of numbers.
+
+    Notes
+    -----
+    A cell's values depend on that cell alone, so the cube is the same, bit for bit, for every
+    ``workers``, ``client``, ``p_block`` and ``chunk_cost``. Work is cut into chunks of about
+    ``chunk_cost`` (:func:`plan_chunks`); a local pool takes the costliest chunks first.
 
     Examples
     --------
     >>> ds = build_atlas(n="10,20", p="0.5", methods="normal_cc", progress=False)
-    >>> round(float(ds["interval_error"].sel(method="normal_cc", n=10, p=0.5)), 6)
+    >>> # "method" is also a keyword of .sel(), so the labels go in a dict
+    >>> round(float(ds["interval_error"].sel({"method": "normal_cc", "n": 10, "p": 0.5})), 6)
     0.005372
     """
     n_axis, n_spec = _axis(n, grid.parse_n, grid.DEFAULT_N_SPEC)
     p_axis, p_spec = _axis(p, grid.parse_p, grid.DEFAULT_P_SPEC)
+    check_n(n_axis)  # the engine's own limit on n, checked before any work
     methods = check_methods(methods)
-    if workers is not None and (
-        isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1
-    ):
-        raise ValueError(f"`workers` must be a positive integer; got {workers!r}.")
+    if workers is not None:
+        workers = _positive_int("workers", workers)
+    cells = len(methods) * n_axis.size * p_axis.size
+    if cells > MAX_CELLS:
+        raise ValueError(
+            f"`n`, `p` and `methods` must give at most {MAX_CELLS} cells; got {n_axis.size} n x "
+            f"{p_axis.size} p x {len(methods)} methods = {cells}."
+        )
     chunks = plan_chunks(n_axis, p_axis, cost=chunk_cost, p_block=p_block)
     shape = (len(methods), n_axis.size, p_axis.size)
     arrays = {
@@ -224,19 +311,20 @@ def build_atlas(
         else:
             _place(arrays, chunk, part)
     bar = _progress_bar(len(chunks), len(chunks) - len(todo), progress)
-    try:
-        for chunk, part in _execute(todo, n_axis, p_axis, methods, workers, client):
+    results = _execute(todo, n_axis, p_axis, methods, workers, client)
+    # closing(): an error in this loop stops a local pool at once rather than when collected.
+    with bar, contextlib.closing(results):
+        for chunk, part in results:
             if store is not None:
                 store.save(chunk, part)
             _place(arrays, chunk, part)
             bar.update(1)
-    finally:
-        bar.close()
     elapsed = time.perf_counter() - started
     stamp = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    where = "on a dask cluster" if client is not None else f"with {workers or 1} worker process(es)"
     history = (
         f"{stamp} approx-atlas {__version__} build: {n_axis.size} n x {p_axis.size} p x "
-        f"{len(methods)} methods in {len(chunks)} chunks, {elapsed:.1f} s"
+        f"{len(methods)} methods in {len(chunks)} chunk(s) {where}, {elapsed:.1f} s"
     )
     from atlas.cube import make_dataset
 
@@ -260,7 +348,7 @@ def _place(arrays, chunk, part):
 
 
 def _progress_bar(total, done, progress):
-    """A tqdm bar over chunks (shown only on a terminal), or a silent stand-in."""
+    """A tqdm bar over chunks (shown only when standard error is a terminal), or a silent one."""
     from tqdm import tqdm
 
     return tqdm(
@@ -283,19 +371,56 @@ def _execute(chunks, n, p, methods, workers, client):
         for chunk in chunks:
             yield chunk, _run_chunk(n, p, methods, chunk)[1]
         return
-    # fork starts workers without re-importing; elsewhere spawn is the safe default.
-    method = "fork" if "fork" in _start_methods() else "spawn"
+    # Costliest chunks first, so that no long chunk starts last while the other workers idle.
+    order = sorted(chunks, key=lambda c: -_chunk_cost(n, p, c))
     by_index = {chunk.index: chunk for chunk in chunks}
-    with ProcessPoolExecutor(max_workers=workers, mp_context=get_context(method)) as pool:
-        futures = [pool.submit(_run_chunk, n, p, methods, chunk) for chunk in chunks]
-        try:
-            for future in as_completed(futures):
+    # fork starts workers without re-importing; elsewhere spawn is the safe default.
+    context = get_context("fork" if "fork" in _start_methods() else "spawn")
+    pool = ProcessPoolExecutor(
+        max_workers=min(workers, len(chunks)), mp_context=context, initializer=_ignore_interrupts
+    )
+    try:
+        futures = [pool.submit(_run_chunk, n, p, methods, chunk) for chunk in order]
+        for future in as_completed(futures):
+            try:
                 index, part = future.result()
-                yield by_index[index], part
-        except BaseException:
-            for future in futures:
-                future.cancel()
-            raise
+            except BrokenProcessPool:
+                raise RuntimeError(
+                    "a worker process of the build died (out of memory, or killed); "
+                    "no atlas was made"
+                ) from None
+            yield by_index[index], part
+    except BaseException:
+        # An error, Ctrl-C, or the consumer stopping: stop the workers at once.
+        _stop_workers(pool)
+        raise
+    pool.shutdown(wait=True)
+
+
+def _stop_workers(pool):
+    """Cancel what has not started and end the pool's worker processes now."""
+    terminate = getattr(pool, "terminate_workers", None)  # Python >= 3.14
+    if terminate is not None:
+        terminate()
+        return
+    # Before 3.14 there is no public way: take the processes before shutdown forgets them.
+    processes = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
+    for process in processes:
+        process.terminate()
+    for process in processes:
+        process.join()
+
+
+def _chunk_cost(n, p, chunk):
+    """Estimated work of one chunk (see `cell_cost`)."""
+    block = p[chunk.p_start : chunk.p_stop]
+    return float(_costs(n[chunk.n_start : chunk.n_stop], block).sum())
+
+
+def _ignore_interrupts():
+    """Pool initializer: Ctrl-C goes to the parent alone, which then stops the workers."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
 def _start_methods():

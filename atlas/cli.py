@@ -40,6 +40,471 @@ def _cmd_grid(args):
     return 0
 
 
+# --- query, min-n, compare, demo: questions asked of an atlas (atlas.query) ---------------------
+
+# An invented inspection lot: 80 fasteners, a 2.5 % defect rate, a tolerance of 0.01.
+_DEMO = {"n": 80, "p": 0.025, "tol": 0.01}
+
+
+def _number(text):
+    """A command-line number as int or float. Other text is passed on unchanged, so that the API
+    refuses it with a message naming the argument (e.g. "`n` must be an integer >= 1; got 'x'.").
+    """
+    for convert in (int, float):
+        try:
+            return convert(text)
+        except ValueError:
+            pass
+    return text
+
+
+def _open_atlas(args):
+    """The atlas named by ``--atlas``, or the embedded default."""
+    from atlas.query import open_atlas
+
+    return open_atlas(args.atlas)
+
+
+def _print_json(record):
+    import json
+
+    print(json.dumps(record, allow_nan=False))
+
+
+def _source_text(atlas, source, method):
+    """Where an answer came from, for people."""
+    if source == "atlas":
+        where = "the Dataset in memory" if atlas.path is None else str(atlas.path)
+        return f"atlas (a stored cell of {where})"
+    if method not in atlas.methods:
+        return f"computed exactly by the engine ({method} is not stored in the atlas)"
+    return "computed exactly by the engine (not a cell of the atlas grid)"
+
+
+def _cmd_query(args):
+    """Print the verdict at one (n, p); with --strict, exit 3 when unsafe."""
+    import dataclasses
+
+    atlas = _open_atlas(args)
+    verdict = atlas.is_safe(
+        _number(args.n), _number(args.p), _number(args.tol), method=args.method, metric=args.metric
+    )
+    a, b = verdict.worst_interval
+    if args.json:
+        record = dataclasses.asdict(verdict)
+        record["worst_interval"] = [a, b]
+        record["explain"] = verdict.explain()
+        record["atlas"] = None if atlas.path is None else str(atlas.path)
+        _print_json(record)
+    else:
+        label = "worst interval" if verdict.metric == "interval" else "worst interval*"
+        lines = [
+            f"Bin(n={verdict.n}, p={verdict.p:.6g}), {verdict.method}, {verdict.metric} error",
+            f"  error           {verdict.error:.4g}",
+            f"  tolerance       {verdict.tol:.4g}",
+            f"  margin          {verdict.margin:.4g}  (tolerance - error)",
+            "  verdict         "
+            + ("safe: the error is within the tolerance" if verdict.safe
+               else "UNSAFE: the error exceeds the tolerance"),
+            f"  {label:<15} P({a} <= X <= {b})",
+            f"  source          {_source_text(atlas, verdict.source, verdict.method)}",
+        ]  # fmt: skip
+        if verdict.metric != "interval":
+            lines.append("  * where the interval error is attained")
+        print("\n".join(lines))
+    return 3 if args.strict and not verdict.safe else 0
+
+
+def _p_range(text):
+    """``LO:HI`` as two numbers (each left to the API to check)."""
+    lo, sep, hi = text.partition(":")
+    if not sep or not lo.strip() or not hi.strip() or ":" in hi:
+        raise ValueError(f"`--p-range` must be LO:HI, such as 0.05:0.95; got {text!r}.")
+    return _number(lo.strip()), _number(hi.strip())
+
+
+def _cmd_min_n(args):
+    """Print the smallest grid n from which the error stays within tol (at p, or over a p range)."""
+    atlas = _open_atlas(args)
+    tol = _number(args.tol)
+    options = {"method": args.method, "metric": args.metric}
+    if args.p_range is not None:
+        lo, hi = _p_range(args.p_range)
+        result = atlas.min_n_over(lo, hi, tol, **options)
+        chosen = atlas.select_p(lo, hi)
+        where = f"every grid p in [{lo:g}, {hi:g}] ({chosen.size} values)"
+    else:
+        p = _number(args.p)
+        result = atlas.min_n(p, tol, **options)
+        chosen = [p]
+        where = f"p = {p:.6g}"
+    source = "atlas" if bool(atlas.on_grid(p=chosen, method=args.method).all()) else "computed"
+    n_axis, dense = atlas.n, atlas.dense_n
+    below = None
+    if result is not None and result > n_axis[0]:
+        below = int(n_axis[n_axis.searchsorted(result) - 1])
+    tol = float(tol)
+    if args.json:
+        _print_json({
+            "min_n": result,
+            "p": None if args.p_range is not None else float(chosen[0]),
+            "p_range": None if args.p_range is None else [float(lo), float(hi)],
+            "p_checked": len(chosen),
+            "tol": tol,
+            "method": args.method,
+            "metric": args.metric,
+            "source": source,
+            "dense_n": dense,
+            "exact_for_integers": result is not None and result <= dense,
+            "previous_grid_n": below,
+            "n_max": int(n_axis[-1]),
+        })  # fmt: skip
+        return 0
+    head = f"{args.method} {args.metric} error <= {tol:g} at {where}"
+    if result is None:
+        lines = [
+            f"{head}: no n of the atlas grid qualifies",
+            f"  the largest grid n, {int(n_axis[-1])}, is not within the tolerance",
+        ]
+    else:
+        lines = [f"{head}: from n = {result} on (n = {result} and every larger grid n)"]
+        if result <= dense:
+            fails = "" if below is None else f"; n = {below} is not"
+            lines.append(f"  exact: every integer n from {result} to {dense} is within it{fails}")
+            if dense < n_axis[-1]:
+                lines.append(f"  above n = {dense} only the grid values of n are checked")
+        else:
+            lines.append(
+                f"  n = {result} is beyond {dense}, where the grid holds every integer: only grid "
+                f"values of n are checked (the grid n below it, {below}, is not within it)"
+            )
+    lines.append(f"  source: {_source_text(atlas, source, args.method)}")
+    print("\n".join(lines))
+    return 0
+
+
+def _cmd_compare(args):
+    """Print every method of the atlas ranked by its error at (n, p)."""
+    atlas = _open_atlas(args)
+    n, p = _number(args.n), _number(args.p)
+    ranking = atlas.best_method(n, p, metric=args.metric)
+    source = "atlas" if atlas.on_grid(n, p, method=ranking[0][0]) else "computed"
+    if args.json:
+        _print_json({
+            "n": int(n),
+            "p": float(p),
+            "metric": args.metric,
+            "source": source,
+            "ranking": [{"method": m, "error": e} for m, e in ranking],
+        })  # fmt: skip
+        return 0
+    lines = [f"Bin(n={int(n)}, p={float(p):.6g}), {args.metric} error, best first"]
+    lines += [f"  {i:>2}  {m:<14} {e:.3e}" for i, (m, e) in enumerate(ranking, start=1)]
+    lines.append(f"  source: {_source_text(atlas, source, ranking[0][0])}")
+    print("\n".join(lines))
+    return 0
+
+
+def _cmd_demo(args):
+    """Answer the main questions for an invented inspection lot, in a few lines."""
+    atlas = _open_atlas(args)
+    caution = atlas.attrs.get("comment")  # the caution stored in every atlas
+    if not caution:
+        from atlas.cube import CAUTION as caution
+    n, p, tol = _DEMO["n"], _DEMO["p"], _DEMO["tol"]
+    verdict = atlas.is_safe(n, p, tol)
+    best, best_error = atlas.best_method(n, p)[0]
+    smallest = atlas.min_n(p, tol)
+    within = "within" if best_error <= tol else "not within"
+    from_n = f"from n = {smallest} on" if smallest is not None else "at no n of the atlas grid"
+    if smallest is not None and smallest > atlas.dense_n:
+        from_n += f" (grid n: beyond n = {atlas.dense_n} only grid values are checked)"
+    elif smallest is not None:
+        from_n += f" (every integer n from {smallest} to {atlas.dense_n} checked)"
+    print("\n".join([
+        f"Demo (an invented scenario): an incoming inspection lot of n = {n} fasteners with a "
+        f"defect rate of p = {p:g}; every P(a <= X <= b), X ~ Bin({n}, {p:g}), wanted within "
+        f"{tol:g}.",
+        f"  normal_cc: {verdict.explain()}",
+        f"  best method here: {best}, error {best_error:.3g} ({within} the tolerance)",
+        f"  normal_cc is within {tol:g} at p = {p:g} {from_n}",
+        f"  next: approx-atlas query --n {n} --p {p:g} --tol {tol:g}; approx-atlas compare "
+        f"--n {n} --p {p:g}",
+        f"  caution: {caution}",
+    ]))  # fmt: skip
+    return 0
+
+
+def _add_query_commands(commands):
+    """Register query, min-n, compare and demo."""
+
+    def common(sub, *, method=True):
+        sub.add_argument("--atlas", metavar="FILE", help="atlas file (default: the embedded one)")
+        if method:
+            sub.add_argument("--method", default="normal_cc", help="approximation (normal_cc)")
+        sub.add_argument("--metric", default="interval", help="interval (default) or cdf")
+        sub.add_argument("--json", action="store_true", help="print one JSON object")
+
+    query = commands.add_parser("query", help="is the approximation within a tolerance at (n, p)?")
+    query.add_argument("--n", required=True, help="number of trials, n >= 1")
+    query.add_argument("--p", required=True, help="success probability, 0 < p < 1")
+    query.add_argument("--tol", required=True, help="tolerance on the error, > 0")
+    common(query)
+    query.add_argument("--strict", action="store_true", help="exit with status 3 when unsafe")
+    query.set_defaults(handler=_cmd_query)
+
+    min_n = commands.add_parser("min-n", help="the smallest n from which the error stays in tol")
+    where = min_n.add_mutually_exclusive_group(required=True)
+    where.add_argument("--p", help="success probability, 0 < p < 1")
+    where.add_argument("--p-range", metavar="LO:HI", help="every grid p in [LO, HI]")
+    min_n.add_argument("--tol", required=True, help="tolerance on the error, > 0")
+    common(min_n)
+    min_n.set_defaults(handler=_cmd_min_n)
+
+    compare = commands.add_parser("compare", help="every method ranked by its error at (n, p)")
+    compare.add_argument("--n", required=True, help="number of trials, n >= 1")
+    compare.add_argument("--p", required=True, help="success probability, 0 < p < 1")
+    common(compare, method=False)
+    compare.set_defaults(handler=_cmd_compare)
+
+    demo = commands.add_parser("demo", help="the main questions for an invented inspection lot")
+    demo.add_argument("--atlas", metavar="FILE", help="atlas file (default: the embedded one)")
+    demo.set_defaults(handler=_cmd_demo)
+
+
+# --- build, inspect: making and checking atlas files (atlas.build, atlas.cube) ------------------
+
+
+def _integer(text):
+    """A command-line integer, or the text unchanged for the API to refuse by name."""
+    try:
+        return int(text)
+    except ValueError:
+        return text
+
+
+def _cmd_build(args):
+    """Build an atlas over a grid and write it to a NetCDF file, atomically."""
+    import time
+    from pathlib import Path
+
+    from atlas import cube
+    from atlas.build import build_atlas, check_methods
+    from atlas.grid import parse_n, parse_p
+
+    # Every check that can fail comes before any work.
+    target = Path(args.output)
+    if target.is_dir():
+        raise ValueError(f"`-o` must name a file; got a directory: {str(target)!r}.")
+    if target.exists() and not args.force:
+        raise FileExistsError(f"`-o` {str(target)!r} exists; pass --force to replace it.")
+    if not target.parent.is_dir():
+        raise FileNotFoundError(f"`-o` is in a directory that does not exist: {str(target)!r}.")
+    parse_n(args.n)
+    parse_p(args.p)
+    check_methods(args.methods)
+    options = {
+        "methods": args.methods,
+        "workers": args.workers,
+        "checkpoint": args.checkpoint,
+        "progress": True,
+    }
+    started = time.perf_counter()
+    if args.dask is None:
+        ds = build_atlas(args.n, args.p, **options)
+    else:
+        from atlas.distributed import connect, parse_spec
+
+        parse_spec(args.dask)
+        with connect(args.dask) as client:
+            ds = build_atlas(args.n, args.p, client=client, **options)
+    if args.float32:
+        ds = cube.compact(ds, "float32")
+    cube.save_atlas(ds, target, overwrite=args.force)
+    elapsed = time.perf_counter() - started
+    sizes = ds.sizes
+    cells = sizes["method"] * sizes["n"] * sizes["p"]
+    print(
+        f"wrote {target}: {sizes['n']} n x {sizes['p']} p x {sizes['method']} methods = {cells} "
+        f"cells in {elapsed:.1f} s ({cells / elapsed:.0f} cells/s), "
+        f"{target.stat().st_size / 1e6:.2f} MB, {ds['interval_error'].dtype} errors"
+    )
+    return 0
+
+
+def _cmd_inspect(args):
+    """Print an atlas file's grid, methods, variables and provenance, then verify its checksum."""
+    from atlas import cube
+
+    path = cube.default_path() if args.file is None else args.file
+    ds = cube.load_dataset(path)
+    try:
+        print("\n".join(cube.describe_dataset(ds, path)), flush=True)
+        digest = cube.verify_checksum(ds, path)
+    finally:
+        ds.close()
+    print(f"checksum: ok ({digest})")
+    return 0
+
+
+def _add_build_commands(commands):
+    """Register build and inspect."""
+    build = commands.add_parser("build", help="compute an atlas over a grid and write it to NetCDF")
+    build.add_argument("--n", default=DEFAULT_N_SPEC, help="n axis spec (default: the atlas's)")
+    build.add_argument("--p", default=DEFAULT_P_SPEC, help="p axis spec (default: the atlas's)")
+    build.add_argument("--methods", help="comma-separated methods (default: all)")
+    build.add_argument("-o", "--output", required=True, metavar="FILE", help="the NetCDF file")
+    build.add_argument(
+        "--workers", type=_integer, metavar="K", help="local worker processes (default: this one)"
+    )
+    build.add_argument("--force", action="store_true", help="replace an existing FILE")
+    build.add_argument(
+        "--float32", action="store_true", help="store the errors as float32 (7 digits)"
+    )
+    build.add_argument("--dask", metavar="SPEC", help="'local:K' or 'tcp://HOST:PORT'")
+    build.add_argument("--checkpoint", metavar="DIR", help="keep finished chunks in DIR")
+    build.set_defaults(handler=_cmd_build)
+
+    inspect = commands.add_parser("inspect", help="describe an atlas file and verify its checksum")
+    inspect.add_argument("file", nargs="?", metavar="FILE", help="default: the embedded atlas")
+    inspect.set_defaults(handler=_cmd_inspect)
+
+
+# --- chart, table, rules, sheet, wiki: outputs for people (atlas.charts, atlas.sheets) ---------
+
+
+def _number_list(text, option):
+    """``"0.01,0.005"`` as a list of floats; the API checks their range."""
+    items = [item.strip() for item in str(text).split(",")]
+    try:
+        return [float(item) for item in items]
+    except ValueError:
+        raise ValueError(
+            f"`{option}` must be comma-separated numbers such as 0.01,0.005; got {text!r}."
+        ) from None
+
+
+def _emit(text, output):
+    """Print ``text``, or write it atomically to ``output`` and print the path."""
+    if output is None:
+        sys.stdout.write(text)
+    else:
+        from atlas.sheets import save_text
+
+        print(save_text(output, text))
+    return 0
+
+
+def _cmd_chart(args):
+    """Draw a map (or a comparison) and write it as PNG, SVG or PDF by the file's extension."""
+    from atlas import charts
+
+    charts.figure_format(args.output)  # refuse a bad extension before any drawing
+    atlas = _open_atlas(args)
+    fig = charts.chart(atlas, kind=args.kind, method=args.method, method2=args.method2,
+                       metric=args.metric, p_scale=args.p_scale)  # fmt: skip
+    print(charts.save_figure(fig, args.output))
+    return 0
+
+
+def _cmd_table(args):
+    """Print (or write) the minimum n for each tolerance and p."""
+    from atlas.sheets import TABLE_FORMATS, threshold_table
+
+    if args.format not in TABLE_FORMATS:
+        valid = ", ".join(repr(f) for f in TABLE_FORMATS)
+        raise ValueError(f"`--format` must be one of {valid}; got {args.format!r}.")
+    table = threshold_table(_open_atlas(args), _number_list(args.tol, "--tol"),
+                            _number_list(args.p, "--p"), method=args.method,
+                            metric=args.metric)  # fmt: skip
+    return _emit(table.render(args.format), args.output)
+
+
+def _cmd_rules(args):
+    """Print (or write) the audit of the classic rules of thumb and the user's own."""
+    from atlas.engine import METRICS
+    from atlas.rules import CLASSIC_RULES, parse_rule
+    from atlas.sheets import AUDIT_FORMATS, rule_audit
+
+    if args.format not in AUDIT_FORMATS:
+        valid = ", ".join(repr(f) for f in AUDIT_FORMATS)
+        raise ValueError(f"`--format` must be one of {valid}; got {args.format!r}.")
+    extra = [parse_rule(text, name="--rule") for text in args.rule or ()]
+    audit = rule_audit(_open_atlas(args), list(CLASSIC_RULES) + extra, methods=args.method,
+                       metrics=args.metric or METRICS, tols=_number_list(args.tol, "--tol"))
+    return _emit(audit.render(args.format), args.output)
+
+
+def _cmd_sheet(args):
+    """Write the printable PDF reference sheet."""
+    from atlas.sheets import write_sheet
+
+    print(write_sheet(_open_atlas(args), args.output, methods=args.method))
+    return 0
+
+
+def _cmd_wiki(args):
+    """Write the static wiki page (index.html, index.md and SVG charts) into a directory."""
+    from atlas.sheets import write_wiki
+
+    written = write_wiki(_open_atlas(args), args.output, methods=args.method)
+    print(written[-1])
+    return 0
+
+
+def _add_output_commands(commands):
+    """Register chart, table, rules, sheet and wiki."""
+
+    def atlas_option(sub):
+        sub.add_argument("--atlas", metavar="FILE", help="atlas file (default: the embedded one)")
+
+    chart = commands.add_parser("chart", help="draw an error map or a comparison of methods")
+    chart.add_argument("--method", default="normal_cc", help="approximation (normal_cc)")
+    chart.add_argument("--method2", help="the other method of --kind compare or gain")
+    chart.add_argument("--metric", default="interval", help="interval (default) or cdf")
+    chart.add_argument("--kind", default="map", help="map (default), compare, gain or best")
+    chart.add_argument("--p-scale", default="logit", help="p axis: logit (default) or linear")
+    atlas_option(chart)
+    chart.add_argument("-o", "--output", required=True, metavar="FILE",
+                       help="FILE.png (>= 1600 px wide), FILE.svg or FILE.pdf")  # fmt: skip
+    chart.set_defaults(handler=_cmd_chart)
+
+    table = commands.add_parser("table", help="the minimum n for each tolerance and p")
+    table.add_argument("--tol", default="0.01,0.005,0.001", help="tolerances (0.01,0.005,0.001)")
+    table.add_argument("--p", default="0.01,0.05,0.1,0.3,0.5", help="p values (0.01,...,0.5)")
+    table.add_argument("--method", default="normal_cc", help="approximation (normal_cc)")
+    table.add_argument("--metric", default="interval", help="interval (default) or cdf")
+    table.add_argument("--format", default="md", help="csv, md (default) or json")
+    atlas_option(table)
+    table.add_argument("-o", "--output", metavar="FILE", help="write FILE instead of printing")
+    table.set_defaults(handler=_cmd_table)
+
+    audit = commands.add_parser("rules", help="audit the rules of thumb (and yours) on the atlas")
+    audit.add_argument("--rule", action="append", metavar="EXPR",
+                       help="also audit EXPR, e.g. 'n*p*q >= 10' (repeatable)")  # fmt: skip
+    audit.add_argument("--method", action="append", help="a method (repeatable; default all)")
+    audit.add_argument("--metric", action="append", help="a metric (repeatable; default both)")
+    audit.add_argument("--tol", default="0.01,0.005,0.001", help="tolerances for the shares")
+    audit.add_argument("--format", default="md", help="md (default) or json")
+    atlas_option(audit)
+    audit.add_argument("-o", "--output", metavar="FILE", help="write FILE instead of printing")
+    audit.set_defaults(handler=_cmd_rules)
+
+    sheet = commands.add_parser("sheet", help="write the printable PDF reference sheet")
+    sheet.add_argument("--method", action="append",
+                       help="a method to map (repeatable; default normal_cc, edgeworth_cc)")
+    atlas_option(sheet)
+    sheet.add_argument("-o", "--output", required=True, metavar="FILE.pdf", help="the PDF file")
+    sheet.set_defaults(handler=_cmd_sheet)
+
+    wiki = commands.add_parser("wiki", help="write a static wiki page with SVG charts")
+    wiki.add_argument("--method", action="append",
+                      help="a method to map (repeatable; default normal_cc, edgeworth_cc)")
+    atlas_option(wiki)
+    wiki.add_argument("-o", "--output", required=True, metavar="DIR", help="the page's directory")
+    wiki.set_defaults(handler=_cmd_wiki)
+
+
 def _build_parser():
     """The argument parser, with one subparser per command."""
     parser = argparse.ArgumentParser(
@@ -53,6 +518,9 @@ def _build_parser():
     grid.add_argument("--n", default=DEFAULT_N_SPEC, help="n axis spec (default: the atlas's)")
     grid.add_argument("--p", default=DEFAULT_P_SPEC, help="p axis spec (default: the atlas's)")
     grid.set_defaults(handler=_cmd_grid)
+    _add_query_commands(commands)
+    _add_build_commands(commands)
+    _add_output_commands(commands)
     return parser
 
 

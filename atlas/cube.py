@@ -16,6 +16,7 @@ Fletcher-32 checksums on every chunk, so a damaged chunk is refused when it is r
 
 import hashlib
 import os
+from datetime import datetime, timezone
 from pathlib import Path
 
 import numpy as np
@@ -166,19 +167,36 @@ def data_checksum(ds):
     return "sha256:" + digest.hexdigest()
 
 
-def compact(ds, precision):
+def compact(ds, precision="float32"):
     """Return ``ds`` with its error variables stored at ``precision`` and the checksum redone.
 
     Parameters
     ----------
     ds : xarray.Dataset
         An atlas Dataset.
-    precision : {"float64", "float32"}
-        float32 keeps 7 significant digits and halves the size of the error variables.
+    precision : {"float32", "float64"}, optional
+        float32 (the default) keeps 7 significant digits and halves the size of the error
+        variables; the end points ``interval_lo`` and ``interval_hi`` stay exact.
 
     Returns
     -------
     xarray.Dataset
+        A copy with ``error_precision`` saying how the errors are stored, a ``history`` line
+        for the conversion and a new ``checksum``.
+
+    Raises
+    ------
+    ValueError
+        If ``precision`` is not one of the two.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> ds = make_dataset([10], [0.5], ["normal_cc"], {name: np.zeros((1, 1, 1)) for name in
+    ...     DATA_VARIABLES}, n_spec="10", p_spec="0.5", history="example", tail_tolerance=1e-17)
+    >>> small = compact(ds, "float32")
+    >>> str(small["interval_error"].dtype), small.attrs["error_precision"]
+    ('float32', 'float32 (7 significant digits)')
     """
     if precision not in PRECISIONS:
         valid = ", ".join(repr(x) for x in PRECISIONS)
@@ -188,9 +206,17 @@ def compact(ds, precision):
         out[name] = ds[name].astype(precision)
         out[name].attrs = dict(ds[name].attrs)
     out.attrs = dict(ds.attrs)
-    out.attrs["error_precision"] = (
-        "float64" if precision == "float64" else "float32 (7 significant digits)"
-    )
+    before = np.dtype(ds["interval_error"].dtype)
+    if precision == "float32":
+        out.attrs["error_precision"] = "float32 (7 significant digits)"
+    elif before != np.float32:  # widening float32 values back to float64 adds no digits
+        out.attrs["error_precision"] = "float64"
+    if np.dtype(precision) != before:
+        stamp = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+        out.attrs["history"] = (
+            f"{ds.attrs.get('history', '')}\n{stamp} approx-atlas {__version__} compact: "
+            f"interval_error and cdf_error stored as {precision}"
+        ).strip()
     out.attrs["checksum"] = data_checksum(out)
     return out
 
@@ -228,7 +254,9 @@ def save_atlas(ds, path, *, overwrite=True):
     if missing:
         raise ValueError(f"`ds` is not an atlas Dataset: it lacks {', '.join(missing)}.")
     if path.exists() and not overwrite:
-        raise FileExistsError(f"`path` exists: {str(path)!r}; pass overwrite (--force) to replace it.")
+        raise FileExistsError(
+            f"`path` exists: {str(path)!r}; pass overwrite (--force) to replace it."
+        )
     if not path.parent.is_dir():
         raise FileNotFoundError(f"`path` is in a directory that does not exist: {str(path)!r}.")
     chunks = (1, min(ds.sizes["n"], 256), ds.sizes["p"])
@@ -289,6 +317,11 @@ def load_dataset(path, *, verify=False):
         ) from None
     try:
         schema = ds.attrs.get("atlas_schema")
+        if schema is None:
+            raise ValueError(
+                f"`path` is NetCDF but not an atlas file (it has no 'atlas_schema' attribute): "
+                f"{str(path)!r}."
+            )
         if schema != SCHEMA_VERSION:
             raise ValueError(
                 f"`path` holds an atlas of schema version {schema!r}; this version of approx-atlas "
@@ -296,20 +329,103 @@ def load_dataset(path, *, verify=False):
             )
         missing = [v for v in (*DATA_VARIABLES, "method", "n", "p") if v not in ds.variables]
         if missing:
-            raise ValueError(f"`path` lacks the atlas variables {', '.join(missing)}: {str(path)!r}.")
+            raise ValueError(
+                f"`path` lacks the atlas variables {', '.join(missing)}: {str(path)!r}."
+            )
         if verify:
-            try:
-                ds.load()
-            except Exception as err:
-                raise ValueError(
-                    f"`path` is corrupt: its data cannot be read: {str(path)!r} ({err})."
-                ) from None
-            if data_checksum(ds) != ds.attrs.get("checksum"):
-                raise ValueError(f"`path` is corrupt: its checksum does not match: {str(path)!r}.")
+            verify_checksum(ds, path)
     except Exception:
         ds.close()
         raise
     return ds
+
+
+def verify_checksum(ds, path=None):
+    """Read every value of an atlas and compare its checksum with the stored one.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        An atlas Dataset, in memory or opened from a file (then every value is read).
+    path : str or os.PathLike, optional
+        The file it came from, named in the error message.
+
+    Returns
+    -------
+    str
+        The checksum, ``"sha256:<hex digest>"``.
+
+    Raises
+    ------
+    ValueError
+        If a value cannot be read (a damaged HDF5 chunk fails its Fletcher-32 check), the
+        stored checksum is missing, or it differs from :func:`data_checksum` of the values.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> ds = make_dataset([10], [0.5], ["normal_cc"], {name: np.zeros((1, 1, 1)) for name in
+    ...     DATA_VARIABLES}, n_spec="10", p_spec="0.5", history="example", tail_tolerance=1e-17)
+    >>> verify_checksum(ds) == ds.attrs["checksum"]
+    True
+    """
+    where = f"`path` {str(path)!r}" if path is not None else "the atlas"
+    try:
+        ds.load()
+    except Exception as err:  # netCDF4 raises RuntimeError (HDF error) for a damaged chunk
+        raise ValueError(f"{where} is corrupt: its data cannot be read ({err}).") from None
+    stored = ds.attrs.get("checksum")
+    if stored is None:
+        raise ValueError(f"{where} has no checksum attribute to verify.")
+    actual = data_checksum(ds)
+    if actual != stored:
+        raise ValueError(
+            f"{where} is corrupt: its checksum does not match (stored {stored}, data {actual})."
+        )
+    return actual
+
+
+def describe_dataset(ds, path=None):
+    """Lines of text describing an atlas: grid, methods, variables and provenance.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        An atlas Dataset.
+    path : str or os.PathLike, optional
+        Its file, whose name and size head the description.
+
+    Returns
+    -------
+    list of str
+        What ``approx-atlas inspect`` prints before it verifies the checksum.
+    """
+    from atlas.grid import describe_grid
+
+    lines = []
+    if path is not None:
+        size = Path(path).stat().st_size
+        lines.append(f"file: {path} ({size / 1e6:.2f} MB, {size} bytes)")
+    attrs = ds.attrs
+    lines.append(f"title: {attrs.get('title', '')}")
+    lines.append(f"grid: {describe_grid(ds['n'].values, ds['p'].values)}")
+    lines.append(f"n_spec: {attrs.get('n_spec', '')}")
+    lines.append(f"p_spec: {attrs.get('p_spec', '')}")
+    methods = [str(m) for m in ds["method"].values]
+    lines.append(f"methods ({len(methods)}): {', '.join(methods)}")
+    lines.append("variables:")
+    for name in DATA_VARIABLES:
+        var = ds[name]
+        lines.append(
+            f"  {name}({', '.join(var.dims)}) {var.dtype}, units {var.attrs.get('units', '?')!r}: "
+            f"{var.attrs.get('long_name', '')}"
+        )
+    for key in ("source", "history", "Conventions", "atlas_schema", "error_precision",
+                "tail_tolerance", "references", "comment"):  # fmt: skip
+        if key in attrs:  # a multi-line history continues under its first line
+            text = str(attrs[key]).replace("\n", "\n" + " " * (len(key) + 2))
+            lines.extend(f"{key}: {text}".split("\n"))
+    return lines
 
 
 def default_path():

@@ -1,0 +1,117 @@
+"""Build the embedded default atlas, ``atlas/data/default_atlas.nc``.
+
+The atlas covers the default grid (``atlas.grid.DEFAULT_N_SPEC`` x ``DEFAULT_P_SPEC``), every
+method of ``atlas.METHODS`` and both metrics (``interval_error`` and ``cdf_error`` are computed
+together), with 2 worker processes. The errors are stored as float32 (7 significant digits,
+``atlas.cube.compact``); the worst-interval ends stay exact. The file is written beside the
+target and renamed over it only when complete and under the size limit.
+
+The data are reproducible: a cell depends only on the engine and the grid, never on the worker
+count or the chunking, so the checksum printed at the end is the same on every rebuild until
+the engine's results change. Only then rebuild and commit the file: every copy stays in the
+repository's history.
+
+Usage::
+
+    python build_scripts/build_default_atlas.py [--workers 2] [--output PATH]
+
+It prints the number of cells, cells per second, the total time, the peak memory (resident set
+of this process and of the largest worker, from ``resource.getrusage``), the file size and the
+checksum; it exits with status 1, writing nothing, if the file would exceed ``--max-mb``.
+"""
+
+import argparse
+import os
+import resource
+import sys
+import time
+from pathlib import Path
+
+# Build this checkout's atlas, not that of an installed copy.
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+from atlas import METHODS, cube, grid  # noqa: E402
+from atlas.build import build_atlas  # noqa: E402
+
+MAX_MB = 25.0  # the package-data limit of the issue
+
+
+def _peak_mb():
+    """Peak resident set size of this process and of its largest finished child, in MB."""
+    # ru_maxrss is in kilobytes on Linux.
+    own = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    child = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
+    return own, child
+
+
+def _cpu_seconds():
+    """CPU time (user + system) used so far by this process and by its finished children."""
+    own = resource.getrusage(resource.RUSAGE_SELF)
+    children = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return own.ru_utime + own.ru_stime, children.ru_utime + children.ru_stime
+
+
+def main(argv=None):
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--workers", type=int, default=2, help="worker processes (2)")
+    parser.add_argument("--output", type=Path, default=cube.default_path(), help="the file")
+    parser.add_argument("--max-mb", type=float, default=MAX_MB, help="size limit in MB (25)")
+    args = parser.parse_args(argv)
+
+    previous = None
+    if args.output.exists():
+        try:
+            previous = cube.load_dataset(args.output).attrs.get("checksum")
+        except (OSError, ValueError):
+            previous = "unreadable"
+    n, p = grid.default_n(), grid.default_p()
+    print(f"grid: {grid.describe_grid(n, p)}; {len(METHODS)} methods; {args.workers} workers")
+    print(f"load average at start: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
+    started = time.perf_counter()
+    ds = build_atlas(grid.DEFAULT_N_SPEC, grid.DEFAULT_P_SPEC, METHODS, workers=args.workers)
+    computed = time.perf_counter() - started
+    ds = cube.compact(ds, "float32")
+    args.output.parent.mkdir(parents=True, exist_ok=True)
+    staging = args.output.with_name(f".{args.output.name}.build-{os.getpid()}.nc")
+    try:
+        cube.save_atlas(ds, staging)
+        size = staging.stat().st_size
+        if size > args.max_mb * 1e6:
+            print(
+                f"error: the atlas is {size / 1e6:.2f} MB, over the {args.max_mb:g} MB limit; "
+                f"nothing written to {args.output}",
+                file=sys.stderr,
+            )
+            return 1
+        os.replace(staging, args.output)
+    finally:
+        if staging.exists():
+            staging.unlink()
+    total = time.perf_counter() - started
+    cells = ds.sizes["method"] * ds.sizes["n"] * ds.sizes["p"]
+    points = ds.sizes["n"] * ds.sizes["p"]
+    own, child = _peak_mb()
+    checksum = ds.attrs["checksum"]
+    print(f"cells: {cells} ({ds.sizes['method']} methods x {points} (n, p) points)")
+    print(f"compute time: {computed:.1f} s; {cells / computed:.0f} cells/s, "
+          f"{points / computed:.0f} (n, p) points/s")  # fmt: skip
+    print(f"total time (compute, compact, write): {total:.1f} s")
+    own_cpu, worker_cpu = _cpu_seconds()
+    # Other processes share the cores: the CPU time shows what the build itself needed. On
+    # idle cores the workers' time divides among them and this process's adds on top of it.
+    print(f"CPU time: workers {worker_cpu:.1f} s, this process {own_cpu:.1f} s; on "
+          f"{args.workers} otherwise idle cores about "
+          f"{worker_cpu / args.workers + own_cpu:.0f} s")  # fmt: skip
+    print(f"peak memory: this process {own:.0f} MB, largest worker {child:.0f} MB, "
+          f"at most {own + args.workers * child:.0f} MB together")  # fmt: skip
+    print(f"file: {args.output} ({size / 1e6:.2f} MB, {size} bytes)")
+    print(f"checksum: {checksum}")
+    if previous is not None:
+        same = "the same as" if previous == checksum else "DIFFERENT from"
+        print(f"checksum is {same} the previous file's ({previous})")
+    print(f"load average at end: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

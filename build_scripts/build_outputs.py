@@ -1,0 +1,105 @@
+"""Regenerate ``outputs/``: the charts, tables, rule audit, reference sheet and wiki page.
+
+Everything is drawn from the embedded default atlas (``atlas/data/default_atlas.nc``) unless
+``--atlas`` names another file. ``outputs/`` is itself the wiki page's directory: ``index.html``
+and ``index.md`` link the SVG charts beside them by relative names, so the directory can be
+published or opened as it is. Beside them:
+
+- ``*.png``: the same charts as PNG, 2000 pixels wide (10 in at 200 dpi; the comparison 3000);
+- ``min_n_<method>_<metric>.csv`` and ``.md``: the minimum n for each tolerance and p;
+- ``rules_audit.md`` and ``.json``: the rules of thumb audited for every method and metric;
+- ``reference_sheet.pdf``: the printable multi-page sheet.
+
+The files carry no creation date (the charts show the atlas's build date), so a rerun on the
+same atlas rewrites the same bytes and the repository sees no change.
+
+Usage::
+
+    python build_scripts/build_outputs.py [--atlas FILE] [--output DIR]
+"""
+
+import argparse
+import sys
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))  # this checkout's atlas, not an installed copy
+
+from atlas import charts, sheets  # noqa: E402
+from atlas.engine import METRICS  # noqa: E402
+from atlas.query import open_atlas  # noqa: E402
+
+HEADLINE = charts.HEADLINE_METHODS  # normal_cc, edgeworth_cc
+
+
+def _charts(atlas):
+    """(file stem, figure factory) for each chart: the wiki's and a few more."""
+    a, b = HEADLINE
+    items = []
+    for metric in METRICS:
+        for method in HEADLINE:
+            items.append(
+                (
+                    f"map_{method}_{metric}",
+                    lambda m=method, x=metric: charts.error_map(atlas, method=m, metric=x),
+                )
+            )
+    items += [
+        (f"map_{a}_interval_linear",
+         lambda: charts.error_map(atlas, method=a, p_scale="linear")),
+        (f"compare_{a}_{b}_interval",
+         lambda: charts.compare_map(atlas, method=a, method2=b)),
+        (f"gain_{b}_over_{a}_interval", lambda: charts.gain_map(atlas, method=b, method2=a)),
+        ("best_interval", lambda: charts.best_method_map(atlas)),
+        ("best_cdf", lambda: charts.best_method_map(atlas, metric="cdf")),
+    ]  # fmt: skip
+    return items
+
+
+def main(argv=None):
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--atlas", type=Path, help="atlas file (default: the embedded one)")
+    parser.add_argument("--output", type=Path, default=ROOT / "outputs", help="the directory")
+    args = parser.parse_args(argv)
+
+    started = time.perf_counter()
+    atlas = open_atlas(args.atlas)
+    for method in HEADLINE:
+        if method not in atlas.methods:
+            parser.error(f"the atlas lacks the headline method {method!r}")
+    out = args.output
+    out.mkdir(parents=True, exist_ok=True)
+    written = []
+
+    # The wiki page first: index.html, index.md and its SVG charts.
+    written += sheets.write_wiki(atlas, out)
+    for stem, make in _charts(atlas):
+        fig = make()
+        written.append(charts.save_figure(fig, out / f"{stem}.png"))
+        svg = out / f"{stem}.svg"
+        if svg not in written:
+            written.append(charts.save_figure(fig, svg))
+
+    for method in HEADLINE:
+        for metric in METRICS:
+            table = sheets.threshold_table(atlas, method=method, metric=metric)
+            for fmt in ("csv", "md"):
+                path = out / f"min_n_{method}_{metric}.{fmt}"
+                written.append(sheets.save_text(path, table.render(fmt)))
+
+    audit = sheets.rule_audit(atlas)
+    written.append(sheets.save_text(out / "rules_audit.md", audit.to_markdown()))
+    written.append(sheets.save_text(out / "rules_audit.json", audit.to_json()))
+    written.append(sheets.write_sheet(atlas, out / "reference_sheet.pdf"))
+
+    for path in written:
+        print(f"{path.stat().st_size / 1024:9.1f} KB  {path.relative_to(out.parent)}")
+    total = sum(p.stat().st_size for p in written) / 1024**2
+    print(f"{len(written)} files, {total:.1f} MB, in {time.perf_counter() - started:.0f} s "
+          f"from {atlas.path}")  # fmt: skip
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,395 @@
+"""Tests for atlas.cube: the Dataset layout, NetCDF round trips, checksums, refusing bad files.
+
+Expected values are the engine's own (atlas.worst_error, atlas.engine.evaluate), whose accuracy
+tests/test_engine.py checks against mpmath; here the cube must hold exactly what the engine
+computes, so the comparisons are exact for float64 storage and to float32 rounding otherwise.
+"""
+
+import os
+
+import netCDF4
+import numpy as np
+import pytest
+import xarray as xr
+from numpy.testing import assert_allclose, assert_array_equal
+from scipy import stats
+
+import atlas
+from atlas import cube
+from atlas.approximations import approximate_cdf
+from atlas.engine import TAIL_TOL, evaluate
+
+# A cell of the small atlas (tests/conftest.py) and its grid.
+SAMPLE_CELLS = [
+    (1, 0.01, "normal_cc"),
+    (7, 0.5, "edgeworth_cc"),
+    (40, 0.9, "poisson"),
+    (50, 0.3, "camp_paulson"),
+    (5000, 0.05, "peizer_pratt"),
+    (5000, 0.5, "edgeworth2_cc"),
+    (186, 0.7, "normal"),
+]
+
+
+def _cell(ds, name, n, p, method):
+    return ds[name].sel({"method": method, "n": n, "p": p}).values.item()
+
+
+@pytest.fixture
+def tiny():
+    """A tiny float64 atlas built here: 2 methods x 5 n x 3 p."""
+    return atlas.build_atlas(n="1:3,100,1000", p="0.1,0.5,0.8", methods="normal_cc,poisson",
+                             progress=False)  # fmt: skip
+
+
+# ---- layout of the Dataset ---------------------------------------------------------------------
+
+
+def test_layout(small_atlas):
+    ds = small_atlas["dataset"]
+    assert ds["interval_error"].dims == ("method", "n", "p")
+    assert tuple(ds["method"].values) == atlas.METHODS
+    assert ds["n"].dtype == np.int64 and ds["p"].dtype == np.float64
+    for name in ("interval_error", "cdf_error"):
+        assert ds[name].dtype == np.float64
+    for name in ("interval_lo", "interval_hi"):
+        assert ds[name].dtype == np.int64
+    for name in cube.DATA_VARIABLES:
+        attrs = ds[name].attrs
+        assert set(attrs) >= {"long_name", "units", "description"}
+        assert attrs["units"] == "1"
+    assert "max D - min D" in ds["interval_error"].attrs["description"]
+    keys = ["title", "Conventions", "source", "history", "references", "comment", "n_spec",
+            "p_spec", "atlas_schema", "tail_tolerance", "error_precision", "checksum"]  # fmt: skip
+    assert set(keys) <= set(ds.attrs)
+    assert ds.attrs["Conventions"].startswith("CF-")
+    assert ds.attrs["source"] == f"approx-atlas {atlas.__version__}"
+    assert ds.attrs["atlas_schema"] == cube.SCHEMA_VERSION
+    assert ds.attrs["comment"] == cube.CAUTION
+    assert ds.attrs["tail_tolerance"] == TAIL_TOL
+    assert ds.attrs["error_precision"] == "float64"
+
+
+@pytest.mark.parametrize(("n", "p", "method"), SAMPLE_CELLS)
+def test_values_equal_the_engine(small_atlas, n, p, method):
+    # The cube is the engine's output, cell for cell and bit for bit.
+    ds = small_atlas["dataset"]
+    assert _cell(ds, "interval_error", n, p, method) == atlas.worst_error(n, p, method=method)
+    assert _cell(ds, "cdf_error", n, p, method) == atlas.worst_error(
+        n, p, method=method, metric="cdf"
+    )
+    # The worst interval: the engine's window is the union of every method's, so [a, b] is
+    # compared with evaluate over the same methods. (With one method alone an end lying in a
+    # flat tail, where D differs from 0 by less than the tail tolerance, may come out elsewhere.)
+    ev = evaluate(n, [p], methods=atlas.METHODS)
+    i = atlas.METHODS.index(method)
+    a, b = _cell(ds, "interval_lo", n, p, method), _cell(ds, "interval_hi", n, p, method)
+    assert (a, b) == (ev.lo[i, 0], ev.hi[i, 0])
+    assert ev.interval[i, 0] == _cell(ds, "interval_error", n, p, method)
+    # ... and the interval attains the stored error: |P(a <= X <= b) - (G(b) - G(a-1))|.
+    exact = stats.binom.cdf(b, n, p) - stats.binom.cdf(a - 1, n, p)
+    approx = np.diff(approximate_cdf(np.array([a - 1, b]), n, p, method))[0]
+    # Four CDF values near 1 differenced: a few float64 ulps of 1 (2.2e-16 each), so 1e-14.
+    assert_allclose(abs(exact - approx), _cell(ds, "interval_error", n, p, method), atol=1e-14)
+
+
+def test_known_cell():
+    # W(10, 1/2) = 0.005372 for normal_cc on [2, 8] (REFERENCES.md fact 1, computed value).
+    ds = atlas.build_atlas(n="10", p="0.5", methods="normal_cc", progress=False)
+    assert_allclose(_cell(ds, "interval_error", 10, 0.5, "normal_cc"), 0.005372, atol=5e-7)
+    assert (_cell(ds, "interval_lo", 10, 0.5, "normal_cc"),
+            _cell(ds, "interval_hi", 10, 0.5, "normal_cc")) == (2, 8)  # fmt: skip
+
+
+# ---- NetCDF round trips ------------------------------------------------------------------------
+
+
+def test_round_trip_float64(small_atlas):
+    ds = small_atlas["dataset"]
+    with cube.load_dataset(small_atlas["float64"], verify=True) as back:
+        xr.testing.assert_identical(back, ds)
+        assert back["interval_error"].dtype == np.float64
+
+
+def test_round_trip_float32(small_atlas):
+    ds = small_atlas["dataset"]
+    small = cube.compact(ds, "float32")
+    with cube.load_dataset(small_atlas["float32"], verify=True) as back:
+        xr.testing.assert_identical(back.drop_attrs(), small.drop_attrs())
+        # Attributes too, except the history line's time stamp of the compaction.
+        for key in set(small.attrs) - {"history", "checksum"}:
+            assert back.attrs[key] == small.attrs[key], key
+        assert back.attrs["checksum"] == small.attrs["checksum"]  # the data are the same
+        assert back["interval_error"].dtype == np.float32
+        assert back.attrs["error_precision"] == "float32 (7 significant digits)"
+        # float32 rounding: relative error at most 2^-24 (IEEE 754 single precision).
+        assert_allclose(back["interval_error"], ds["interval_error"], rtol=2.0**-24, atol=0)
+        assert_array_equal(back["interval_lo"], ds["interval_lo"])
+        assert_array_equal(back["interval_hi"], ds["interval_hi"])
+
+
+def test_round_trip_float32_identical(tmp_path, tiny):
+    small = cube.compact(tiny)
+    path = cube.save_atlas(small, tmp_path / "t32.nc")
+    with cube.load_dataset(path) as back:
+        xr.testing.assert_identical(back, small)
+
+
+def test_compact_marks_history_and_checksum(tiny):
+    small = cube.compact(tiny, "float32")
+    assert small.attrs["history"].startswith(tiny.attrs["history"] + "\n")
+    assert "compact: interval_error and cdf_error stored as float32" in small.attrs["history"]
+    assert small.attrs["checksum"] != tiny.attrs["checksum"]
+    assert small.attrs["checksum"] == cube.data_checksum(small)
+    assert tiny["interval_error"].dtype == np.float64  # the original is untouched
+    same = cube.compact(tiny, "float64")
+    assert same.attrs["checksum"] == tiny.attrs["checksum"]
+    assert same.attrs["history"] == tiny.attrs["history"]
+
+
+def test_compact_bad_precision(tiny):
+    with pytest.raises(ValueError, match=r"`precision` must be one of 'float64', 'float32'; "
+                                         r"got 'float16'\."):  # fmt: skip
+        cube.compact(tiny, "float16")
+
+
+def test_plain_netcdf4(small_atlas):
+    # Readable without xarray: dimensions, attributes and a value equal to the engine's.
+    ds = small_atlas["dataset"]
+    with netCDF4.Dataset(small_atlas["float64"]) as f:
+        assert {name: len(dim) for name, dim in f.dimensions.items()} == {
+            "method": ds.sizes["method"],
+            "n": ds.sizes["n"],
+            "p": ds.sizes["p"],
+        }
+        var = f.variables["interval_error"]
+        assert var.dimensions == ("method", "n", "p")
+        assert var.dtype == np.float64
+        assert var.units == "1"
+        assert var.long_name == "worst-case error of interval probabilities"
+        assert "max D - min D" in var.description
+        assert f.variables["interval_lo"].dtype == np.int64
+        assert f.getncattr("atlas_schema") == cube.SCHEMA_VERSION
+        assert f.getncattr("Conventions").startswith("CF-")
+        methods = list(f.variables["method"][:])
+        n = f.variables["n"][:]
+        p = f.variables["p"][:]
+        i, j, k = methods.index("edgeworth_cc"), int(np.flatnonzero(n == 50)[0]), 2
+        assert p[k] == 0.1
+        value = var[i, j, k]
+        assert var.filters()["zlib"] and var.filters()["fletcher32"]
+    assert value == atlas.worst_error(50, 0.1, method="edgeworth_cc")
+
+
+# ---- checksum ----------------------------------------------------------------------------------
+
+
+def test_checksum_changes_with_one_value(tiny):
+    base = cube.data_checksum(tiny)
+    assert base == tiny.attrs["checksum"]
+    assert base.startswith("sha256:") and len(base) == 7 + 64
+    for name in cube.DATA_VARIABLES:
+        changed = tiny.copy(deep=True)
+        values = changed[name].values
+        values[1, 2, 0] = values[1, 2, 0] + (1 if values.dtype.kind == "i" else 1e-15)
+        assert cube.data_checksum(changed) != base, name
+    relabelled = tiny.assign_coords(method=["poisson", "normal_cc"])
+    assert cube.data_checksum(relabelled) != base
+
+
+def test_verify_refuses_a_changed_value(tmp_path, tiny):
+    changed = tiny.copy(deep=True)
+    changed["cdf_error"].values[0, 0, 0] *= 1.5  # the stored checksum is now stale
+    path = cube.save_atlas(changed, tmp_path / "changed.nc")
+    with cube.load_dataset(path) as ds:  # opening alone does not read the data
+        assert ds.sizes["n"] == 5
+    with pytest.raises(ValueError, match=r"is corrupt: its checksum does not match"):
+        cube.load_dataset(path, verify=True)
+    with pytest.raises(ValueError, match=r"^the atlas is corrupt: its checksum does not match"):
+        cube.verify_checksum(changed)
+
+
+def test_verify_checksum_missing():
+    ds = atlas.build_atlas(n="5", p="0.5", methods="normal", progress=False)
+    del ds.attrs["checksum"]
+    with pytest.raises(ValueError, match=r"has no checksum attribute"):
+        cube.verify_checksum(ds)
+
+
+# ---- refusing files that are not atlases of this schema ----------------------------------------
+
+
+def test_missing_file(tmp_path):
+    with pytest.raises(FileNotFoundError, match=r"`path` names no atlas file: '.*nope\.nc'"):
+        cube.load_dataset(tmp_path / "nope.nc")
+
+
+def test_text_file_named_nc(tmp_path):
+    path = tmp_path / "notes.nc"
+    path.write_text("an inspection lot of 80 fasteners\n")
+    with pytest.raises(ValueError, match=r"`path` is not a readable atlas file: '.*notes\.nc'"):
+        cube.load_dataset(path)
+
+
+def test_truncated_file(tmp_path, small_atlas):
+    data = small_atlas["float64"].read_bytes()
+    path = tmp_path / "truncated.nc"
+    path.write_bytes(data[: len(data) // 2])
+    with pytest.raises(ValueError, match=r"`path` is not a readable atlas file"):
+        cube.load_dataset(path, verify=True)
+
+
+def test_overwritten_middle(tmp_path, small_atlas):
+    # Garbage over the middle third: refused on opening (damaged metadata) or when the data
+    # are read (HDF5's Fletcher-32 check on each chunk, then the checksum).
+    data = bytearray(small_atlas["float64"].read_bytes())
+    third = len(data) // 3
+    data[third : 2 * third] = bytes((37 * i + 11) % 256 for i in range(third))
+    path = tmp_path / "damaged.nc"
+    path.write_bytes(bytes(data))
+    with pytest.raises(ValueError, match=r"is not a readable atlas file|is corrupt"):
+        cube.load_dataset(path, verify=True)
+
+
+def test_a_few_bytes_changed_in_data(tmp_path, tiny):
+    # Without compression a chunk's bytes are findable: change one byte of interval_error.
+    path = tmp_path / "plain.nc"
+    encoding = {name: {"zlib": False, "fletcher32": True, "contiguous": False,
+                       "chunksizes": (1, 5, 3)} for name in cube.DATA_VARIABLES}  # fmt: skip
+    tiny.to_netcdf(path, engine="netcdf4", encoding=encoding)
+    data = bytearray(path.read_bytes())
+    needle = np.ascontiguousarray(tiny["interval_error"].values[0]).tobytes()
+    at = data.find(needle)
+    assert at > 0
+    data[at + 9] ^= 0xFF
+    path.write_bytes(bytes(data))
+    with pytest.raises(ValueError, match=r"is corrupt: its data cannot be read"):
+        cube.load_dataset(path, verify=True)
+
+
+def test_wrong_schema_version(tmp_path, tiny):
+    other = tiny.copy()
+    other.attrs = dict(tiny.attrs, atlas_schema="999")
+    path = cube.save_atlas(other, tmp_path / "future.nc")
+    with pytest.raises(ValueError, match=r"atlas of schema version '999'; this version of "
+                                         r"approx-atlas reads schema '1'"):  # fmt: skip
+        cube.load_dataset(path)
+
+
+def test_netcdf_that_is_not_an_atlas(tmp_path):
+    path = tmp_path / "other.nc"
+    xr.Dataset({"x": ("t", np.arange(3.0))}).to_netcdf(path, engine="netcdf4")
+    with pytest.raises(ValueError, match=r"NetCDF but not an atlas file"):
+        cube.load_dataset(path)
+
+
+def test_missing_variable(tmp_path, tiny):
+    path = tmp_path / "partial.nc"
+    tiny.drop_vars("interval_hi").to_netcdf(path, engine="netcdf4")
+    with pytest.raises(ValueError, match=r"lacks the atlas variables interval_hi"):
+        cube.load_dataset(path)
+
+
+def test_open_atlas_refuses_the_same_way(tmp_path):
+    path = tmp_path / "notes.nc"
+    path.write_text("not NetCDF")
+    with pytest.raises(ValueError, match=r"not a readable atlas file"):
+        atlas.open_atlas(path)
+
+
+# ---- atomic writes -----------------------------------------------------------------------------
+
+
+def _leftovers(folder):
+    return sorted(p.name for p in folder.iterdir())
+
+
+def test_save_refuses_existing_without_overwrite(tmp_path, tiny):
+    path = cube.save_atlas(tiny, tmp_path / "a.nc")
+    before = path.read_bytes()
+    with pytest.raises(FileExistsError, match=r"`path` exists: '.*a\.nc'; pass overwrite"):
+        cube.save_atlas(tiny, path, overwrite=False)
+    assert path.read_bytes() == before
+
+
+def test_save_into_missing_directory(tmp_path, tiny):
+    with pytest.raises(FileNotFoundError, match=r"directory that does not exist"):
+        cube.save_atlas(tiny, tmp_path / "no" / "a.nc")
+
+
+def test_save_refuses_a_non_atlas(tmp_path, tiny):
+    with pytest.raises(ValueError, match=r"`ds` is not an atlas Dataset: it lacks interval_lo"):
+        cube.save_atlas(tiny.drop_vars("interval_lo"), tmp_path / "a.nc")
+    assert _leftovers(tmp_path) == []
+
+
+@pytest.mark.parametrize("error", [OSError("disk full"), KeyboardInterrupt()])
+def test_failure_mid_write_leaves_nothing(tmp_path, tiny, monkeypatch, error):
+    # to_netcdf writes part of the temporary file, then fails.
+    def failing(self, path, *args, **kwargs):
+        with open(path, "wb") as f:
+            f.write(b"\x89HDF\r\n\x1a\n" + bytes(1000))
+        raise error
+
+    monkeypatch.setattr(xr.Dataset, "to_netcdf", failing)
+    with pytest.raises(type(error)):
+        cube.save_atlas(tiny, tmp_path / "a.nc")
+    assert _leftovers(tmp_path) == []
+
+
+def test_failure_mid_write_keeps_the_old_file(tmp_path, tiny, monkeypatch):
+    path = cube.save_atlas(tiny, tmp_path / "a.nc")
+    before = path.read_bytes()
+    real = xr.Dataset.to_netcdf
+
+    def failing(self, target, *args, **kwargs):
+        real(self, target, *args, **kwargs)
+        raise OSError("failed after writing")
+
+    monkeypatch.setattr(xr.Dataset, "to_netcdf", failing)
+    with pytest.raises(OSError, match="failed after writing"):
+        cube.save_atlas(cube.compact(tiny), path)
+    assert path.read_bytes() == before
+    assert _leftovers(tmp_path) == ["a.nc"]
+
+
+def test_save_returns_path_and_overwrites(tmp_path, tiny):
+    path = cube.save_atlas(tiny, str(tmp_path / "a.nc"))
+    assert path == tmp_path / "a.nc"
+    cube.save_atlas(cube.compact(tiny), path)  # overwrite=True is the default
+    with cube.load_dataset(path) as back:
+        assert back["interval_error"].dtype == np.float32
+    assert _leftovers(tmp_path) == ["a.nc"]
+
+
+# ---- describe_dataset (what `approx-atlas inspect` prints) -------------------------------------
+
+
+def test_describe_dataset(small_atlas):
+    path = small_atlas["float32"]
+    with cube.load_dataset(path) as ds:
+        lines = cube.describe_dataset(ds, path)
+    text = "\n".join(lines)
+    assert lines[0] == f"file: {path} ({os.path.getsize(path) / 1e6:.2f} MB, " \
+                       f"{os.path.getsize(path)} bytes)"  # fmt: skip
+    # 40 + 8 n values (1:40 and log:50:5000:8) and 7 p values: the conftest grid.
+    assert "grid: n: 48 values from 1 to 5000; p: 7 values from 0.01 to 0.9; 336 (n, p) points" \
+        in lines  # fmt: skip
+    assert f"methods (7): {', '.join(atlas.METHODS)}" in lines
+    assert "  interval_error(method, n, p) float32, units '1': worst-case error of interval " \
+           "probabilities" in lines  # fmt: skip
+    assert (
+        "  interval_lo(method, n, p) int64, units '1': lower end a of the worst interval" in lines
+    )
+    for key in ("source", "history", "Conventions", "atlas_schema", "error_precision"):
+        assert f"\n{key}: " in text, key
+    assert "error_precision: float32 (7 significant digits)" in lines
+    # The compact copy's second history line is indented under the first.
+    second = lines[[line.startswith("history: ") for line in lines].index(True) + 1]
+    assert second.startswith(" " * len("history: ")) and " compact: " in second
+
+
+def test_evaluate_is_the_engine_behind_worst_error():
+    # The sampled-cell checks above use worst_error; it and evaluate agree (one n, many p).
+    ev = evaluate(50, [0.1, 0.3], methods=("camp_paulson",))
+    assert ev.interval[0, 1] == atlas.worst_error(50, 0.3, method="camp_paulson")

@@ -1,0 +1,115 @@
+"""Tests of the embedded default atlas, atlas/data/default_atlas.nc.
+
+It is rebuilt by build_scripts/build_default_atlas.py. The expected values are recomputed here
+with the engine (whose accuracy tests/test_engine.py checks against mpmath): the stored errors
+are float32, so they agree to float32 rounding, and the worst-interval ends exactly.
+"""
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose, assert_array_equal
+
+import atlas
+from atlas import cube, grid
+from atlas.engine import evaluate
+
+# Round values of p written out by hand (the mirrors as decimals), independent of atlas.grid.
+ROUND_P = [0.0001, 0.0002, 0.0005, 0.001, 0.002, 0.005, 0.01, 0.02, 0.025, 0.05, 0.1, 0.15, 0.2,
+           0.25, 0.3, 0.35, 0.4, 0.45, 0.5, 0.55, 0.6, 0.65, 0.7, 0.75, 0.8, 0.85, 0.9, 0.95, 0.975,
+           0.98, 0.99, 0.995, 0.998, 0.999, 0.9995, 0.9998, 0.9999]  # fmt: skip
+SAMPLES = 30
+# float32 keeps 24 bits: relative rounding at most 2^-24 = 6e-8; 1e-6 leaves room to spare.
+RTOL = 1e-6
+MAX_BYTES = 25_000_000  # the package-data limit
+
+
+@pytest.fixture(scope="module")
+def default():
+    path = cube.default_path()
+    if not path.exists():
+        pytest.fail(f"the embedded atlas is missing: run build_scripts/build_default_atlas.py "
+                    f"to write {path}")  # fmt: skip
+    with cube.load_dataset(path) as ds:
+        yield ds
+
+
+def _sample_cells(ds):
+    """About 30 (n index, p index) pairs: the corners and 1/2, then a fixed random draw."""
+    n_size, p_size = ds.sizes["n"], ds.sizes["p"]
+    half = int(np.flatnonzero(ds["p"].values == 0.5)[0])
+    fixed = [(0, 0), (0, p_size - 1), (n_size - 1, 0), (n_size - 1, p_size - 1),
+             (n_size - 1, half), (1999, half), (2000, 0)]  # fmt: skip
+    rng = np.random.default_rng(20240611)
+    count = SAMPLES - len(fixed)
+    drawn = zip(rng.integers(0, n_size, count), rng.integers(0, p_size, count), strict=True)
+    return fixed + [(int(i), int(j)) for i, j in drawn]
+
+
+def test_file_size_and_format(default):
+    assert cube.default_path().stat().st_size < MAX_BYTES
+    assert default["interval_error"].dtype == np.float32
+    assert default["cdf_error"].dtype == np.float32
+    assert default["interval_lo"].dtype == np.int64
+    assert default.attrs["error_precision"] == "float32 (7 significant digits)"
+    assert default.attrs["atlas_schema"] == cube.SCHEMA_VERSION
+
+
+def test_grid_is_the_default(default):
+    assert default.attrs["n_spec"] == grid.DEFAULT_N_SPEC
+    assert default.attrs["p_spec"] == grid.DEFAULT_P_SPEC
+    assert_array_equal(default["n"].values, grid.default_n())
+    assert_array_equal(default["p"].values, grid.default_p())
+    assert tuple(default["method"].values) == atlas.METHODS
+
+
+def test_round_p_exactly_on_the_grid(default):
+    p = default["p"].values
+    for x in ROUND_P:
+        assert np.count_nonzero(p == x) == 1, x
+    # ... so that label lookups find them without a tolerance.
+    assert default["interval_error"].sel({"method": "normal_cc", "n": 100, "p": 0.05}).size == 1
+
+
+def test_every_integer_n_to_2000(default):
+    assert_array_equal(default["n"].values[:2000], np.arange(1, 2001))
+    assert int(default["n"].values[-1]) == 10**8
+
+
+def test_checksum_verifies():
+    with cube.load_dataset(cube.default_path(), verify=True) as ds:
+        assert ds.attrs["checksum"] == cube.data_checksum(ds)
+
+
+def test_sampled_cells_match_the_engine(default):
+    cells = _sample_cells(default)
+    assert len(cells) == SAMPLES
+    n_axis, p_axis = default["n"].values, default["p"].values
+    for i, j in cells:
+        n, p = int(n_axis[i]), float(p_axis[j])
+        ev = evaluate(n, [p], methods=atlas.METHODS)  # the atlas's methods: the same windows
+        stored = default.isel(n=i, p=j)
+        assert_allclose(stored["interval_error"].values, ev.interval[:, 0], rtol=RTOL, atol=0,
+                        err_msg=f"n={n}, p={p}")  # fmt: skip
+        assert_allclose(stored["cdf_error"].values, ev.cdf[:, 0], rtol=RTOL, atol=0,
+                        err_msg=f"n={n}, p={p}")  # fmt: skip
+        assert_array_equal(stored["interval_lo"].values, ev.lo[:, 0], err_msg=f"n={n}, p={p}")
+        assert_array_equal(stored["interval_hi"].values, ev.hi[:, 0], err_msg=f"n={n}, p={p}")
+
+
+def test_known_cell(default):
+    # W(10, 1/2) = 0.005372 and W(20, 1/2) = 0.002782 for normal_cc (REFERENCES.md fact 1,
+    # computed values, 4 significant digits).
+    cells = default["interval_error"].sel({"method": "normal_cc", "p": 0.5})
+    assert_allclose(cells.sel(n=10), 0.005372, atol=5e-7)
+    assert_allclose(cells.sel(n=20), 0.002782, atol=5e-7)
+
+
+def test_symmetry_in_p(default):
+    # W(n, p) = W(n, 1 - p) for the normal-family methods (REFERENCES.md): the grid is
+    # symmetric, so the stored rows read the same backwards, up to float32 rounding of values
+    # computed at p and at 1 - p separately.
+    p = default["p"].values
+    assert_allclose(p + p[::-1], 1.0, rtol=0, atol=1e-15)
+    rows = default["interval_error"].sel({"method": "normal_cc"}).isel(n=slice(0, 2000, 97))
+    values = rows.values.astype(np.float64)
+    assert_allclose(values, values[:, ::-1], rtol=1e-5, atol=1e-12)
