@@ -209,8 +209,9 @@ def _nested_search(n, p, lo, hi, methods):
     span = (hi - lo).astype(np.float64)
     # The number of samples depends on each row's own window only, so that a p's result does
     # not depend on the other p computed with it (builds are identical however they are split).
-    counts = np.clip(np.ceil(span / sigma * _COARSE_PER_SIGMA), 64, 8192).astype(np.int64) + 1
-    if np.unique(counts).size > 1:
+    counts = np.minimum(np.maximum(np.ceil(span / sigma * _COARSE_PER_SIGMA), 64), 8192)
+    counts = counts.astype(np.int64) + 1
+    if counts.size > 1 and (counts != counts[0]).any():
         shape = (len(methods), p.size)
         out = [np.empty(shape), np.empty(shape, np.int64), np.empty(shape), np.empty(shape, np.int64)]
         for c in np.unique(counts):
@@ -225,11 +226,12 @@ def _nested_search(n, p, lo, hi, methods):
     coarse_cdf = _binom_cdf(coarse, n, pcol)
     shape = (len(methods), p.size)
     out = [np.empty(shape), np.empty(shape, np.int64), np.empty(shape), np.empty(shape, np.int64)]
+    p2 = np.concatenate([p, p])
+    coarse2 = np.concatenate([coarse, coarse])
     for i, method in enumerate(methods):
         d = coarse_cdf - approximate_cdf(coarse, n, pcol, method)
         # Maxima of D and maxima of -D (the minima of D) are refined together.
-        both = np.concatenate([d, -d])
-        value, where = _refine(n, np.tile(p, 2), np.tile(coarse, (2, 1)), both, method)
+        value, where = _refine(n, p2, coarse2, np.concatenate([d, -d]), method)
         out[0][i], out[1][i] = value[: p.size], where[: p.size]
         out[2][i], out[3][i] = -value[p.size :], where[p.size :]
     return out
@@ -367,8 +369,8 @@ def _evaluate(n, p, methods, full=False):
         # error of the interval between the two points is still |D(b) - D(a-1)|.
         interval[i] = np.abs(hi_val - lo_val)
         first, last = np.minimum(hi_k, lo_k), np.maximum(hi_k, lo_k)
-        a[i] = np.where(first == last, np.clip(first, 0, n), first + 1)
-        b[i] = np.where(first == last, np.clip(last, 0, n), last)
+        a[i] = np.where(first == last, np.minimum(np.maximum(first, 0), n), first + 1)
+        b[i] = np.where(first == last, np.minimum(np.maximum(last, 0), n), last)
     return Evaluation(methods, interval, cdf, a, b)
 
 

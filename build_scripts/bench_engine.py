@@ -10,14 +10,13 @@ Prints, each as a ratio with its target:
    mu +- 8 sigma (scipy.special.ndtr on that array), at n = 10^6, p = 0.3 and at n = 10^8, p = 0.5;
 4. for information: the per-cell cost of all seven methods at once, and of a batch of p.
 
-Timings are the median of repeated runs, measured in this one process, so the ratios do not
+Timings are the best of repeated runs, measured in this one process, so the ratios do not
 depend on the machine's speed (they do depend on its load: run it on a quiet machine).
 
 Usage: python build_scripts/bench_engine.py [--repeat R]
 """
 
 import argparse
-import statistics
 import time
 
 import numpy as np
@@ -28,14 +27,18 @@ from atlas.engine import evaluate
 
 
 def timed(func, repeat):
-    """Median wall time of ``func()`` over ``repeat`` runs, after one warm-up run."""
+    """Best wall time of ``func()`` over ``repeat`` runs, after one warm-up run.
+
+    The best of several runs is the least disturbed by other work on the machine, for the fast
+    and the slow side alike, so the ratios compare like with like.
+    """
     func()
     times = []
     for _ in range(repeat):
         start = time.perf_counter()
         func()
         times.append(time.perf_counter() - start)
-    return statistics.median(times)
+    return min(times)
 
 
 def naive(n, p):
