@@ -551,5 +551,8 @@ def main(argv=None):
         return args.handler(args)
     except KeyboardInterrupt:
         return _fail("interrupted", status=130)
+    except BrokenPipeError:  # the reader went away (`approx-atlas inspect | head`): not an error
+        sys.stderr.close()
+        return 0
     except (ValueError, TypeError, OSError) as error:  # OSError covers FileNotFound/Exists
         return _fail(_describe_error(error))
