@@ -88,12 +88,19 @@ def test_sampled_cells_match_the_engine(default):
         n, p = int(n_axis[i]), float(p_axis[j])
         ev = evaluate(n, [p], methods=atlas.METHODS)  # the atlas's methods: the same windows
         stored = default.isel(n=i, p=j)
-        assert_allclose(stored["interval_error"].values, ev.interval[:, 0], rtol=RTOL, atol=0,
+        # float32 storage (RTOL) plus the engine's accuracy contract, 1e-12 absolute against the
+        # mpmath references: values at rounding level (large n, accurate methods) may differ
+        # by that much between engine versions.
+        assert_allclose(stored["interval_error"].values, ev.interval[:, 0], rtol=RTOL, atol=1e-12,
                         err_msg=f"n={n}, p={p}")  # fmt: skip
-        assert_allclose(stored["cdf_error"].values, ev.cdf[:, 0], rtol=RTOL, atol=0,
+        assert_allclose(stored["cdf_error"].values, ev.cdf[:, 0], rtol=RTOL, atol=1e-12,
                         err_msg=f"n={n}, p={p}")  # fmt: skip
-        assert_array_equal(stored["interval_lo"].values, ev.lo[:, 0], err_msg=f"n={n}, p={p}")
-        assert_array_equal(stored["interval_hi"].values, ev.hi[:, 0], err_msg=f"n={n}, p={p}")
+        # The worst interval is well defined only where the error stands above rounding level.
+        clear = ev.interval[:, 0] > 1e-9
+        assert_array_equal(stored["interval_lo"].values[clear], ev.lo[clear, 0],
+                           err_msg=f"n={n}, p={p}")  # fmt: skip
+        assert_array_equal(stored["interval_hi"].values[clear], ev.hi[clear, 0],
+                           err_msg=f"n={n}, p={p}")  # fmt: skip
 
 
 def test_known_cell(default):

@@ -49,7 +49,7 @@ def test_nested_search_finds_the_extremes(n):
 
 def test_nested_search_is_used_at_large_sigma():
     # The search path must really run in the test above: its window exceeds FULL_LIMIT.
-    lo, hi = engine._windows(250_000, np.array([0.3]), METHODS)
+    lo, hi, _ = engine._windows(250_000, np.array([0.3]), METHODS)
     assert (hi - lo + 1)[0] > engine.FULL_LIMIT
 
 
@@ -69,7 +69,7 @@ def test_result_of_a_p_does_not_depend_on_its_neighbours():
 def test_window_tail_bound_holds():
     # Outside the window F and G are both within TAIL_TOL of 0 (below) or 1 (above).
     for n in (50, 5000, 10**6):
-        lo, hi = engine._windows(n, P_VALUES, METHODS)
+        lo, hi, _ = engine._windows(n, P_VALUES, METHODS)
         for j, p in enumerate(P_VALUES):
             if lo[j] > 0:
                 assert stats.binom.cdf(lo[j] - 1, n, p) <= engine.TAIL_TOL
