@@ -160,13 +160,7 @@ def compute_chunk(n, p, methods):
     """
     n = np.asarray(n, dtype=np.int64)
     p = np.asarray(p, dtype=np.float64)
-    shape = (len(methods), n.size, p.size)
-    out = {
-        "interval_error": np.empty(shape),
-        "cdf_error": np.empty(shape),
-        "interval_lo": np.empty(shape, np.int64),
-        "interval_hi": np.empty(shape, np.int64),
-    }
+    out = _empty_arrays((len(methods), n.size, p.size))
     for j, value in enumerate(n):
         ev = evaluate(int(value), p, methods=methods)
         out["interval_error"][:, j] = ev.interval
@@ -176,10 +170,45 @@ def compute_chunk(n, p, methods):
     return out
 
 
+def _empty_arrays(shape):
+    """The four arrays of a cube (or of a chunk) of ``shape``, not yet filled."""
+    return {
+        "interval_error": np.empty(shape),
+        "cdf_error": np.empty(shape),
+        "interval_lo": np.empty(shape, np.int64),
+        "interval_hi": np.empty(shape, np.int64),
+    }
+
+
+def chunk_arrays(chunk, n, p, methods):
+    """Compute one chunk of the whole grid: :func:`compute_chunk` of its n and p.
+
+    Parameters
+    ----------
+    chunk : Chunk
+        Indices into the axes.
+    n, p : numpy.ndarray
+        The whole grid axes.
+    methods : tuple of str
+        The methods.
+
+    Returns
+    -------
+    dict
+        As from :func:`compute_chunk`.
+    """
+    return compute_chunk(n[chunk.n_start : chunk.n_stop], p[chunk.p_start : chunk.p_stop], methods)
+
+
+def chunk_work(n, p, chunk):
+    """Estimated work of one chunk of the whole grid (:func:`cell_cost` summed over its n)."""
+    block = p[chunk.p_start : chunk.p_stop]
+    return float(_costs(n[chunk.n_start : chunk.n_stop], block).sum())
+
+
 def _run_chunk(n, p, methods, chunk):
     """Pool entry point: the chunk's index and its arrays."""
-    part = compute_chunk(n[chunk.n_start : chunk.n_stop], p[chunk.p_start : chunk.p_stop], methods)
-    return chunk.index, part
+    return chunk.index, chunk_arrays(chunk, n, p, methods)
 
 
 def check_methods(methods):
@@ -290,13 +319,7 @@ def build_atlas(
             f"{p_axis.size} p x {len(methods)} methods = {cells}."
         )
     chunks = plan_chunks(n_axis, p_axis, cost=chunk_cost, p_block=p_block)
-    shape = (len(methods), n_axis.size, p_axis.size)
-    arrays = {
-        "interval_error": np.empty(shape),
-        "cdf_error": np.empty(shape),
-        "interval_lo": np.empty(shape, np.int64),
-        "interval_hi": np.empty(shape, np.int64),
-    }
+    arrays = _empty_arrays((len(methods), n_axis.size, p_axis.size))
     store = None
     if checkpoint is not None:
         from atlas.checkpoint import CheckpointStore
@@ -372,7 +395,7 @@ def _execute(chunks, n, p, methods, workers, client):
             yield chunk, _run_chunk(n, p, methods, chunk)[1]
         return
     # Costliest chunks first, so that no long chunk starts last while the other workers idle.
-    order = sorted(chunks, key=lambda c: -_chunk_cost(n, p, c))
+    order = sorted(chunks, key=lambda c: -chunk_work(n, p, c))
     by_index = {chunk.index: chunk for chunk in chunks}
     # fork starts workers without re-importing; elsewhere spawn is the safe default.
     context = get_context("fork" if "fork" in _start_methods() else "spawn")
@@ -410,12 +433,6 @@ def _stop_workers(pool):
         process.terminate()
     for process in processes:
         process.join()
-
-
-def _chunk_cost(n, p, chunk):
-    """Estimated work of one chunk (see `cell_cost`)."""
-    block = p[chunk.p_start : chunk.p_stop]
-    return float(_costs(n[chunk.n_start : chunk.n_stop], block).sum())
 
 
 def _ignore_interrupts():

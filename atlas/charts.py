@@ -3,9 +3,10 @@ methods compare.
 
 Every function returns a :class:`matplotlib.figure.Figure` built without :mod:`matplotlib.pyplot`:
 no display, no backend and no global figure registry is involved (the figure renders with Agg,
-or the SVG and PDF back ends, when it is saved), so the functions work on a headless machine and
-never show a window. matplotlib is imported inside the functions, so ``import atlas`` does not
-import it.
+or the SVG and PDF back ends, when it is saved with :func:`atlas.figures.save_figure`), so the
+functions work on a headless machine and never show a window. matplotlib is imported inside the
+functions, so ``import atlas`` does not import it. What the maps share with the tables and
+sheets (the footer, the words for methods and metrics) is in :mod:`atlas.figures`.
 
 Reading a map
 -------------
@@ -23,24 +24,16 @@ Reading a map
 """
 
 import math
-import os
-import re
-import textwrap
-from pathlib import Path
 
 import numpy as np
 
-from atlas import cube
-from atlas.engine import METRICS, check_metric
+from atlas import cube, figures
+from atlas.engine import check_metric
+from atlas.figures import METHOD_LABELS, METRIC_FORMULAS, METRIC_LABELS
 
 LEVELS = (1e-2, 5e-3, 1e-3, 1e-4)
-HEADLINE_METHODS = ("normal_cc", "edgeworth_cc")
 P_SCALES = ("logit", "linear")
 KINDS = ("map", "compare", "gain", "best")
-FORMATS = ("png", "svg", "pdf")
-MIN_PNG_WIDTH = 1600  # pixels
-PNG_DPI = 200
-VECTOR_RASTER_DPI = {"svg": 150, "pdf": 200}  # the fills of a vector file: screen, print
 N_PER_DECADE = 120  # pooled n columns per decade of n
 ERROR_CMAP = "viridis"  # perceptually uniform, readable with colour-vision deficiency, in grey
 GAIN_CMAP = "PuOr"  # diverging, colour-blind safe (ColorBrewer)
@@ -50,21 +43,6 @@ TIE_COLOUR = "#BBBBBB"  # neutral grey: several methods below RESOLUTION
 # colour-vision deficiencies; black is kept for the overlays.
 OKABE_ITO = ("#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7",
              "#000000")  # fmt: skip
-METHOD_LABELS = {
-    "normal_cc": "normal, continuity-corrected",
-    "edgeworth_cc": "one-term Edgeworth, continuity-corrected",
-    "edgeworth2_cc": "two-term Edgeworth, continuity-corrected",
-    "normal": "normal, uncorrected",
-    "poisson": "Poisson",
-    "camp_paulson": "Camp-Paulson",
-    "peizer_pratt": "Peizer-Pratt",
-}
-METRIC_LABELS = {"interval": "interval probabilities", "cdf": "the cumulative distribution"}
-METRIC_FORMULAS = {
-    "interval": "max over 0 ≤ a ≤ b ≤ n of |P(a ≤ X ≤ b) − (G(b) − G(a−1))|",
-    "cdf": "max over 0 ≤ k ≤ n of |P(X ≤ k) − G(k)|",
-}
-_VARIABLES = {"interval": "interval_error", "cdf": "cdf_error"}
 # The rule-of-thumb boundaries: (label, kind, constant, dashes); kind "np": n p = c, "nq": n q = c,
 # "npq": n p q = c. Dash patterns tell the constants apart without colour.
 RULE_CURVES = (
@@ -82,48 +60,6 @@ _RULE_ANCHORS = {
 }  # fmt: skip
 
 
-def _mpl():
-    """Import matplotlib's object-oriented pieces (not pyplot)."""
-    import matplotlib
-    import matplotlib.colors
-    import matplotlib.figure
-    import matplotlib.lines
-    import matplotlib.patches
-    import matplotlib.patheffects
-    import matplotlib.ticker
-
-    return matplotlib
-
-
-def _dataset(atlas):
-    """The Dataset of an Atlas (or a Dataset passed as is)."""
-    ds = getattr(atlas, "dataset", atlas)
-    if not hasattr(ds, "data_vars") or "interval_error" not in ds:
-        kind = type(atlas).__name__
-        raise TypeError(f"`atlas` must be an Atlas or an atlas Dataset; got {kind}.")
-    return ds
-
-
-def _methods(ds):
-    return tuple(str(m) for m in ds["method"].values)
-
-
-def check_atlas_method(ds, method, name="method"):
-    """Return ``method`` if the atlas holds it, else raise ValueError listing those it holds."""
-    held = _methods(ds)
-    if not isinstance(method, str) or method not in held:
-        valid = ", ".join(repr(m) for m in held)
-        raise ValueError(f"`{name}` must be one of {valid} (the atlas's methods); got {method!r}.")
-    return method
-
-
-def _check_choice(value, name, options):
-    if not isinstance(value, str) or value not in options:
-        valid = ", ".join(repr(o) for o in options)
-        raise ValueError(f"`{name}` must be one of {valid}; got {value!r}.")
-    return value
-
-
 def _check_levels(levels):
     try:
         values = [float(x) for x in levels]
@@ -136,15 +72,6 @@ def _check_levels(levels):
             f"`levels` must be a non-empty sequence of numbers in (0, 1); got {levels!r}."
         )
     return tuple(sorted(set(values)))
-
-
-def errors_on_grid(atlas, method, metric):
-    """The (n, p) array of one method's errors, read from the Dataset, as float64."""
-    ds = _dataset(atlas)
-    check_metric(metric)
-    check_atlas_method(ds, method)
-    index = _methods(ds).index(method)
-    return np.asarray(ds[_VARIABLES[metric]].isel(method=index).values, dtype=np.float64)
 
 
 def pool_n(n, values, *, per_decade=N_PER_DECADE):
@@ -188,48 +115,8 @@ def pool_n(n, values, *, per_decade=N_PER_DECADE):
 
 
 def _pooled(ds, method, metric):
-    n_start, pooled = pool_n(ds["n"].values, errors_on_grid(ds, method, metric))
+    n_start, pooled = pool_n(ds["n"].values, figures.errors_on_grid(ds, method, metric))
     return n_start, np.asarray(ds["p"].values, dtype=np.float64), pooled
-
-
-def _build_date(ds):
-    """The date (YYYY-MM-DD) the atlas was built, from the first line of its history."""
-    match = re.search(r"\d{4}-\d{2}-\d{2}", str(ds.attrs.get("history", "")))
-    return match.group(0) if match else "unknown date"
-
-
-def provenance_line(atlas):
-    """One line on where the atlas came from: version, schema, build date, grid and checksum."""
-    ds = _dataset(atlas)
-    n, p = ds["n"].values, ds["p"].values
-    checksum = str(ds.attrs.get("checksum", ""))
-    short = checksum[: len("sha256:") + 12] + "…" if checksum else "no checksum"
-    return (
-        f"Atlas: {ds.attrs.get('source', 'approx-atlas')}, schema {ds.attrs.get('atlas_schema')}, "
-        f"built {_build_date(ds)}; grid n = {n[0]:,}…{n[-1]:,} ({n.size} values), "
-        f"p = {p[0]:.4g}…{p[-1]:.4g} ({p.size} values); "
-        f"{str(ds.attrs.get('error_precision', '')).split(' ')[0]}; "
-        f"{short}"
-    )
-
-
-_FOOTER_SIZE = 7.5  # points
-
-
-def _footer(fig, ds, note=None):
-    """The provenance, a note and the caution at the foot of the figure; the layout's lower edge
-    is set above it, however many lines it takes."""
-    width = int(0.975 * fig.get_figwidth() * 72 / (_FOOTER_SIZE * 0.55))  # characters per line
-    lines = textwrap.wrap(provenance_line(ds), width)
-    if note:
-        lines += textwrap.wrap(note, width)
-    lines += textwrap.wrap("Caution: " + cube.CAUTION, width)
-    fig.text(0.012, 0.012, "\n".join(lines), ha="left", va="bottom", fontsize=_FOOTER_SIZE,
-             color="#333333", linespacing=1.35, gid="footer")  # fmt: skip
-    bottom = 0.012 + (len(lines) * _FOOTER_SIZE * 1.35 + 10) / (72 * fig.get_figheight())
-    engine = fig.get_layout_engine()
-    left, lower, width, height = engine.get()["rect"]
-    engine.set(rect=(left, bottom, width, lower + height - bottom))
 
 
 def _titles(fig, title, subtitle):
@@ -239,7 +126,7 @@ def _titles(fig, title, subtitle):
 
 
 def _figure(width, height, *, top, bottom):
-    mpl = _mpl()
+    mpl = figures.mpl()
     fig = mpl.figure.Figure(figsize=(width, height), dpi=100, layout="constrained")
     fig.get_layout_engine().set(rect=(0.0, bottom, 1.0, top - bottom), w_pad=0.08, h_pad=0.06)
     return fig
@@ -259,20 +146,12 @@ def _subtitle(method, metric):
 
 
 def _halo(width=3.0):
-    mpl = _mpl()
+    mpl = figures.mpl()
     return [mpl.patheffects.withStroke(linewidth=width, foreground="white")]
 
 
-def _format_level(value):
-    """0.01, 0.005, 0.001, 1e-4: a tolerance as people write it."""
-    if value >= 1e-3:
-        return f"{value:g}"
-    mantissa, exponent = f"{value:.2e}".split("e")
-    return f"{mantissa.rstrip('0').rstrip('.')}e{int(exponent)}"
-
-
 def _axes_setup(ax, n, p, p_scale):
-    mpl = _mpl()
+    mpl = figures.mpl()
     ax.set_xscale("log")
     ax.set_xlim(float(n[0]), float(n[-1]))
     ax.xaxis.set_major_locator(mpl.ticker.LogLocator(base=10, numticks=20))
@@ -328,7 +207,7 @@ def draw_rules(ax, n, p, p_scale):
     list of matplotlib.lines.Line2D
         Legend handles, one per dash pattern (``"np = 5, nq = 5"``, ...).
     """
-    mpl = _mpl()
+    mpl = figures.mpl()
     styles = {}
     for label, kind, constant, dashes in RULE_CURVES:
         xs, ys = _rule_points(kind, constant, p)
@@ -431,7 +310,7 @@ def _draw_error_panel(ax, n, p, values, *, levels, fill, extend, p_scale, cmap=E
                        linestyles="solid", zorder=5)  # fmt: skip
     lines.set_gid("tolerance-contours")
     lines.set(path_effects=_halo(3.5))
-    labels = {lv: _format_level(v) for lv, v in zip(log_levels, levels, strict=True)}
+    labels = {lv: figures.format_level(v) for lv, v in zip(log_levels, levels, strict=True)}
     _label_contours(ax, lines, n, p, z.T, labels, p_scale)
     handles = draw_rules(ax, n, p, p_scale)
     _axes_setup(ax, n, p, p_scale)
@@ -439,7 +318,7 @@ def _draw_error_panel(ax, n, p, values, *, levels, fill, extend, p_scale, cmap=E
 
 
 def _error_colorbar(fig, filled, lines, ax, metric):
-    mpl = _mpl()
+    mpl = figures.mpl()
     cbar = fig.colorbar(filled, ax=ax, pad=0.015, fraction=0.05, aspect=30)
     cbar.set_label(f"worst-case {metric} error (colour: log10, half-decade bands)", fontsize=10)
     lo, hi = filled.levels[0], filled.levels[-1]
@@ -496,11 +375,11 @@ def error_map(atlas, *, method, metric="interval", levels=LEVELS, p_scale="logit
     Colour is log10 W(n, p) for the interval metric, W = max over 0 <= a <= b <= n of
     |P(a <= X <= b) - (G(b) - G(a-1))|, or log10 max over k of |F(k) - G(k)| for ``cdf``.
     """
-    ds = _dataset(atlas)
-    check_atlas_method(ds, method)
+    ds = figures.as_dataset(atlas)
+    figures.check_atlas_method(ds, method)
     check_metric(metric)
     levels = _check_levels(levels)
-    _check_choice(p_scale, "p_scale", P_SCALES)
+    figures.check_choice(p_scale, "p_scale", P_SCALES)
     n, p, values = _pooled(ds, method, metric)
     fill, extend = _fill_levels(values)
     fig = _figure(width, height, top=0.895, bottom=0.095)
@@ -511,7 +390,7 @@ def error_map(atlas, *, method, metric="interval", levels=LEVELS, p_scale="logit
     _error_colorbar(fig, filled, lines, ax, metric)
     _titles(fig, f"Worst-case error of {METRIC_LABELS[metric]}: {method}",
             _subtitle(method, metric))  # fmt: skip
-    _footer(fig, ds, _MAP_NOTE.format(per=N_PER_DECADE))
+    figures.footer(fig, ds, _MAP_NOTE.format(per=N_PER_DECADE))
     return fig
 
 
@@ -537,13 +416,13 @@ def compare_map(atlas, *, method, method2, metric="interval", levels=LEVELS, p_s
     ValueError
         As for :func:`error_map`, or if ``method2`` equals ``method``.
     """
-    ds = _dataset(atlas)
-    check_atlas_method(ds, method)
-    check_atlas_method(ds, method2, "method2")
+    ds = figures.as_dataset(atlas)
+    figures.check_atlas_method(ds, method)
+    figures.check_atlas_method(ds, method2, "method2")
     _check_distinct(method, method2)
     check_metric(metric)
     levels = _check_levels(levels)
-    _check_choice(p_scale, "p_scale", P_SCALES)
+    figures.check_choice(p_scale, "p_scale", P_SCALES)
     n, p, left = _pooled(ds, method, metric)
     _, _, right = _pooled(ds, method2, metric)
     fill, extend = _fill_levels(left, right)
@@ -571,7 +450,7 @@ def compare_map(atlas, *, method, method2, metric="interval", levels=LEVELS, p_s
             f"{cube.METHOD_DESCRIPTIONS.get(method2, method2)}\n"
             f"Metric {metric}: {METRIC_FORMULAS[metric]}, X ~ Bin(n, p); one colour scale for "
             "both panels")  # fmt: skip
-    _footer(fig, ds, _MAP_NOTE.format(per=N_PER_DECADE))
+    figures.footer(fig, ds, _MAP_NOTE.format(per=N_PER_DECADE))
     return fig
 
 
@@ -611,13 +490,13 @@ def gain_map(atlas, *, method, method2="normal_cc", metric="interval", p_scale="
     ``method2`` (each the worst over a pooled n bin); errors below ``RESOLUTION`` = 1e-12, the
     accuracy of the exact side, count as 1e-12.
     """
-    mpl = _mpl()
-    ds = _dataset(atlas)
-    check_atlas_method(ds, method)
-    check_atlas_method(ds, method2, "method2")
+    mpl = figures.mpl()
+    ds = figures.as_dataset(atlas)
+    figures.check_atlas_method(ds, method)
+    figures.check_atlas_method(ds, method2, "method2")
     _check_distinct(method, method2)
     check_metric(metric)
-    _check_choice(p_scale, "p_scale", P_SCALES)
+    figures.check_choice(p_scale, "p_scale", P_SCALES)
     n, p, mine = _pooled(ds, method, metric)
     _, _, theirs = _pooled(ds, method2, metric)
     with np.errstate(invalid="ignore"):
@@ -651,9 +530,9 @@ def gain_map(atlas, *, method, method2="normal_cc", metric="interval", p_scale="
             f"Ratio of worst-case errors of {METRIC_LABELS[metric]} ({metric} metric: "
             f"{METRIC_FORMULAS[metric]})\nPurple: {method} errs less; orange: {method2} errs "
             f"less; line 1×: equal")  # fmt: skip
-    _footer(fig, ds, "Dashed: rule-of-thumb boundaries. Each drawn column compares the largest "
-            f"errors of the grid n it stands for (bins of 1/{N_PER_DECADE} decade); errors below "
-            f"{RESOLUTION:g} count as {RESOLUTION:g}.")  # fmt: skip
+    figures.footer(fig, ds, "Dashed: rule-of-thumb boundaries. Each drawn column compares the "
+                   f"largest errors of the grid n it stands for (bins of 1/{N_PER_DECADE} "
+                   f"decade); errors below {RESOLUTION:g} count as {RESOLUTION:g}.")  # fmt: skip
     return fig
 
 
@@ -705,15 +584,15 @@ def best_method_map(atlas, *, metric="interval", methods=None, p_scale="logit", 
     an exact tie goes to the method listed first. Where two or more methods err by less than
     ``RESOLUTION`` = 1e-12, the accuracy of the exact side, the cell is a tie (grey).
     """
-    mpl = _mpl()
-    ds = _dataset(atlas)
+    mpl = figures.mpl()
+    ds = figures.as_dataset(atlas)
     check_metric(metric)
-    _check_choice(p_scale, "p_scale", P_SCALES)
-    methods = _methods(ds) if methods is None else tuple(methods)
+    figures.check_choice(p_scale, "p_scale", P_SCALES)
+    methods = figures.atlas_methods(ds) if methods is None else tuple(methods)
     if not methods:
         raise ValueError("`methods` must name at least one method; got an empty sequence.")
     for m in methods:
-        check_atlas_method(ds, m, "methods")
+        figures.check_atlas_method(ds, m, "methods")
     stack = []
     for m in methods:
         n, p, values = _pooled(ds, m, metric)
@@ -753,7 +632,7 @@ def best_method_map(atlas, *, metric="interval", methods=None, p_scale="logit", 
     _titles(fig, f"The method with the smallest worst-case error of {METRIC_LABELS[metric]}",
             f"Metric {metric}: {METRIC_FORMULAS[metric]}, X ~ Bin(n, p)\nCandidates: "
             f"{', '.join(methods)}")  # fmt: skip
-    _footer(
+    figures.footer(
         fig,
         ds,
         "Dashed: rule-of-thumb boundaries. Each drawn column goes to the method "
@@ -772,7 +651,7 @@ def chart(atlas, *, kind="map", method="normal_cc", method2=None, metric="interv
     ``"normal_cc"``, or ``"edgeworth_cc"`` when ``method`` is ``"normal_cc"``); it is refused for
     ``map`` and ``best``.
     """
-    _check_choice(kind, "kind", KINDS)
+    figures.check_choice(kind, "kind", KINDS)
     if kind in ("map", "best") and method2 is not None:
         raise ValueError(f"`method2` is for the kinds 'compare' and 'gain'; got kind {kind!r}.")
     if method2 is None:
@@ -787,87 +666,16 @@ def chart(atlas, *, kind="map", method="normal_cc", method2=None, metric="interv
     return best_method_map(atlas, metric=metric, p_scale=p_scale)
 
 
-def figure_format(path):
-    """The format of a figure file by its extension: "png", "svg" or "pdf"; else ValueError."""
-    suffix = Path(path).suffix.lower().lstrip(".")
-    if suffix not in FORMATS:
-        valid = ", ".join(f"'.{f}'" for f in FORMATS)
-        raise ValueError(f"`path` must end in one of {valid}; got {str(path)!r}.")
-    return suffix
-
-
-def save_figure(fig, path, *, dpi=None):
-    """Write a figure to PNG, SVG or PDF, chosen by the file's extension, atomically.
-
-    Parameters
-    ----------
-    fig : matplotlib.figure.Figure
-    path : str or os.PathLike
-        Ending in ``.png``, ``.svg`` or ``.pdf``.
-    dpi : float, optional
-        PNG resolution; raised if needed so that the image is at least ``MIN_PNG_WIDTH`` = 1600
-        pixels wide (default 200 dpi). In SVG and PDF files only the colour fills are raster
-        images, at ``VECTOR_RASTER_DPI`` (150 and 200 dpi) unless ``dpi`` is given; text and
-        lines stay vectors.
-
-    Returns
-    -------
-    pathlib.Path
-        The path written.
-
-    Raises
-    ------
-    ValueError
-        For another extension (the message lists the valid ones).
-    FileNotFoundError
-        If the target's directory does not exist.
-
-    Notes
-    -----
-    The file is written to a temporary name in the target's directory and renamed when complete.
-    Vector files carry no creation date and fixed element ids, so a rerun writes the same bytes.
-    """
-    mpl = _mpl()
-    path = Path(path)
-    fmt = figure_format(path)
-    if not path.parent.is_dir():
-        raise FileNotFoundError(f"`path` is in a directory that does not exist: {str(path)!r}.")
-    if fmt == "png":
-        resolution = max(float(dpi or PNG_DPI), math.ceil(MIN_PNG_WIDTH / fig.get_figwidth()))
-    else:
-        resolution = float(dpi or VECTOR_RASTER_DPI[fmt])
-    metadata = {
-        "png": None,
-        "svg": {"Creator": None, "Date": None, "Format": None, "Type": None},  # no RDF block
-        "pdf": {"CreationDate": None},
-    }[fmt]
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-    try:
-        with mpl.rc_context({"svg.hashsalt": "approx-atlas", "svg.fonttype": "path"}):
-            fig.savefig(tmp, format=fmt, dpi=resolution, metadata=metadata)
-        os.replace(tmp, path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
-    return path
-
-
 __all__ = [
-    "FORMATS",
-    "HEADLINE_METHODS",
     "KINDS",
     "LEVELS",
-    "METRICS",
     "OKABE_ITO",
     "P_SCALES",
     "best_method_map",
     "chart",
     "compare_map",
     "error_map",
-    "figure_format",
     "gain_map",
     "method_colours",
     "pool_n",
-    "provenance_line",
-    "save_figure",
 ]

@@ -76,7 +76,7 @@ def fingerprint_parts(n, p, methods, chunks):
         ``chunking`` (SHA-256 of every chunk's index and bounds) and ``schema`` (the atlas
         schema and package version, which fix the engine).
     """
-    from atlas.cube import SCHEMA_VERSION
+    from atlas.store import SCHEMA_VERSION
 
     n_bytes = np.ascontiguousarray(n, dtype="<i8").tobytes()
     p_bytes = np.ascontiguousarray(p, dtype="<f8").tobytes()

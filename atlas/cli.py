@@ -334,9 +334,9 @@ def _cmd_build(args):
 
 def _cmd_inspect(args):
     """Print an atlas file's grid, methods, variables and provenance, then verify its checksum."""
-    from atlas import cube
+    from atlas import cube, store
 
-    path = cube.default_path() if args.file is None else args.file
+    path = store.default_path() if args.file is None else args.file
     ds = cube.load_dataset(path)
     try:
         print("\n".join(cube.describe_dataset(ds, path)), flush=True)
@@ -370,7 +370,7 @@ def _add_build_commands(commands):
     inspect.set_defaults(handler=_cmd_inspect)
 
 
-# --- chart, table, rules, sheet, wiki: outputs for people (atlas.charts, atlas.sheets) ---------
+# --- chart, table, rules, sheet, wiki: outputs for people (charts, tables, sheets) -------------
 
 
 def _number_list(text, option):
@@ -389,7 +389,7 @@ def _emit(text, output):
     if output is None:
         sys.stdout.write(text)
     else:
-        from atlas.sheets import save_text
+        from atlas.files import save_text
 
         print(save_text(output, text))
     return 0
@@ -397,23 +397,28 @@ def _emit(text, output):
 
 def _cmd_chart(args):
     """Draw a map (or a comparison) and write it as PNG, SVG or PDF by the file's extension."""
-    from atlas import charts
+    from atlas import charts, figures
 
-    charts.figure_format(args.output)  # refuse a bad extension before any drawing
+    figures.figure_format(args.output)  # refuse a bad extension before any drawing
     atlas = _open_atlas(args)
     fig = charts.chart(atlas, kind=args.kind, method=args.method, method2=args.method2,
                        metric=args.metric, p_scale=args.p_scale)  # fmt: skip
-    print(charts.save_figure(fig, args.output))
+    print(figures.save_figure(fig, args.output))
     return 0
+
+
+def _check_format(text, formats):
+    """Refuse a ``--format`` that is not one of ``formats``, before the atlas is opened."""
+    if text not in formats:
+        valid = ", ".join(repr(f) for f in formats)
+        raise ValueError(f"`--format` must be one of {valid}; got {text!r}.")
 
 
 def _cmd_table(args):
     """Print (or write) the minimum n for each tolerance and p."""
-    from atlas.sheets import TABLE_FORMATS, threshold_table
+    from atlas.tables import TABLE_FORMATS, threshold_table
 
-    if args.format not in TABLE_FORMATS:
-        valid = ", ".join(repr(f) for f in TABLE_FORMATS)
-        raise ValueError(f"`--format` must be one of {valid}; got {args.format!r}.")
+    _check_format(args.format, TABLE_FORMATS)
     table = threshold_table(_open_atlas(args), _number_list(args.tol, "--tol"),
                             _number_list(args.p, "--p"), method=args.method,
                             metric=args.metric)  # fmt: skip
@@ -424,14 +429,17 @@ def _cmd_rules(args):
     """Print (or write) the audit of the classic rules of thumb and the user's own."""
     from atlas.engine import METRICS
     from atlas.rules import CLASSIC_RULES, parse_rule
-    from atlas.sheets import AUDIT_FORMATS, rule_audit
+    from atlas.tables import AUDIT_FORMATS, rule_audit
 
-    if args.format not in AUDIT_FORMATS:
-        valid = ", ".join(repr(f) for f in AUDIT_FORMATS)
-        raise ValueError(f"`--format` must be one of {valid}; got {args.format!r}.")
+    _check_format(args.format, AUDIT_FORMATS)
     extra = [parse_rule(text, name="--rule") for text in args.rule or ()]
-    audit = rule_audit(_open_atlas(args), list(CLASSIC_RULES) + extra, methods=args.method,
-                       metrics=args.metric or METRICS, tols=_number_list(args.tol, "--tol"))
+    audit = rule_audit(
+        _open_atlas(args),
+        list(CLASSIC_RULES) + extra,
+        methods=args.method,
+        metrics=args.metric or METRICS,
+        tols=_number_list(args.tol, "--tol"),
+    )
     return _emit(audit.render(args.format), args.output)
 
 
@@ -458,6 +466,19 @@ def _add_output_commands(commands):
     def atlas_option(sub):
         sub.add_argument("--atlas", metavar="FILE", help="atlas file (default: the embedded one)")
 
+    def page_methods(sub):
+        sub.add_argument(
+            "--method",
+            action="append",
+            help="a method to map (repeatable; default normal_cc, edgeworth_cc)",
+        )
+
+    def text_options(sub, formats):
+        """--format, --atlas and -o of a command that prints text or writes it to a file."""
+        sub.add_argument("--format", default="md", help=formats)
+        atlas_option(sub)
+        sub.add_argument("-o", "--output", metavar="FILE", help="write FILE instead of printing")
+
     chart = commands.add_parser("chart", help="draw an error map or a comparison of methods")
     chart.add_argument("--method", default="normal_cc", help="approximation (normal_cc)")
     chart.add_argument("--method2", help="the other method of --kind compare or gain")
@@ -474,9 +495,7 @@ def _add_output_commands(commands):
     table.add_argument("--p", default="0.01,0.05,0.1,0.3,0.5", help="p values (0.01,...,0.5)")
     table.add_argument("--method", default="normal_cc", help="approximation (normal_cc)")
     table.add_argument("--metric", default="interval", help="interval (default) or cdf")
-    table.add_argument("--format", default="md", help="csv, md (default) or json")
-    atlas_option(table)
-    table.add_argument("-o", "--output", metavar="FILE", help="write FILE instead of printing")
+    text_options(table, "csv, md (default) or json")
     table.set_defaults(handler=_cmd_table)
 
     audit = commands.add_parser("rules", help="audit the rules of thumb (and yours) on the atlas")
@@ -485,21 +504,17 @@ def _add_output_commands(commands):
     audit.add_argument("--method", action="append", help="a method (repeatable; default all)")
     audit.add_argument("--metric", action="append", help="a metric (repeatable; default both)")
     audit.add_argument("--tol", default="0.01,0.005,0.001", help="tolerances for the shares")
-    audit.add_argument("--format", default="md", help="md (default) or json")
-    atlas_option(audit)
-    audit.add_argument("-o", "--output", metavar="FILE", help="write FILE instead of printing")
+    text_options(audit, "md (default) or json")
     audit.set_defaults(handler=_cmd_rules)
 
     sheet = commands.add_parser("sheet", help="write the printable PDF reference sheet")
-    sheet.add_argument("--method", action="append",
-                       help="a method to map (repeatable; default normal_cc, edgeworth_cc)")
+    page_methods(sheet)
     atlas_option(sheet)
     sheet.add_argument("-o", "--output", required=True, metavar="FILE.pdf", help="the PDF file")
     sheet.set_defaults(handler=_cmd_sheet)
 
     wiki = commands.add_parser("wiki", help="write a static wiki page with SVG charts")
-    wiki.add_argument("--method", action="append",
-                      help="a method to map (repeatable; default normal_cc, edgeworth_cc)")
+    page_methods(wiki)
     atlas_option(wiki)
     wiki.add_argument("-o", "--output", required=True, metavar="DIR", help="the page's directory")
     wiki.set_defaults(handler=_cmd_wiki)

@@ -1,6 +1,6 @@
 """The atlas cube: an xarray Dataset of worst-case errors over (method, n, p), and its NetCDF file.
 
-The layout (schema version ``SCHEMA_VERSION``):
+The layout (schema version :data:`atlas.store.SCHEMA_VERSION`):
 
 - dimensions and coordinates ``method`` (strings), ``n`` (int64), ``p`` (float64);
 - ``interval_error`` and ``cdf_error`` (float64, or float32 in a compact copy: the global
@@ -11,20 +11,20 @@ The layout (schema version ``SCHEMA_VERSION``):
   :func:`data_checksum`).
 
 Files are written to a temporary name beside the target and renamed when complete, with HDF5's
-Fletcher-32 checksums on every chunk, so a damaged chunk is refused when it is read.
+Fletcher-32 checksums on every chunk, so a damaged chunk is refused when it is read. The method
+names are stored as fixed-width characters (CF character arrays, dimension ``method_strlen``).
+Files are read and checked by :mod:`atlas.store`; xarray is imported only by the functions that
+build a Dataset, so that importing this module stays light.
 """
 
-import hashlib
-import os
 from datetime import datetime, timezone
 from pathlib import Path
 
 import numpy as np
-import xarray as xr
 
-from atlas import __version__
+from atlas import __version__, store
+from atlas.files import replacing
 
-SCHEMA_VERSION = "1"
 CONVENTIONS = "CF-1.10"
 CAUTION = (
     "The atlas bounds the error of approximations to the binomial model only. Regulated "
@@ -48,7 +48,6 @@ METHOD_DESCRIPTIONS = {
     "camp_paulson": "Camp-Paulson cube-root normal approximation",
     "peizer_pratt": "Peizer-Pratt normal approximation",
 }
-DATA_VARIABLES = ("interval_error", "cdf_error", "interval_lo", "interval_hi")
 _VARIABLE_ATTRS = {
     "interval_error": {
         "long_name": "worst-case error of interval probabilities",
@@ -115,6 +114,8 @@ def make_dataset(n, p, methods, arrays, *, n_spec, p_spec, history, tail_toleran
     xarray.Dataset
         With every attribute of the schema, the checksum included.
     """
+    import xarray as xr
+
     coords = {
         "method": ("method", np.asarray(list(methods), dtype=object), _COORD_ATTRS["method"]),
         "n": ("n", np.asarray(n, dtype=np.int64), _COORD_ATTRS["n"]),
@@ -127,7 +128,7 @@ def make_dataset(n, p, methods, arrays, *, n_spec, p_spec, history, tail_toleran
             np.asarray(arrays[name], dtype=dtypes.get(name, np.int64)),
             dict(_VARIABLE_ATTRS[name]),
         )
-        for name in DATA_VARIABLES
+        for name in store.DATA_VARIABLES
     }
     ds = xr.Dataset(data_vars, coords=coords)
     ds.attrs = {
@@ -139,7 +140,7 @@ def make_dataset(n, p, methods, arrays, *, n_spec, p_spec, history, tail_toleran
         "comment": CAUTION,
         "n_spec": n_spec,
         "p_spec": p_spec,
-        "atlas_schema": SCHEMA_VERSION,
+        "atlas_schema": store.SCHEMA_VERSION,
         "tail_tolerance": float(tail_tolerance),
         "error_precision": "float64",
     }
@@ -151,20 +152,15 @@ def data_checksum(ds):
     """SHA-256 over the coordinates and data variables of an atlas Dataset.
 
     The digest covers, in a fixed order, each coordinate and data variable's name, dtype, shape
-    and C-ordered bytes (method names as UTF-8 text), so it changes with any value.
+    and C-ordered bytes (method names as UTF-8 text), so it changes with any value. It is
+    :func:`atlas.store.checksum` of the Dataset's values, the digest the file readers check.
 
     Returns
     -------
     str
         ``"sha256:<hex digest>"``.
     """
-    digest = hashlib.sha256()
-    digest.update("\n".join(str(m) for m in ds["method"].values).encode())
-    for name in ("n", "p", *DATA_VARIABLES):
-        values = np.ascontiguousarray(ds[name].values)
-        digest.update(f"|{name}|{values.dtype.str}|{values.shape}|".encode())
-        digest.update(values.tobytes())
-    return "sha256:" + digest.hexdigest()
+    return store.checksum(ds["method"].values, lambda name: ds[name].values)
 
 
 def compact(ds, precision="float32"):
@@ -192,6 +188,7 @@ def compact(ds, precision="float32"):
     Examples
     --------
     >>> import numpy as np
+    >>> from atlas.store import DATA_VARIABLES
     >>> ds = make_dataset([10], [0.5], ["normal_cc"], {name: np.zeros((1, 1, 1)) for name in
     ...     DATA_VARIABLES}, n_spec="10", p_spec="0.5", history="example", tail_tolerance=1e-17)
     >>> small = compact(ds, "float32")
@@ -248,17 +245,22 @@ def save_atlas(ds, path, *, overwrite=True):
         If the target exists and ``overwrite`` is False.
     ValueError
         If ``ds`` lacks a variable of the schema.
+
+    Notes
+    -----
+    The method names are written as fixed-width characters over (method, method_strlen), not
+    as variable-length strings: with netCDF4 1.7.5, reading variable-length strings through a
+    second handle on an open file, closing it and opening the file again crashes the
+    interpreter (see :mod:`atlas.store`).
     """
     path = Path(path)
-    missing = [name for name in DATA_VARIABLES if name not in ds]
+    missing = [name for name in store.DATA_VARIABLES if name not in ds]
     if missing:
         raise ValueError(f"`ds` is not an atlas Dataset: it lacks {', '.join(missing)}.")
     if path.exists() and not overwrite:
         raise FileExistsError(
             f"`path` exists: {str(path)!r}; pass overwrite (--force) to replace it."
         )
-    if not path.parent.is_dir():
-        raise FileNotFoundError(f"`path` is in a directory that does not exist: {str(path)!r}.")
     chunks = (1, min(ds.sizes["n"], 256), ds.sizes["p"])
     encoding = {
         name: {
@@ -269,17 +271,13 @@ def save_atlas(ds, path, *, overwrite=True):
             "chunksizes": chunks,
             "_FillValue": None,
         }
-        for name in DATA_VARIABLES
+        for name in store.DATA_VARIABLES
     }
+    encoding["method"] = {"dtype": "S1", "char_dim_name": store.METHOD_STRLEN}
     encoding["n"] = {"_FillValue": None}
     encoding["p"] = {"_FillValue": None}
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-    try:
+    with replacing(path) as tmp:
         ds.to_netcdf(tmp, engine="netcdf4", format="NETCDF4", encoding=encoding)
-        os.replace(tmp, path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
     return path
 
 
@@ -296,7 +294,7 @@ def load_dataset(path, *, verify=False):
     Returns
     -------
     xarray.Dataset
-        Opened lazily; values are read on access.
+        Opened lazily; values are read on access. Closing it closes the file.
 
     Raises
     ------
@@ -307,37 +305,14 @@ def load_dataset(path, *, verify=False):
         or (with ``verify``) fails its checksum.
     """
     path = Path(path)
-    if not path.is_file():
-        raise FileNotFoundError(f"`path` names no atlas file: {str(path)!r}.")
+    nc = store.open_netcdf(path)
     try:
-        ds = xr.open_dataset(path, engine="netcdf4")
-    except Exception as err:  # netCDF4 raises OSError, xarray ValueError: refuse both the same
-        raise ValueError(
-            f"`path` is not a readable atlas file: {str(path)!r} ({type(err).__name__}: {err})."
-        ) from None
-    try:
-        schema = ds.attrs.get("atlas_schema")
-        if schema is None:
-            raise ValueError(
-                f"`path` is NetCDF but not an atlas file (it has no 'atlas_schema' attribute): "
-                f"{str(path)!r}."
-            )
-        if schema != SCHEMA_VERSION:
-            raise ValueError(
-                f"`path` holds an atlas of schema version {schema!r}; this version of approx-atlas "
-                f"reads schema {SCHEMA_VERSION!r}: {str(path)!r}."
-            )
-        missing = [v for v in (*DATA_VARIABLES, "method", "n", "p") if v not in ds.variables]
-        if missing:
-            raise ValueError(
-                f"`path` lacks the atlas variables {', '.join(missing)}: {str(path)!r}."
-            )
         if verify:
-            verify_checksum(ds, path)
+            store.verify_file(nc, path)
+        return store.to_dataset(nc)
     except Exception:
-        ds.close()
+        nc.close()
         raise
-    return ds
 
 
 def verify_checksum(ds, path=None):
@@ -364,25 +339,17 @@ def verify_checksum(ds, path=None):
     Examples
     --------
     >>> import numpy as np
+    >>> from atlas.store import DATA_VARIABLES
     >>> ds = make_dataset([10], [0.5], ["normal_cc"], {name: np.zeros((1, 1, 1)) for name in
     ...     DATA_VARIABLES}, n_spec="10", p_spec="0.5", history="example", tail_tolerance=1e-17)
     >>> verify_checksum(ds) == ds.attrs["checksum"]
     True
     """
-    where = f"`path` {str(path)!r}" if path is not None else "the atlas"
     try:
         ds.load()
     except Exception as err:  # netCDF4 raises RuntimeError (HDF error) for a damaged chunk
-        raise ValueError(f"{where} is corrupt: its data cannot be read ({err}).") from None
-    stored = ds.attrs.get("checksum")
-    if stored is None:
-        raise ValueError(f"{where} has no checksum attribute to verify.")
-    actual = data_checksum(ds)
-    if actual != stored:
-        raise ValueError(
-            f"{where} is corrupt: its checksum does not match (stored {stored}, data {actual})."
-        )
-    return actual
+        raise store.unreadable(err, path) from None
+    return store.verify_digest(ds.attrs.get("checksum"), data_checksum(ds), path)
 
 
 def describe_dataset(ds, path=None):
@@ -414,7 +381,7 @@ def describe_dataset(ds, path=None):
     methods = [str(m) for m in ds["method"].values]
     lines.append(f"methods ({len(methods)}): {', '.join(methods)}")
     lines.append("variables:")
-    for name in DATA_VARIABLES:
+    for name in store.DATA_VARIABLES:
         var = ds[name]
         lines.append(
             f"  {name}({', '.join(var.dims)}) {var.dtype}, units {var.attrs.get('units', '?')!r}: "
@@ -426,8 +393,3 @@ def describe_dataset(ds, path=None):
             text = str(attrs[key]).replace("\n", "\n" + " " * (len(key) + 2))
             lines.extend(f"{key}: {text}".split("\n"))
     return lines
-
-
-def default_path():
-    """The path of the embedded default atlas shipped inside the package."""
-    return Path(__file__).with_name("data") / "default_atlas.nc"

@@ -14,7 +14,7 @@ import contextlib
 import re
 import uuid
 
-from atlas.build import cell_cost, compute_chunk
+from atlas.build import chunk_arrays, chunk_work
 
 __all__ = ["connect", "parse_spec", "run_chunks"]
 
@@ -156,17 +156,6 @@ def connect(spec, *, timeout=10.0):
         yield client
 
 
-def _chunk_task(chunk, *, n, p, methods):
-    """Worker entry point: the arrays of one chunk, from the whole (scattered) axes."""
-    return compute_chunk(n[chunk.n_start : chunk.n_stop], p[chunk.p_start : chunk.p_stop], methods)
-
-
-def _work(chunk, n, p):
-    """Estimated work of a chunk (:func:`atlas.build.cell_cost` summed over its n)."""
-    block = p[chunk.p_start : chunk.p_stop]
-    return sum(cell_cost(int(value), block) for value in n[chunk.n_start : chunk.n_stop])
-
-
 def run_chunks(client, chunks, n, p, methods):
     """Compute chunks on a dask.distributed cluster, yielding each as it finishes.
 
@@ -229,7 +218,7 @@ def run_chunks(client, chunks, n, p, methods):
         n_future, p_future = state["axes"]
         keys = [f"atlas-chunk-{chunk.index:06d}-{run}-{round_}" for chunk in todo]
         futures = client.map(
-            _chunk_task,
+            chunk_arrays,  # the worker's entry point: one chunk of the whole (scattered) axes
             todo,
             key=keys,
             retries=RETRIES,
@@ -246,7 +235,7 @@ def run_chunks(client, chunks, n, p, methods):
     try:
         # client.map gives its tasks priorities in list order: the costliest chunks go first,
         # so that no long chunk starts last while the other workers idle.
-        submit(sorted(chunks, key=lambda chunk: -_work(chunk, n, p)))
+        submit(sorted(chunks, key=lambda chunk: -chunk_work(n, p, chunk)))
         for future, result in done:
             chunk, round_, _ = pending.pop(future.key)
             status = future.status

@@ -30,7 +30,8 @@ How the extremes are found, and why it is exact
    windows.
 
 F comes from ``scipy.stats.binom`` (Boost's incomplete beta), which agrees with a 40-digit mpmath
-sum to 2.5e-14 at n = 10^6 and 1.6e-13 at n = 10^8 (k near the mean); ``scipy.special.bdtr`` is not used, as it loses up to 0.1 there.
+sum to 2.5e-14 at n = 10^6 and 1.6e-13 at n = 10^8 (k near the mean); ``scipy.special.bdtr``
+is not used, as it loses up to 0.1 there.
 """
 
 from dataclasses import dataclass
@@ -224,6 +225,11 @@ def _cdf_rows(n, p, lo, hi, *, recurrence=False):
     return k, valid, start[:, None] + np.cumsum(pmf, axis=1)
 
 
+def _extremes(shape):
+    """Empty arrays for max D, its k, min D, its k."""
+    return [np.empty(shape), np.empty(shape, np.int64), np.empty(shape), np.empty(shape, np.int64)]
+
+
 def _every_integer(n, p, lo, hi, methods):
     """Extremes of D over [lo, hi] evaluated at every integer, for rows of p at one n.
 
@@ -231,7 +237,7 @@ def _every_integer(n, p, lo, hi, methods):
     """
     k, valid, cdf = _cdf_rows(n, p, lo, hi)
     shape = (len(methods), p.size)
-    out = [np.empty(shape), np.empty(shape, np.int64), np.empty(shape), np.empty(shape, np.int64)]
+    out = _extremes(shape)
     rows = np.arange(p.size)
     for i, method in enumerate(methods):
         d = cdf - approximate_cdf(k, n, p[:, None], method)
@@ -268,11 +274,11 @@ def _nested_search(n, p, lo, hi, methods):
     counts = np.minimum(np.maximum(np.ceil(c_hi - c_lo), 32), 8192).astype(np.int64) + 1
     if counts.size > 1 and (counts != counts[0]).any():
         shape = (len(methods), p.size)
-        out = [np.empty(shape), np.empty(shape, np.int64), np.empty(shape), np.empty(shape, np.int64)]
+        out = _extremes(shape)
         for c in np.unique(counts):
             rows = counts == c
             got = _nested_search(n, p[rows], lo[rows], hi[rows], methods)
-            for whole, part in zip(out, got):
+            for whole, part in zip(out, got, strict=True):
                 whole[:, rows] = part
         return out
     frac = np.linspace(0.0, 1.0, int(counts[0]))
@@ -283,7 +289,7 @@ def _nested_search(n, p, lo, hi, methods):
     pcol = p[:, None]
     coarse_cdf = _binom_cdf(coarse, n, pcol)
     shape = (len(methods), p.size)
-    out = [np.empty(shape), np.empty(shape, np.int64), np.empty(shape), np.empty(shape, np.int64)]
+    out = _extremes(shape)
     p2 = np.concatenate([p, p])
     coarse2 = np.concatenate([coarse, coarse])
     for i, method in enumerate(methods):
@@ -410,7 +416,7 @@ def _evaluate(n, p, methods, full=False):
     cdf = np.empty(shape)
     a = np.empty(shape, np.int64)
     b = np.empty(shape, np.int64)
-    for i, method in enumerate(methods):
+    for i in range(len(methods)):
         # The end points: D(-1) = -G(-1) counts for the interval metric only; D(n) = 1 - G(n).
         d_first, d_last = -ends[i, 0], 1.0 - ends[i, 1]
         hi_val = np.maximum(dmax[i], d_last)

@@ -9,35 +9,25 @@ The error variables are read from the file one method at a time, on first use, a
 memory; they are returned as float64 whether the file stores float64 or float32 (the compact
 embedded atlas: attribute ``error_precision``, 7 significant digits).
 
-Reading a file. :func:`open_atlas` reads the file with netCDF4 directly and builds the
-``xarray.Dataset`` only when :attr:`Atlas.dataset` is first used, so that a command-line query
-imports neither xarray nor pandas nor dask (xarray imports dask while decoding the method names
-whenever dask is installed). It applies the checks of :func:`atlas.cube.load_dataset`, with the
-same messages. Each file is opened once per process, and that one netCDF4 handle (and the Dataset
-built on it) is shared by every Atlas of the file and closed when the last of them is closed or
-garbage collected: with netCDF4 1.7.5 (and so with xarray on top of it), reading the
-variable-length method names through a second handle on an open file, closing that handle and
-opening the file again is a segmentation fault.
+Reading a file. :func:`open_atlas` reads the file through :mod:`atlas.store`, with netCDF4
+directly, and builds the ``xarray.Dataset`` only when :attr:`Atlas.dataset` is first used, so
+that a command-line query imports neither xarray nor pandas nor dask. Each file is opened once
+per process (:func:`atlas.store.share`): the one handle, and the Dataset built on it, is shared
+by every Atlas of the file and closed when the last of them is closed or garbage collected.
 """
 
-import os
-import threading
-import weakref
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
+from atlas import store
 from atlas.approximations import check_method
 from atlas.engine import check_metric, check_n, check_p, evaluate
 
 __all__ = ["Atlas", "Verdict", "check_tol", "open_atlas"]
 
 _VARIABLES = {"interval": "interval_error", "cdf": "cdf_error"}
-# The schema of atlas.cube, repeated here because atlas.cube imports xarray (tests/test_query.py
-# checks that the copies agree).
-_SCHEMA_VERSION = "1"
-_DATA_VARIABLES = ("interval_error", "cdf_error", "interval_lo", "interval_hi")
 _ENGINE_BLOCK = 128  # n values computed per step when min_n searches down from the top n
 
 
@@ -75,6 +65,23 @@ def _scalar(arr, name, what):
     if arr.ndim != 0:
         raise ValueError(f"`{name}` must be a single {what} here; got shape {arr.shape}.")
     return arr.item()
+
+
+def _point(n, p):
+    """One checked (n, p): an integer n >= 1 and a p in (0, 1), as Python numbers."""
+    return _scalar(check_n(n), "n", "integer"), _scalar(check_p(p), "p", "number")
+
+
+def _one_tol(tol):
+    """One checked tolerance, as a float."""
+    return float(_scalar(check_tol(tol), "tol", "number"))
+
+
+def _question(tol, method, metric):
+    """One checked tolerance, method and metric (checked in that order)."""
+    tol_value = _one_tol(tol)
+    check_metric(metric)
+    return tol_value, check_method(method)
 
 
 def _fmt(x):
@@ -174,7 +181,7 @@ class Atlas:
         self._dataset = dataset
         self.path = path
         self._cache = {}
-        self._file = None  # the shared _AtlasFile when opened by open_atlas
+        self._file = None  # the shared atlas.store.AtlasFile when opened by open_atlas
 
     @property
     def dataset(self):
@@ -188,18 +195,18 @@ class Atlas:
         """The methods held in the atlas, as a tuple of str."""
         methods = self._cache.get("methods")
         if methods is None:
-            values = self._file.nc.variables["method"][:] if self._file else None
-            if values is None:
-                values = self.dataset["method"].values
-            methods = self._cache["methods"] = tuple(str(m) for m in np.ravel(values))
+            if self._file is not None:
+                methods = self._file.methods()
+            else:
+                methods = tuple(str(m) for m in np.ravel(self.dataset["method"].values))
+            self._cache["methods"] = methods
         return methods
 
     @property
     def attrs(self):
         """The global attributes of the atlas (title, history, comment, checksum, ...)."""
         if self._file is not None and self._dataset is None:
-            nc = self._file.nc
-            return {name: nc.getncattr(name) for name in nc.ncattrs()}
+            return self._file.attrs()
         return dict(self.dataset.attrs)
 
     @property
@@ -237,7 +244,7 @@ class Atlas:
         if self._file is None:
             self.dataset.close()
         else:
-            _release(self)
+            store.release(self._file, self)
 
     def __enter__(self):
         return self
@@ -251,8 +258,7 @@ class Atlas:
         axes = self._cache.get("axes")
         if axes is None:
             if self._file is not None:
-                n_values = self._file.nc.variables["n"][:]
-                p_values = self._file.nc.variables["p"][:]
+                n_values, p_values = self._file.axes()
             else:
                 n_values, p_values = self.dataset["n"].values, self.dataset["p"].values
             n_axis = np.array(n_values, dtype=np.int64)
@@ -268,11 +274,11 @@ class Atlas:
         values = self._cache.get(key)
         if values is None:
             index = self.methods.index(method)
-            if self._file is not None and not self._file.nc.isopen():
+            if self._file is not None and not self._file.isopen():
                 raise ValueError(f"the atlas file is closed: {str(self.path)!r}.")
             try:
                 if self._file is not None:
-                    values = np.asarray(self._file.nc.variables[name][index])
+                    values = self._file.read(name, index)
                 else:
                     values = np.asarray(self.dataset[name].isel(method=index).values)
             except Exception as err:  # netCDF4/HDF5 raise RuntimeError or OSError on a bad chunk
@@ -527,9 +533,8 @@ class Atlas:
         >>> v.safe, round(v.error, 6), v.worst_interval, v.source
         (False, 0.005372, (2, 8), 'atlas')
         """
-        n_value = _scalar(check_n(n), "n", "integer")
-        p_value = _scalar(check_p(p), "p", "number")
-        tol_value = float(_scalar(check_tol(tol), "tol", "number"))
+        n_value, p_value = _point(n, p)
+        tol_value = _one_tol(tol)
         values, hit, lo, hi = self._cells(n_value, p_value, method, metric, bounds=True)
         error = float(values)
         return Verdict(
@@ -586,9 +591,7 @@ class Atlas:
         6
         """
         p_value = _scalar(check_p(p), "p", "number")
-        tol_value = float(_scalar(check_tol(tol), "tol", "number"))
-        check_metric(metric)
-        method = check_method(method)
+        tol_value, method = _question(tol, method, metric)
         return self._smallest_safe_suffix(np.array([p_value]), tol_value, method, metric)
 
     def min_n_over(self, p_lo, p_hi, tol, *, method="normal_cc", metric="interval"):
@@ -599,10 +602,8 @@ class Atlas:
         ----------
         p_lo, p_hi : float
             The closed interval of p, ``0 < p_lo <= p_hi < 1``; it must hold a grid p.
-        tol : float
-            Tolerance, 0 < tol < inf.
-        method, metric : str, optional
-            As for :meth:`error`.
+        tol, method, metric
+            As for :meth:`min_n`.
 
         Returns
         -------
@@ -621,9 +622,7 @@ class Atlas:
         :meth:`min_n`, only the grid n are checked beyond :attr:`dense_n`.
         """
         chosen = self.select_p(p_lo, p_hi)
-        tol_value = float(_scalar(check_tol(tol), "tol", "number"))
-        check_metric(metric)
-        method = check_method(method)
+        tol_value, method = _question(tol, method, metric)
         return self._smallest_safe_suffix(chosen, tol_value, method, metric)
 
     def best_method(self, n, p, *, metric="interval"):
@@ -647,8 +646,7 @@ class Atlas:
         ValueError
             For a bad n, p or metric, or arrays.
         """
-        n_value = _scalar(check_n(n), "n", "integer")
-        p_value = _scalar(check_p(p), "p", "number")
+        n_value, p_value = _point(n, p)
         check_metric(metric)
         methods = self.methods
         hit, i, j = self._locate(np.array([n_value]), np.array([p_value]))
@@ -685,9 +683,7 @@ class Atlas:
         """
         import xarray as xr
 
-        tol_value = float(_scalar(check_tol(tol), "tol", "number"))
-        check_metric(metric)
-        method = check_method(method)
+        tol_value, method = _question(tol, method, metric)
         n_axis, p_axis = self._axes()
         errors = self._columns(0, n_axis.size, p_axis, method, metric)
         return xr.DataArray(
@@ -724,103 +720,6 @@ def _compute(n, p, method):
     return out
 
 
-def _default_path():
-    """The embedded atlas: the same file as :func:`atlas.cube.default_path`."""
-    return Path(__file__).with_name("data") / "default_atlas.nc"
-
-
-def _open_netcdf(path):
-    """Open an atlas file with netCDF4 and apply the checks of :func:`atlas.cube.load_dataset`."""
-    if not path.is_file():
-        raise FileNotFoundError(f"`path` names no atlas file: {str(path)!r}.")
-    import netCDF4
-
-    try:
-        nc = netCDF4.Dataset(path, "r")
-    except Exception as err:  # netCDF4 raises OSError for a file that is not NetCDF
-        raise ValueError(
-            f"`path` is not a readable atlas file: {str(path)!r} ({type(err).__name__}: {err})."
-        ) from None
-    try:
-        schema = nc.getncattr("atlas_schema") if "atlas_schema" in nc.ncattrs() else None
-        if schema is None:
-            raise ValueError(
-                f"`path` is NetCDF but not an atlas file (it has no 'atlas_schema' attribute): "
-                f"{str(path)!r}."
-            )
-        if schema != _SCHEMA_VERSION:
-            raise ValueError(
-                f"`path` holds an atlas of schema version {schema!r}; this version of approx-atlas "
-                f"reads schema {_SCHEMA_VERSION!r}: {str(path)!r}."
-            )
-        missing = [v for v in (*_DATA_VARIABLES, "method", "n", "p") if v not in nc.variables]
-        if missing:
-            raise ValueError(
-                f"`path` lacks the atlas variables {', '.join(missing)}: {str(path)!r}."
-            )
-        odd = [v for v in _DATA_VARIABLES if nc.variables[v].dimensions != ("method", "n", "p")]
-        if odd:
-            raise ValueError(
-                f"`path` has atlas variables without the dimensions (method, n, p): "
-                f"{', '.join(odd)}: {str(path)!r}."
-            )
-        nc.set_auto_mask(False)  # plain arrays: the atlas has no fill values
-    except Exception:
-        nc.close()
-        raise
-    return nc
-
-
-def _close_handles(handles):
-    """Close an atlas file's Dataset (if built) and netCDF4 handle; safe to call twice."""
-    ds, nc = handles.pop("ds", None), handles.pop("nc", None)
-    if ds is not None:
-        ds.close()
-    if nc is not None and nc.isopen():
-        nc.close()
-
-
-class _AtlasFile:
-    """One atlas file open in this process: its netCDF4 handle, the Dataset built on that handle
-    when asked for, and the atlases that use them. The file is closed when the last atlas using
-    it is closed or garbage collected."""
-
-    def __init__(self, path):
-        self.path = path
-        self.nc = _open_netcdf(path)
-        self.ds = None
-        self.holders = weakref.WeakSet()
-        self._handles = {"nc": self.nc}
-        self.close = weakref.finalize(self, _close_handles, self._handles)
-
-    def dataset(self):
-        if self.ds is None:
-            import xarray as xr
-
-            # On the open handle, not a second one (see the module notes).
-            self.ds = xr.open_dataset(xr.backends.NetCDF4DataStore(self.nc))
-            self._handles["ds"] = self.ds
-        return self.ds
-
-
-# (st_dev, st_ino, st_size, st_mtime_ns) -> _AtlasFile, held by its atlases only
-_OPEN = weakref.WeakValueDictionary()
-_OPEN_LOCK = threading.Lock()
-
-
-def _release(atlas):
-    """Drop ``atlas`` from its file's holders; close the file when no other atlas holds it."""
-    with _OPEN_LOCK:
-        entry = atlas._file
-        entry.holders.discard(atlas)
-        if len(entry.holders):
-            return
-        for key, value in list(_OPEN.items()):
-            if value is entry:
-                del _OPEN[key]
-        entry.close()
-
-
 def open_atlas(path=None, *, verify=False):
     """Open an atlas file, or the embedded default atlas.
 
@@ -851,25 +750,12 @@ def open_atlas(path=None, *, verify=False):
     is not opened again: the new Atlas shares the open file, which is closed when the last Atlas
     sharing it is closed or garbage collected. A file replaced on disk is opened afresh.
     """
-    target = Path(_default_path() if path is None else path)
-    try:
-        st = os.stat(target)
-        key = (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns)
-    except OSError:
-        key = None
-    with _OPEN_LOCK:
-        entry = _OPEN.get(key)
-        if entry is None or not entry.nc.isopen():
-            entry = _AtlasFile(target)  # raises FileNotFoundError / ValueError
-            _OPEN[key] = entry
-        atlas = Atlas(None, path=target)
-        atlas._file = entry
-        entry.holders.add(atlas)
+    target = Path(store.default_path() if path is None else path)
+    atlas = Atlas(None, path=target)
+    atlas._file = store.share(target, atlas)  # raises FileNotFoundError / ValueError
     if verify:
-        from atlas import cube
-
         try:
-            cube.verify_checksum(atlas.dataset, target)
+            atlas._file.verify()
         except Exception:
             atlas.close()
             raise

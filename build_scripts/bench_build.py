@@ -31,7 +31,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 import numpy as np  # noqa: E402
 
-from atlas import METHODS, cube, grid  # noqa: E402
+from atlas import METHODS, grid, store  # noqa: E402
 from atlas.build import build_atlas  # noqa: E402
 
 
@@ -92,7 +92,7 @@ def main(argv=None):
     # Under load the wall times measure the other processes too; the CPU times do not. On idle
     # cores the 2-worker run would take about c2 / 2 (if its chunks balance), hence:
     print(f"CPU-time ratio (1-worker CPU / half the 2-worker CPU): {c1 / (c2 / 2):.2f}x")
-    same = all(np.array_equal(one[v].values, two[v].values) for v in cube.DATA_VARIABLES)
+    same = all(np.array_equal(one[v].values, two[v].values) for v in store.DATA_VARIABLES)
     print(f"identical bit for bit: {same}")
     print(f"load average after: {_load()}")
 

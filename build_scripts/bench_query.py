@@ -135,13 +135,13 @@ def main(argv=None):
     parser.add_argument("--repeats", type=int, default=5, help="runs per measurement (median)")
     args = parser.parse_args(argv)
 
-    from atlas import cube
+    from atlas import store
 
     with tempfile.TemporaryDirectory() as folder:
         if args.atlas is not None:
             path, where = Path(args.atlas), f"the given atlas {args.atlas}"
-        elif cube.default_path().exists():
-            path, where = cube.default_path(), f"the embedded atlas {cube.default_path()}"
+        elif store.default_path().exists():
+            path, where = store.default_path(), f"the embedded atlas {store.default_path()}"
         else:
             path, built = _temporary_atlas(folder)
             where = (

@@ -26,11 +26,11 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))  # this checkout's atlas, not an installed copy
 
-from atlas import charts, sheets  # noqa: E402
+from atlas import charts, figures, files, sheets, tables  # noqa: E402
 from atlas.engine import METRICS  # noqa: E402
 from atlas.query import open_atlas  # noqa: E402
 
-HEADLINE = charts.HEADLINE_METHODS  # normal_cc, edgeworth_cc
+HEADLINE = sheets.HEADLINE_METHODS  # normal_cc, edgeworth_cc
 
 
 def _charts(atlas):
@@ -76,21 +76,21 @@ def main(argv=None):
     written += sheets.write_wiki(atlas, out)
     for stem, make in _charts(atlas):
         fig = make()
-        written.append(charts.save_figure(fig, out / f"{stem}.png"))
+        written.append(figures.save_figure(fig, out / f"{stem}.png"))
         svg = out / f"{stem}.svg"
         if svg not in written:
-            written.append(charts.save_figure(fig, svg))
+            written.append(figures.save_figure(fig, svg))
 
     for method in HEADLINE:
         for metric in METRICS:
-            table = sheets.threshold_table(atlas, method=method, metric=metric)
+            table = tables.threshold_table(atlas, method=method, metric=metric)
             for fmt in ("csv", "md"):
                 path = out / f"min_n_{method}_{metric}.{fmt}"
-                written.append(sheets.save_text(path, table.render(fmt)))
+                written.append(files.save_text(path, table.render(fmt)))
 
-    audit = sheets.rule_audit(atlas)
-    written.append(sheets.save_text(out / "rules_audit.md", audit.to_markdown()))
-    written.append(sheets.save_text(out / "rules_audit.json", audit.to_json()))
+    audit = tables.rule_audit(atlas)
+    written.append(files.save_text(out / "rules_audit.md", audit.to_markdown()))
+    written.append(files.save_text(out / "rules_audit.json", audit.to_json()))
     written.append(sheets.write_sheet(atlas, out / "reference_sheet.pdf"))
 
     for path in written:

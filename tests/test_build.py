@@ -12,7 +12,7 @@ import pytest
 import xarray as xr
 
 import atlas
-from atlas import build, cube, grid
+from atlas import build, cube, grid, store
 from atlas.cli import main
 from atlas.engine import evaluate
 
@@ -29,7 +29,7 @@ def serial():
 
 
 def _same_bits(a, b):
-    for name in (*cube.DATA_VARIABLES, "n", "p"):
+    for name in (*store.DATA_VARIABLES, "n", "p"):
         assert a[name].dtype == b[name].dtype, name
         assert np.array_equal(a[name].values, b[name].values), name
     assert list(a["method"].values) == list(b["method"].values)
@@ -423,11 +423,11 @@ def test_cli_inspect_refuses_bad_files(tmp_path, capsys):
 
 
 def test_cli_inspect_default_atlas(capsys):
-    if not cube.default_path().exists():
+    if not store.default_path().exists():
         pytest.skip("the embedded atlas is not built (build_scripts/build_default_atlas.py)")
     assert main(["inspect"]) == 0
     out = capsys.readouterr().out.splitlines()
-    assert out[0].startswith(f"file: {cube.default_path()} (")
+    assert out[0].startswith(f"file: {store.default_path()} (")
     assert f"n_spec: {grid.DEFAULT_N_SPEC}" in out
     assert out[-1].startswith("checksum: ok (sha256:")
 

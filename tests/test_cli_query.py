@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from atlas import METHODS, cube, query, worst_error
+from atlas import METHODS, cube, store, worst_error
 from atlas.cli import main
 from atlas.query import open_atlas
 
@@ -202,7 +202,7 @@ def test_demo_on_a_given_atlas(capsys, path, at):
     assert lines[-1] == f"  caution: {cube.CAUTION}"
 
 
-@pytest.mark.skipif(not cube.default_path().exists(), reason="the embedded atlas is not built yet")
+@pytest.mark.skipif(not store.default_path().exists(), reason="the embedded atlas is not built yet")
 def test_demo_on_the_embedded_atlas(capsys):
     status, out, err = run(capsys, "demo")
     assert status == 0 and err == "" and "caution:" in out
@@ -210,7 +210,7 @@ def test_demo_on_the_embedded_atlas(capsys):
 
 def test_demo_without_the_embedded_atlas(capsys, monkeypatch, tmp_path):
     missing = tmp_path / "default_atlas.nc"
-    monkeypatch.setattr(query, "_default_path", lambda: missing)
+    monkeypatch.setattr(store, "default_path", lambda: missing)
     status, out, err = run(capsys, "demo")
     assert (status, out) == (2, "")
     assert err == f"approx-atlas: error: `path` names no atlas file: {str(missing)!r}.\n"
@@ -343,4 +343,4 @@ def test_commands_leave_no_file_open(capsys, small_atlas):
     assert run(capsys, "query", "--n", "50", "--p", "0.1", "--tol", "0.01", "--atlas", path)[0] == 0
     assert run(capsys, "compare", "--n", "5", "--p", "0.5", "--atlas", path)[0] == 0
     gc.collect()
-    assert [e for e in query._OPEN.values() if str(e.path) == path] == []
+    assert [e for e in store._OPEN.values() if str(e.path) == path] == []

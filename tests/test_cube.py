@@ -15,7 +15,7 @@ from numpy.testing import assert_allclose, assert_array_equal
 from scipy import stats
 
 import atlas
-from atlas import cube
+from atlas import cube, store
 from atlas.approximations import approximate_cdf
 from atlas.engine import TAIL_TOL, evaluate
 
@@ -54,7 +54,7 @@ def test_layout(small_atlas):
         assert ds[name].dtype == np.float64
     for name in ("interval_lo", "interval_hi"):
         assert ds[name].dtype == np.int64
-    for name in cube.DATA_VARIABLES:
+    for name in store.DATA_VARIABLES:
         attrs = ds[name].attrs
         assert set(attrs) >= {"long_name", "units", "description"}
         assert attrs["units"] == "1"
@@ -64,7 +64,7 @@ def test_layout(small_atlas):
     assert set(keys) <= set(ds.attrs)
     assert ds.attrs["Conventions"].startswith("CF-")
     assert ds.attrs["source"] == f"approx-atlas {atlas.__version__}"
-    assert ds.attrs["atlas_schema"] == cube.SCHEMA_VERSION
+    assert ds.attrs["atlas_schema"] == store.SCHEMA_VERSION
     assert ds.attrs["comment"] == cube.CAUTION
     assert ds.attrs["tail_tolerance"] == TAIL_TOL
     assert ds.attrs["error_precision"] == "float64"
@@ -154,13 +154,15 @@ def test_compact_bad_precision(tiny):
 
 
 def test_plain_netcdf4(small_atlas):
-    # Readable without xarray: dimensions, attributes and a value equal to the engine's.
+    # Readable without xarray: dimensions, attributes and a value equal to the engine's. The
+    # method names are fixed-width characters: a dimension as long as the longest name.
     ds = small_atlas["dataset"]
     with netCDF4.Dataset(small_atlas["float64"]) as f:
         assert {name: len(dim) for name, dim in f.dimensions.items()} == {
             "method": ds.sizes["method"],
             "n": ds.sizes["n"],
             "p": ds.sizes["p"],
+            "method_strlen": max(len(m) for m in ds["method"].values),
         }
         var = f.variables["interval_error"]
         assert var.dimensions == ("method", "n", "p")
@@ -169,7 +171,7 @@ def test_plain_netcdf4(small_atlas):
         assert var.long_name == "worst-case error of interval probabilities"
         assert "max D - min D" in var.description
         assert f.variables["interval_lo"].dtype == np.int64
-        assert f.getncattr("atlas_schema") == cube.SCHEMA_VERSION
+        assert f.getncattr("atlas_schema") == store.SCHEMA_VERSION
         assert f.getncattr("Conventions").startswith("CF-")
         methods = list(f.variables["method"][:])
         n = f.variables["n"][:]
@@ -188,7 +190,7 @@ def test_checksum_changes_with_one_value(tiny):
     base = cube.data_checksum(tiny)
     assert base == tiny.attrs["checksum"]
     assert base.startswith("sha256:") and len(base) == 7 + 64
-    for name in cube.DATA_VARIABLES:
+    for name in store.DATA_VARIABLES:
         changed = tiny.copy(deep=True)
         values = changed[name].values
         values[1, 2, 0] = values[1, 2, 0] + (1 if values.dtype.kind == "i" else 1e-15)
@@ -255,7 +257,7 @@ def test_a_few_bytes_changed_in_data(tmp_path, tiny):
     # Without compression a chunk's bytes are findable: change one byte of interval_error.
     path = tmp_path / "plain.nc"
     encoding = {name: {"zlib": False, "fletcher32": True, "contiguous": False,
-                       "chunksizes": (1, 5, 3)} for name in cube.DATA_VARIABLES}  # fmt: skip
+                       "chunksizes": (1, 5, 3)} for name in store.DATA_VARIABLES}  # fmt: skip
     tiny.to_netcdf(path, engine="netcdf4", encoding=encoding)
     data = bytearray(path.read_bytes())
     needle = np.ascontiguousarray(tiny["interval_error"].values[0]).tobytes()

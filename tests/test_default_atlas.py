@@ -12,7 +12,7 @@ from numpy.testing import assert_allclose, assert_array_equal
 from scipy import stats
 
 import atlas
-from atlas import cube, grid
+from atlas import cube, grid, store
 from atlas.approximations import approximate_cdf
 from atlas.engine import evaluate
 
@@ -28,7 +28,7 @@ MAX_BYTES = 25_000_000  # the package-data limit
 
 @pytest.fixture(scope="module")
 def default():
-    path = cube.default_path()
+    path = store.default_path()
     if not path.exists():
         pytest.fail(f"the embedded atlas is missing: run build_scripts/build_default_atlas.py "
                     f"to write {path}")  # fmt: skip
@@ -49,12 +49,12 @@ def _sample_cells(ds):
 
 
 def test_file_size_and_format(default):
-    assert cube.default_path().stat().st_size < MAX_BYTES
+    assert store.default_path().stat().st_size < MAX_BYTES
     assert default["interval_error"].dtype == np.float32
     assert default["cdf_error"].dtype == np.float32
     assert default["interval_lo"].dtype == np.int64
     assert default.attrs["error_precision"] == "float32 (7 significant digits)"
-    assert default.attrs["atlas_schema"] == cube.SCHEMA_VERSION
+    assert default.attrs["atlas_schema"] == store.SCHEMA_VERSION
 
 
 def test_grid_is_the_default(default):
@@ -78,8 +78,18 @@ def test_every_integer_n_to_2000(default):
     assert int(default["n"].values[-1]) == 10**8
 
 
+def test_method_names_are_fixed_width():
+    # Resaved by build_scripts/build_default_atlas.py --resave: variable-length names crash
+    # netCDF4 1.7.5 when a second handle is closed and the file reopened (tests/test_store.py).
+    import netCDF4
+
+    with netCDF4.Dataset(store.default_path()) as f:
+        assert f.variables["method"].dimensions == ("method", store.METHOD_STRLEN)
+        assert f.variables["method"].dtype == np.dtype("S1")
+
+
 def test_checksum_verifies():
-    with cube.load_dataset(cube.default_path(), verify=True) as ds:
+    with cube.load_dataset(store.default_path(), verify=True) as ds:
         assert ds.attrs["checksum"] == cube.data_checksum(ds)
 
 

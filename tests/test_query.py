@@ -21,7 +21,7 @@ import xarray as xr
 from numpy.testing import assert_allclose, assert_array_equal
 
 import atlas
-from atlas import METHODS, cube, query, worst_error, worst_interval
+from atlas import METHODS, cube, query, store, worst_error, worst_interval
 from atlas.query import Atlas, Verdict, check_tol, open_atlas
 
 # The cube holds the engine's own float64 results, so on-grid values agree to rounding only.
@@ -83,11 +83,11 @@ def test_opening_reads_no_variable_and_caches_one_method(small_atlas):
         assert read == [("interval_error", "normal_cc")]
 
 
-def test_schema_copies_agree_with_the_cube():
-    # atlas.query repeats these so that a query does not import xarray (atlas.cube does).
-    assert query._SCHEMA_VERSION == cube.SCHEMA_VERSION
-    assert query._DATA_VARIABLES == cube.DATA_VARIABLES
-    assert query._default_path() == cube.default_path()
+def test_one_reader_for_the_query_and_the_cube():
+    # atlas.query and atlas.cube read files through atlas.store: no copy of the schema left.
+    assert not hasattr(query, "_SCHEMA_VERSION") and not hasattr(query, "_open_netcdf")
+    assert not hasattr(cube, "SCHEMA_VERSION") and not hasattr(cube, "default_path")
+    assert query.store is store and cube.store is store
 
 
 def test_query_layer_does_not_import_xarray(small_atlas):
@@ -132,10 +132,10 @@ def test_open_missing_file():
         open_atlas("/nonexistent/atlas.nc")
 
 
-@pytest.mark.skipif(not cube.default_path().exists(), reason="the embedded atlas is not built yet")
+@pytest.mark.skipif(not store.default_path().exists(), reason="the embedded atlas is not built yet")
 def test_open_embedded_default():
     with open_atlas() as embedded:
-        assert embedded.path == cube.default_path()
+        assert embedded.path == store.default_path()
         assert "normal_cc" in embedded.methods
         assert embedded.dense_n == 2000  # DEFAULT_N_SPEC = "1:2000,log:..."
 

@@ -1,0 +1,243 @@
+"""What the charts, tables and sheets share: the atlas they are drawn from, the words for methods
+and metrics, the provenance line and caution at the foot of every page, the figure style, and
+saving a figure atomically.
+
+matplotlib is imported inside the functions (:func:`mpl`), so ``import atlas`` does not import
+it; figures are built without :mod:`matplotlib.pyplot` (no display, no backend, no global
+figure registry).
+"""
+
+import math
+import re
+import textwrap
+from pathlib import Path
+
+import numpy as np
+
+from atlas import cube
+from atlas.engine import check_metric
+from atlas.files import replacing
+
+__all__ = [
+    "FOOTER_STYLE",
+    "FORMATS",
+    "METHOD_LABELS",
+    "METRIC_FORMULAS",
+    "METRIC_LABELS",
+    "MIN_PNG_WIDTH",
+    "PNG_DPI",
+    "TEXT_COLOUR",
+    "VECTOR_RASTER_DPI",
+    "as_dataset",
+    "atlas_methods",
+    "check_atlas_method",
+    "check_choice",
+    "errors_on_grid",
+    "figure_format",
+    "footer",
+    "footer_lines",
+    "format_level",
+    "mpl",
+    "provenance_line",
+    "save_figure",
+]
+
+FORMATS = ("png", "svg", "pdf")
+MIN_PNG_WIDTH = 1600  # pixels
+PNG_DPI = 200
+VECTOR_RASTER_DPI = {"svg": 150, "pdf": 200}  # the fills of a vector file: screen, print
+TEXT_COLOUR = "#333333"  # dark grey: footers, page numbers, notes
+#: The text of every footer: the provenance line and the caution (points, colour, line spacing).
+FOOTER_STYLE = {"fontsize": 7.5, "color": TEXT_COLOUR, "linespacing": 1.35}
+METHOD_LABELS = {
+    "normal_cc": "normal, continuity-corrected",
+    "edgeworth_cc": "one-term Edgeworth, continuity-corrected",
+    "edgeworth2_cc": "two-term Edgeworth, continuity-corrected",
+    "normal": "normal, uncorrected",
+    "poisson": "Poisson",
+    "camp_paulson": "Camp-Paulson",
+    "peizer_pratt": "Peizer-Pratt",
+}
+METRIC_LABELS = {"interval": "interval probabilities", "cdf": "the cumulative distribution"}
+METRIC_FORMULAS = {
+    "interval": "max over 0 ≤ a ≤ b ≤ n of |P(a ≤ X ≤ b) − (G(b) − G(a−1))|",
+    "cdf": "max over 0 ≤ k ≤ n of |P(X ≤ k) − G(k)|",
+}
+_VARIABLES = {"interval": "interval_error", "cdf": "cdf_error"}
+
+
+def mpl():
+    """Import matplotlib's object-oriented pieces (not pyplot) and return the package."""
+    import matplotlib
+    import matplotlib.colors
+    import matplotlib.figure
+    import matplotlib.lines
+    import matplotlib.patches
+    import matplotlib.patheffects
+    import matplotlib.ticker
+
+    return matplotlib
+
+
+# ---- the atlas behind an output ----------------------------------------------------------------
+
+
+def as_dataset(atlas):
+    """The Dataset of an Atlas (or a Dataset passed as is); TypeError for anything else."""
+    ds = getattr(atlas, "dataset", atlas)
+    if not hasattr(ds, "data_vars") or "interval_error" not in ds:
+        kind = type(atlas).__name__
+        raise TypeError(f"`atlas` must be an Atlas or an atlas Dataset; got {kind}.")
+    return ds
+
+
+def atlas_methods(ds):
+    """The methods of an atlas Dataset, a tuple of str."""
+    return tuple(str(m) for m in ds["method"].values)
+
+
+def check_atlas_method(ds, method, name="method"):
+    """Return ``method`` if the atlas holds it, else raise ValueError listing those it holds."""
+    held = atlas_methods(ds)
+    if not isinstance(method, str) or method not in held:
+        valid = ", ".join(repr(m) for m in held)
+        raise ValueError(f"`{name}` must be one of {valid} (the atlas's methods); got {method!r}.")
+    return method
+
+
+def check_choice(value, name, options):
+    """Return ``value`` if it is one of ``options``, else raise ValueError listing them."""
+    if not isinstance(value, str) or value not in options:
+        valid = ", ".join(repr(o) for o in options)
+        raise ValueError(f"`{name}` must be one of {valid}; got {value!r}.")
+    return value
+
+
+def errors_on_grid(atlas, method, metric):
+    """The (n, p) array of one method's errors, read from the Dataset, as float64."""
+    ds = as_dataset(atlas)
+    check_metric(metric)
+    check_atlas_method(ds, method)
+    index = atlas_methods(ds).index(method)
+    return np.asarray(ds[_VARIABLES[metric]].isel(method=index).values, dtype=np.float64)
+
+
+# ---- words -------------------------------------------------------------------------------------
+
+
+def format_level(value):
+    """0.01, 0.005, 0.001, 1e-4: a tolerance as people write it.
+
+    Examples
+    --------
+    >>> [format_level(v) for v in (0.01, 1e-4, 2.5e-5)]
+    ['0.01', '1e-4', '2.5e-5']
+    """
+    if value >= 1e-3:
+        return f"{value:g}"
+    mantissa, exponent = f"{value:.2e}".split("e")
+    return f"{mantissa.rstrip('0').rstrip('.')}e{int(exponent)}"
+
+
+def _build_date(ds):
+    """The date (YYYY-MM-DD) the atlas was built, from the first line of its history."""
+    match = re.search(r"\d{4}-\d{2}-\d{2}", str(ds.attrs.get("history", "")))
+    return match.group(0) if match else "unknown date"
+
+
+def provenance_line(atlas):
+    """One line on where the atlas came from: version, schema, build date, grid and checksum."""
+    ds = as_dataset(atlas)
+    n, p = ds["n"].values, ds["p"].values
+    checksum = str(ds.attrs.get("checksum", ""))
+    short = checksum[: len("sha256:") + 12] + "…" if checksum else "no checksum"
+    return (
+        f"Atlas: {ds.attrs.get('source', 'approx-atlas')}, schema {ds.attrs.get('atlas_schema')}, "
+        f"built {_build_date(ds)}; grid n = {n[0]:,}…{n[-1]:,} ({n.size} values), "
+        f"p = {p[0]:.4g}…{p[-1]:.4g} ({p.size} values); "
+        f"{str(ds.attrs.get('error_precision', '')).split(' ')[0]}; "
+        f"{short}"
+    )
+
+
+def footer_lines(atlas, width, note=None):
+    """The provenance line, a note and the caution, wrapped at ``width`` characters."""
+    lines = textwrap.wrap(provenance_line(atlas), width)
+    if note:
+        lines += textwrap.wrap(note, width)
+    return lines + textwrap.wrap("Caution: " + cube.CAUTION, width)
+
+
+def footer(fig, ds, note=None):
+    """The provenance, a note and the caution at the foot of a figure with a constrained layout;
+    the layout's lower edge is set above it, however many lines it takes."""
+    size = FOOTER_STYLE["fontsize"]
+    width = int(0.975 * fig.get_figwidth() * 72 / (size * 0.55))  # characters per line
+    lines = footer_lines(ds, width, note)
+    fig.text(0.012, 0.012, "\n".join(lines), ha="left", va="bottom", gid="footer",
+             **FOOTER_STYLE)  # fmt: skip
+    bottom = 0.012 + (len(lines) * size * 1.35 + 10) / (72 * fig.get_figheight())
+    engine = fig.get_layout_engine()
+    left, lower, width, height = engine.get()["rect"]
+    engine.set(rect=(left, bottom, width, lower + height - bottom))
+
+
+# ---- files -------------------------------------------------------------------------------------
+
+
+def figure_format(path):
+    """The format of a figure file by its extension: "png", "svg" or "pdf"; else ValueError."""
+    suffix = Path(path).suffix.lower().lstrip(".")
+    if suffix not in FORMATS:
+        valid = ", ".join(f"'.{f}'" for f in FORMATS)
+        raise ValueError(f"`path` must end in one of {valid}; got {str(path)!r}.")
+    return suffix
+
+
+def save_figure(fig, path, *, dpi=None):
+    """Write a figure to PNG, SVG or PDF, chosen by the file's extension, atomically.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+    path : str or os.PathLike
+        Ending in ``.png``, ``.svg`` or ``.pdf``.
+    dpi : float, optional
+        PNG resolution; raised if needed so that the image is at least ``MIN_PNG_WIDTH`` = 1600
+        pixels wide (default 200 dpi). In SVG and PDF files only the colour fills are raster
+        images, at ``VECTOR_RASTER_DPI`` (150 and 200 dpi) unless ``dpi`` is given; text and
+        lines stay vectors.
+
+    Returns
+    -------
+    pathlib.Path
+        The path written.
+
+    Raises
+    ------
+    ValueError
+        For another extension (the message lists the valid ones).
+    FileNotFoundError
+        If the target's directory does not exist.
+
+    Notes
+    -----
+    The file is written to a temporary name in the target's directory and renamed when complete.
+    Vector files carry no creation date and fixed element ids, so a rerun writes the same bytes.
+    """
+    matplotlib = mpl()
+    path = Path(path)
+    fmt = figure_format(path)
+    if fmt == "png":
+        resolution = max(float(dpi or PNG_DPI), math.ceil(MIN_PNG_WIDTH / fig.get_figwidth()))
+    else:
+        resolution = float(dpi or VECTOR_RASTER_DPI[fmt])
+    metadata = {
+        "png": None,
+        "svg": {"Creator": None, "Date": None, "Format": None, "Type": None},  # no RDF block
+        "pdf": {"CreationDate": None},
+    }[fmt]
+    with replacing(path) as tmp:
+        with matplotlib.rc_context({"svg.hashsalt": "approx-atlas", "svg.fonttype": "path"}):
+            fig.savefig(tmp, format=fmt, dpi=resolution, metadata=metadata)
+    return path

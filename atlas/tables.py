@@ -1,0 +1,479 @@
+"""Threshold tables and rule-of-thumb audits: the data, and their CSV, Markdown and JSON text.
+
+- :func:`threshold_table`: the minimum n (:meth:`atlas.Atlas.min_n`) for each tolerance and p.
+- :func:`rule_audit`: for each rule of thumb (an expression in n, p and q, see
+  :mod:`atlas.rules`), method and metric, the worst error the rule admits on the atlas grid,
+  where it happens, and the share of the rule's cells that meet each tolerance.
+
+The printable sheet and the wiki page (:mod:`atlas.sheets`) set the same tables on paper and
+in HTML.
+"""
+
+import csv
+import io
+import json
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from atlas import figures
+from atlas.engine import METRICS, check_metric
+from atlas.figures import METRIC_FORMULAS, format_level, provenance_line
+from atlas.rules import CLASSIC_RULES, parse_rule, rule_name
+
+TABLE_TOLS = (0.01, 0.005, 0.001, 0.0001)
+TABLE_PS = (0.001, 0.01, 0.05, 0.1, 0.2, 0.3, 0.5)
+AUDIT_TOLS = (0.01, 0.005, 0.001)
+TABLE_FORMATS = ("csv", "md", "json")
+AUDIT_FORMATS = ("md", "json")
+
+
+def _as_atlas(atlas):
+    """An Atlas for the query API (a Dataset is wrapped)."""
+    if hasattr(atlas, "min_n"):
+        return atlas
+    from atlas.query import Atlas
+
+    return Atlas(figures.as_dataset(atlas))
+
+
+def _numbers(values, name, *, low=0.0, high=1.0):
+    """A non-empty tuple of floats in the open interval (low, high)."""
+    if isinstance(values, (int, float, np.number)):
+        values = (values,)
+    try:
+        out = tuple(float(v) for v in values)
+    except (TypeError, ValueError):
+        raise ValueError(
+            f"`{name}` must be a sequence of numbers in ({low:g}, {high:g}); got {values!r}."
+        ) from None
+    if not out:
+        raise ValueError(f"`{name}` must hold at least one number; got an empty sequence.")
+    for v in out:
+        if not (low < v < high):
+            raise ValueError(f"`{name}` must hold numbers in ({low:g}, {high:g}); got {v!r}.")
+    return out
+
+
+def _check_format(fmt, options):
+    return figures.check_choice(fmt, "format", options)
+
+
+def _fmt_error(x):
+    return "—" if x is None else f"{x:.3g}"
+
+
+def _fmt_p(x):
+    return f"{x:.6g}"
+
+
+_SUPERSCRIPTS = str.maketrans("0123456789", "⁰¹²³⁴⁵⁶⁷⁸⁹")
+
+
+def _compact_n(n):
+    """100,000,000 as 10⁸ (a power of ten from 10⁵ up), else with thousands separators."""
+    exponent = round(math.log10(n)) if n > 0 else 0
+    if exponent >= 5 and 10**exponent == n:
+        return "10" + str(exponent).translate(_SUPERSCRIPTS)
+    return f"{n:,}"
+
+
+def _fmt_share(x):
+    return "—" if x is None else f"{100 * x:.1f}%"
+
+
+def _json_text(record):
+    """A record as indented JSON text (UTF-8 characters kept), ending in a newline."""
+    return json.dumps(record, indent=2, ensure_ascii=False) + "\n"
+
+
+# ---- threshold tables ----------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class ThresholdTable:
+    """The minimum n for each p (rows) and tolerance (columns).
+
+    Attributes
+    ----------
+    method, metric : str
+    tols : tuple of float
+    ps : tuple of float
+    min_n : tuple of tuple
+        ``min_n[i][j]`` for ``ps[i]`` and ``tols[j]``: an int, or None when even the largest n of
+        the grid fails.
+    n_max : int
+        The largest n of the atlas grid.
+    dense_n : int
+        Up to this n the grid holds every integer, and a minimum n there is exact for every
+        integer; beyond it only grid n are checked.
+    provenance : str
+        :func:`atlas.figures.provenance_line` of the atlas.
+    """
+
+    method: str
+    metric: str
+    tols: tuple
+    ps: tuple
+    min_n: tuple
+    n_max: int
+    dense_n: int
+    provenance: str
+
+    def title(self):
+        return f"Minimum n for {self.method}, {self.metric} error"
+
+    def _cell(self, value):
+        if value is None:
+            return f"> {_compact_n(self.n_max)}"
+        return f"{value:,}" + (" †" if value > self.dense_n else "")
+
+    def notes(self):
+        """The footnotes of the table, as a list of sentences."""
+        return [
+            f"Each entry is the smallest n of the atlas grid from which on the worst-case "
+            f"{self.metric} error of {self.method} stays within the tolerance "
+            f"({METRIC_FORMULAS[self.metric]}).",
+            f"'> {_compact_n(self.n_max)}': not reached within the grid (n up to {self.n_max:,}).",
+            f"†: beyond n = {self.dense_n:,} only the grid's n are checked, not every integer.",
+        ]
+
+    def to_rows(self):
+        """Header and rows of display strings (for the sheet and the wiki)."""
+        header = ["p"] + [f"tol {format_level(t)}" for t in self.tols]
+        rows = [
+            [_fmt_p(p)] + [self._cell(v) for v in values]
+            for p, values in zip(self.ps, self.min_n, strict=True)
+        ]
+        return header, rows
+
+    def to_csv(self):
+        """CSV: a column ``p`` and one column per tolerance; an empty cell for None."""
+        buffer = io.StringIO()
+        writer = csv.writer(buffer, lineterminator="\n")
+        writer.writerow(["p"] + [f"tol={t:g}" for t in self.tols])
+        for p, values in zip(self.ps, self.min_n, strict=True):
+            writer.writerow([repr(p)] + ["" if v is None else v for v in values])
+        return buffer.getvalue()
+
+    def to_markdown(self):
+        """A Markdown table with its title and footnotes."""
+        header, rows = self.to_rows()
+        lines = [f"### {self.title()}", "", markdown_table(header, rows, align="r"), ""]
+        lines += [f"- {note}" for note in self.notes()]
+        return "\n".join(lines) + "\n"
+
+    def to_json(self):
+        """JSON: the parameters, ``min_n`` as a list of rows (null for None) and provenance."""
+        return _json_text(
+            {
+                "method": self.method,
+                "metric": self.metric,
+                "definition": METRIC_FORMULAS[self.metric],
+                "tols": list(self.tols),
+                "ps": list(self.ps),
+                "min_n": [list(row) for row in self.min_n],
+                "n_max": self.n_max,
+                "dense_n": self.dense_n,
+                "atlas": self.provenance,
+            }
+        )
+
+    def render(self, fmt):
+        """The table as ``"csv"``, ``"md"`` or ``"json"`` text."""
+        _check_format(fmt, TABLE_FORMATS)
+        return {"csv": self.to_csv, "md": self.to_markdown, "json": self.to_json}[fmt]()
+
+
+def threshold_table(atlas, tols=TABLE_TOLS, ps=TABLE_PS, *, method="normal_cc",
+                    metric="interval"):  # fmt: skip
+    """The minimum n for each tolerance and p, from :meth:`atlas.Atlas.min_n`.
+
+    Parameters
+    ----------
+    atlas : Atlas
+        An opened atlas.
+    tols : sequence of float, optional
+        Tolerances in (0, 1); default (0.01, 0.005, 0.001, 0.0001).
+    ps : sequence of float, optional
+        Success probabilities in (0, 1); default (0.001, 0.01, 0.05, 0.1, 0.2, 0.3, 0.5). A p
+        off the atlas's p axis is computed exactly by the engine over the grid's n.
+    method : str, optional
+        Default ``"normal_cc"``.
+    metric : {"interval", "cdf"}, optional
+
+    Returns
+    -------
+    ThresholdTable
+        With ``to_csv``, ``to_markdown`` and ``to_json``.
+
+    Raises
+    ------
+    ValueError
+        For tolerances or p outside (0, 1), an unknown method or metric.
+
+    Examples
+    --------
+    >>> from atlas import Atlas, build_atlas
+    >>> at = Atlas(build_atlas(n="1:40", p="0.5", methods="normal_cc", progress=False))
+    >>> threshold_table(at, [0.01], [0.5]).min_n  # W(5, 1/2) = 0.01114 > 0.01 >= W(6..40, 1/2)
+    ((6,),)
+    """
+    tols = _numbers(tols, "tols")
+    ps = _numbers(ps, "ps")
+    check_metric(metric)
+    atlas = _as_atlas(atlas)
+    values = tuple(
+        tuple(atlas.min_n(p, tol, method=method, metric=metric) for tol in tols) for p in ps
+    )
+    return ThresholdTable(
+        method=method,
+        metric=metric,
+        tols=tols,
+        ps=ps,
+        min_n=values,
+        n_max=int(atlas.n[-1]),
+        dense_n=int(atlas.dense_n),
+        provenance=provenance_line(atlas),
+    )
+
+
+# ---- rule audits ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class AuditRow:
+    """One rule, method and metric of a :class:`RuleAudit`.
+
+    Attributes
+    ----------
+    rule : str
+        The expression as written (``"n*p >= 5 and n*q >= 5"``).
+    name : str
+        Its textbook name (``"np >= 5 and nq >= 5"``), or the expression.
+    method, metric : str
+    cells : int
+        Grid cells (n, p) the rule admits.
+    worst_error : float or None
+        The largest error over those cells; None if the rule admits none.
+    worst_n : int or None
+    worst_p : float or None
+        The cell of the worst error (the first in (n, p) order on a tie).
+    shares : tuple of float or None
+        For each tolerance of the audit, the share of the rule's cells with error <= tol.
+    """
+
+    rule: str
+    name: str
+    method: str
+    metric: str
+    cells: int
+    worst_error: object
+    worst_n: object
+    worst_p: object
+    shares: tuple
+
+    def as_dict(self, tols):
+        out = {
+            "rule": self.rule,
+            "name": self.name,
+            "method": self.method,
+            "metric": self.metric,
+            "cells": self.cells,
+            "worst_error": self.worst_error,
+            "worst_n": self.worst_n,
+            "worst_p": self.worst_p,
+        }
+        out["share_within"] = {f"{t:g}": s for t, s in zip(tols, self.shares, strict=True)}
+        return out
+
+
+@dataclass(frozen=True)
+class RuleAudit:
+    """The worst error each rule of thumb admits on the atlas grid.
+
+    Attributes
+    ----------
+    rows : tuple of AuditRow
+        In the order rule, method, metric.
+    tols : tuple of float
+    grid_cells : int
+        Cells of the atlas grid (len(n) x len(p)).
+    provenance : str
+    """
+
+    rows: tuple
+    tols: tuple
+    grid_cells: int
+    provenance: str
+
+    def header(self):
+        return ["rule", "method", "metric", "cells", "worst error", "at n", "at p"] + [
+            f"≤ {format_level(t)}" for t in self.tols
+        ]
+
+    def to_rows(self, rows=None):
+        """Display strings for the given rows (all by default)."""
+        out = []
+        for row in self.rows if rows is None else rows:
+            out.append(
+                [
+                    row.name,
+                    row.method,
+                    row.metric,
+                    f"{row.cells:,}",
+                    _fmt_error(row.worst_error),
+                    "—" if row.worst_n is None else f"{row.worst_n:,}",
+                    "—" if row.worst_p is None else f"{row.worst_p:.4g}",
+                ]
+                + [_fmt_share(s) for s in row.shares]
+            )
+        return out
+
+    def notes(self):
+        return [
+            "worst error: the largest error over the grid cells (n, p) the rule admits; "
+            "at n, at p: where it occurs.",
+            "≤ tol: the share of the rule's grid cells whose error is within tol "
+            f"(of {self.grid_cells:,} grid cells in all; shares count cells, so they follow the "
+            "grid's density).",
+        ]
+
+    def to_markdown(self):
+        """A Markdown table with its notes."""
+        lines = ["### Rules of thumb: the worst error each admits", ""]
+        align = "lllrrrr" + "r" * len(self.tols)
+        lines += [markdown_table(self.header(), self.to_rows(), align=align)]
+        lines += [""] + [f"- {note}" for note in self.notes()]
+        return "\n".join(lines) + "\n"
+
+    def to_json(self):
+        """JSON: the tolerances, one object per row, and provenance."""
+        return _json_text(
+            {
+                "tols": list(self.tols),
+                "grid_cells": self.grid_cells,
+                "rows": [row.as_dict(self.tols) for row in self.rows],
+                "atlas": self.provenance,
+            }
+        )
+
+    def render(self, fmt):
+        """The audit as ``"md"`` or ``"json"`` text."""
+        _check_format(fmt, AUDIT_FORMATS)
+        return self.to_markdown() if fmt == "md" else self.to_json()
+
+
+def rule_audit(atlas, rules=None, *, methods=None, metrics=METRICS, tols=AUDIT_TOLS):
+    """Audit rules of thumb against the atlas: the worst error each admits on the grid.
+
+    Parameters
+    ----------
+    atlas : Atlas or xarray.Dataset
+    rules : sequence of str, optional
+        Rules as expressions in n, p and q (see :mod:`atlas.rules`); default the classic ones,
+        :data:`atlas.rules.CLASSIC_RULES`.
+    methods : sequence of str, optional
+        Methods of the atlas (default all).
+    metrics : sequence of str, optional
+        Default ("interval", "cdf").
+    tols : sequence of float, optional
+        Tolerances in (0, 1) for the shares; default (0.01, 0.005, 0.001).
+
+    Returns
+    -------
+    RuleAudit
+
+    Raises
+    ------
+    ValueError
+        For a rule the parser refuses, a method the atlas does not hold, a bad metric or tol.
+
+    Notes
+    -----
+    For a rule R, method m and metric e: worst = max over grid cells (n, p) with R(n, p) of
+    e_m(n, p); share(tol) = #{cells of R with e_m <= tol} / #{cells of R}.
+
+    Examples
+    --------
+    >>> from atlas import build_atlas
+    >>> ds = build_atlas(n="10,20,40", p="0.5", methods="normal_cc", progress=False)
+    >>> row = rule_audit(ds, ["n*p >= 5 and n*q >= 5"], metrics=["interval"]).rows[0]
+    >>> row.cells, row.worst_n, round(row.worst_error, 6)  # W(10, 1/2), REFERENCES.md
+    (3, 10, 0.005372)
+    """
+    ds = figures.as_dataset(atlas)
+    if isinstance(rules, str):
+        rules = (rules,)
+    parsed = [parse_rule(r) for r in (CLASSIC_RULES if rules is None else rules)]
+    if not parsed:
+        raise ValueError("`rules` must hold at least one rule; got an empty sequence.")
+    methods = figures.atlas_methods(ds) if methods is None else tuple(methods)
+    for m in methods:
+        figures.check_atlas_method(ds, m, "methods")
+    metrics = tuple(check_metric(x) for x in ((metrics,) if isinstance(metrics, str) else metrics))
+    tols = _numbers(tols, "tols")
+    n = np.asarray(ds["n"].values, dtype=np.int64)
+    p = np.asarray(ds["p"].values, dtype=np.float64)
+    masks = [rule(n[:, None], p[None, :]) for rule in parsed]
+    rows = []
+    errors = {}
+    for rule, mask in zip(parsed, masks, strict=True):
+        cells = int(mask.sum())
+        for method in methods:
+            for metric in metrics:
+                key = (method, metric)
+                if key not in errors:
+                    errors[key] = figures.errors_on_grid(ds, method, metric)
+                rows.append(_audit_row(rule, method, metric, mask, cells, errors[key], n, p, tols))
+    return RuleAudit(tuple(rows), tols, int(n.size * p.size), provenance_line(ds))
+
+
+def _audit_row(rule, method, metric, mask, cells, values, n, p, tols):
+    if cells == 0:
+        return AuditRow(rule.text, rule_name(rule), method, metric, 0, None, None, None,
+                        tuple(None for _ in tols))  # fmt: skip
+    admitted = np.where(mask, values, -np.inf)
+    admitted = np.where(np.isnan(admitted), np.inf, admitted)  # a NaN cell counts as worst
+    flat = int(np.argmax(admitted))  # the first in (n, p) order on a tie
+    i, j = np.unravel_index(flat, values.shape)
+    inside = values[mask]
+    shares = tuple(float(np.count_nonzero(inside <= t)) / cells for t in tols)
+    return AuditRow(rule.text, rule_name(rule), method, metric, cells,
+                    float(values[i, j]), int(n[i]), float(p[j]), shares)  # fmt: skip
+
+
+# ---- Markdown -------------------------------------------------------------------------------
+
+
+def escape_markdown(text):
+    """``text`` with its ``|`` escaped, for a Markdown table cell or list item."""
+    return str(text).replace("|", "\\|")
+
+
+def markdown_table(header, rows, *, align="l"):
+    """A Markdown table; ``align`` is one letter per column ("l" or "r"), or one for all."""
+    widths = len(header)
+    spec = (align * widths)[:widths] if len(align) == 1 else align
+    rule_line = ["---:" if a == "r" else ":---" for a in spec]
+    lines = ["| " + " | ".join(escape_markdown(h) for h in header) + " |",
+             "| " + " | ".join(rule_line) + " |"]  # fmt: skip
+    lines += ["| " + " | ".join(escape_markdown(c) for c in row) + " |" for row in rows]
+    return "\n".join(lines)
+
+
+__all__ = [
+    "AUDIT_FORMATS",
+    "AUDIT_TOLS",
+    "TABLE_FORMATS",
+    "TABLE_PS",
+    "TABLE_TOLS",
+    "AuditRow",
+    "RuleAudit",
+    "ThresholdTable",
+    "escape_markdown",
+    "markdown_table",
+    "rule_audit",
+    "threshold_table",
+]

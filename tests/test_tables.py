@@ -1,0 +1,244 @@
+"""Tests for atlas.tables: threshold tables and rule audits, their text, and their commands."""
+
+import csv
+import io
+import json
+import os
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from atlas import build_atlas, tables
+from atlas.cli import main
+from atlas.engine import worst_error
+from atlas.rules import CLASSIC_RULES, NP5
+
+TOLS = (0.01, 0.005, 0.001)
+PS = (0.01, 0.05, 0.1, 0.3, 0.5)  # all on the chart atlas's p axis
+
+
+# ---- threshold tables ----
+
+
+def test_table_is_the_query_api(chart_atlas):
+    table = tables.threshold_table(chart_atlas, TOLS, PS, method="edgeworth_cc", metric="cdf")
+    assert table.tols == TOLS and table.ps == PS
+    for p, row in zip(PS, table.min_n, strict=True):
+        for tol, value in zip(TOLS, row, strict=True):
+            assert value == chart_atlas.min_n(p, tol, method="edgeworth_cc", metric="cdf")
+    assert table.n_max == 100000 and table.dense_n == 30  # the chart atlas's grid
+
+
+@pytest.mark.parametrize("method", ["normal_cc", "poisson"])
+def test_table_against_the_cube(chart_atlas, method):
+    # Brute force over the stored errors: n* is on the grid, every grid n from n* on is within
+    # tol and the grid n before it is not; None when the largest n fails.
+    table = tables.threshold_table(chart_atlas, TOLS, PS, method=method)
+    ds = chart_atlas.dataset
+    n = ds["n"].values
+    for p, row in zip(PS, table.min_n, strict=True):
+        column = ds["interval_error"].sel({"method": method, "p": p}).values
+        for tol, value in zip(TOLS, row, strict=True):
+            if value is None:
+                assert column[-1] > tol
+                continue
+            i = int(np.flatnonzero(n == value)[0])
+            assert (column[i:] <= tol).all()
+            assert i == 0 or column[i - 1] > tol
+
+
+def test_table_at_one_half_from_the_engine(chart_atlas):
+    table = tables.threshold_table(chart_atlas, [0.01], [0.5])
+    (n_star,) = table.min_n[0]
+    # REFERENCES.md fact 1 (common teaching fact): W(n, 1/2) <= 0.01 for every n >= 10.
+    assert n_star <= 10
+    # Within the dense part of the grid (every n to 30) n* is exact: the engine, not the cube.
+    errors = worst_error(np.arange(1, 31), 0.5, method="normal_cc")
+    assert (errors[n_star - 1 :] <= 0.01).all() and errors[n_star - 2] > 0.01
+
+
+def test_table_formats(chart_atlas):
+    table = tables.threshold_table(chart_atlas, TOLS + (1e-4,), PS, method="poisson")
+    rows = list(csv.reader(io.StringIO(table.to_csv())))
+    assert rows[0] == ["p", "tol=0.01", "tol=0.005", "tol=0.001", "tol=0.0001"]
+    for line, p, values in zip(rows[1:], PS, table.min_n, strict=True):
+        assert float(line[0]) == p
+        assert line[1:] == ["" if v is None else str(v) for v in values]
+    assert any(v is None for row in table.min_n for v in row)  # Poisson never reaches 1e-4 here
+    record = json.loads(table.to_json())
+    assert record["min_n"] == [list(r) for r in table.min_n]
+    assert record["method"] == "poisson" and record["metric"] == "interval"
+    assert record["tols"] == list(TOLS) + [1e-4] and record["n_max"] == 100000
+    markdown = table.to_markdown()
+    assert markdown.startswith("### Minimum n for poisson, interval error\n")
+    assert "| p | tol 0.01 | tol 0.005 | tol 0.001 | tol 1e-4 |" in markdown
+    assert "> 10⁵" in markdown  # None: not reached on a grid that ends at 10^5
+    assert "†: beyond n = 30 only the grid's n are checked" in markdown
+    for value in (v for row in table.min_n for v in row if v is not None):
+        assert f"{value:,}" + (" †" if value > 30 else "") in markdown
+    assert table.render("md") == markdown
+    with pytest.raises(ValueError, match=r"^`format` must be one of 'csv', 'md', 'json'; got "
+                                         r"'xml'\.$"):  # fmt: skip
+        table.render("xml")
+
+
+def test_table_refuses(chart_atlas):
+    with pytest.raises(ValueError, match=r"^`tols` must hold numbers in \(0, 1\); got 1\.5\.$"):
+        tables.threshold_table(chart_atlas, [0.01, 1.5], PS)
+    with pytest.raises(ValueError, match=r"^`ps` must hold at least one number"):
+        tables.threshold_table(chart_atlas, TOLS, [])
+    with pytest.raises(ValueError, match=r"^`metric` must be one of 'interval', 'cdf'"):
+        tables.threshold_table(chart_atlas, TOLS, PS, metric="tail")
+    with pytest.raises(ValueError, match=r"^`method` must be one of "):
+        tables.threshold_table(chart_atlas, TOLS, PS, method="bogus")
+
+
+# ---- rule audits ----
+
+
+def _brute_masks(n, p):
+    """The classic rules written out directly in numpy, with the decimal boundaries kept."""
+    q = 1.0 - p
+    slack = 1e-9  # grid products on a boundary are within 1e-15 of it, others far from it
+    return {
+        CLASSIC_RULES[0]: (n * p >= 5 - slack) & (n * q >= 5 - slack),
+        CLASSIC_RULES[1]: (n * p >= 10 - slack) & (n * q >= 10 - slack),
+        CLASSIC_RULES[2]: n * p * q > 9 + slack,
+        CLASSIC_RULES[3]: n * p * q >= 5 - slack,
+        "n*p*q >= 25 or n > 50000": (n * p * q >= 25 - slack) | (n > 50000),
+    }
+
+
+def test_audit_against_brute_force(chart_atlas):
+    ds = chart_atlas.dataset
+    n = ds["n"].values.astype(float)[:, None]
+    p = ds["p"].values[None, :]
+    masks = _brute_masks(n, p)
+    # The slack is safe only if no product lies between 1e-12 and 1e-9 of a boundary.
+    for value in (n * p, n * (1 - p), n * p * (1 - p)):
+        for c in (5, 9, 10, 25):
+            gap = np.abs(value - c) / c
+            assert not ((gap > 1e-12) & (gap < 1e-9)).any()
+    audit = tables.rule_audit(chart_atlas, list(masks), tols=TOLS)
+    assert len(audit.rows) == len(masks) * 3 * 2
+    assert audit.grid_cells == n.size * p.size
+    for row in audit.rows:
+        mask = np.broadcast_to(masks[row.rule], (n.size, p.size))
+        values = ds[f"{row.metric}_error"].sel({"method": row.method}).values
+        inside = values[mask]
+        assert row.cells == inside.size > 0
+        assert row.worst_error == inside.max()
+        i, j = np.argwhere(mask & (values == inside.max()))[0]
+        assert (row.worst_n, row.worst_p) == (int(n[i, 0]), float(p[0, j]))
+        assert_allclose(row.shares, [np.mean(inside <= t) for t in TOLS], rtol=0, atol=0)
+    assert [r.name for r in audit.rows[:6]] == ["np >= 5 and nq >= 5"] * 6
+
+
+def test_audit_known_value():
+    ds = build_atlas(n="9,10,20,40", p="0.5", methods="normal_cc", progress=False)
+    (row,) = tables.rule_audit(ds, [NP5], metrics="interval").rows
+    assert (row.cells, row.worst_n, row.worst_p) == (3, 10, 0.5)  # n = 9 fails np >= 5
+    assert_allclose(row.worst_error, 0.005372, atol=5e-7)  # W(10, 1/2), REFERENCES.md fact 1
+    assert row.shares == (1.0, 2 / 3, 0.0)  # W(20, 1/2) = 0.002782 (REFERENCES.md); W(40) > 1e-3
+
+
+def test_audit_of_an_empty_region(chart_atlas):
+    audit = tables.rule_audit(chart_atlas, ["n > 1e9"], methods=["poisson"], metrics=["cdf"])
+    (row,) = audit.rows
+    assert (row.cells, row.worst_error, row.worst_n, row.worst_p) == (0, None, None, None)
+    assert row.shares == (None, None, None)
+    assert "| n > 1e9 | poisson | cdf | 0 | — | — | — | — | — | — |" in audit.to_markdown()
+    record = json.loads(audit.to_json())
+    assert record["rows"][0]["worst_error"] is None
+    assert record["rows"][0]["share_within"] == {"0.01": None, "0.005": None, "0.001": None}
+
+
+def test_audit_formats(chart_atlas):
+    audit = tables.rule_audit(chart_atlas, methods=["normal_cc"], metrics=["interval"])
+    markdown = audit.render("md")
+    assert markdown.startswith("### Rules of thumb: the worst error each admits\n")
+    assert ("| rule | method | metric | cells | worst error | at n | at p | ≤ 0.01 | ≤ 0.005 | "
+            "≤ 0.001 |") in markdown  # fmt: skip
+    for row in audit.rows:
+        assert f"| {row.name} | normal_cc | interval | {row.cells:,} | {row.worst_error:.3g} |" in (
+            markdown
+        )
+    record = json.loads(audit.render("json"))
+    assert [r["rule"] for r in record["rows"]] == list(CLASSIC_RULES)
+    assert record["rows"][2]["name"] == "npq > 9"
+    assert record["rows"][0]["worst_error"] == audit.rows[0].worst_error
+    with pytest.raises(ValueError, match=r"^`format` must be one of 'md', 'json'; got 'csv'\.$"):
+        audit.render("csv")
+
+
+def test_audit_refuses(chart_atlas):
+    with pytest.raises(ValueError, match=r"^`rule` may not contain a function call"):
+        tables.rule_audit(chart_atlas, ["abs(n) > 1"])
+    with pytest.raises(ValueError, match=r"^`rules` must hold at least one rule"):
+        tables.rule_audit(chart_atlas, [])
+    with pytest.raises(ValueError, match=r"^`methods` must be one of 'normal_cc', "):
+        tables.rule_audit(chart_atlas, methods=["normal"])
+    with pytest.raises(ValueError, match=r"^`metric` must be one of"):
+        tables.rule_audit(chart_atlas, metrics=["pdf"])
+    with pytest.raises(ValueError, match=r"^`tols` must hold numbers in \(0, 1\); got 0\.0\.$"):
+        tables.rule_audit(chart_atlas, tols=[0])
+
+
+# ---- the command line ----
+
+
+def test_cli_table(chart_atlas, capsys, tmp_path):
+    args = ["table", "--atlas", str(chart_atlas.path), "--tol", "0.01,0.001", "--p", "0.1,0.5",
+            "--method", "edgeworth_cc"]  # fmt: skip
+    assert main([*args, "--format", "csv"]) == 0
+    out = capsys.readouterr().out
+    expected = tables.threshold_table(chart_atlas, [0.01, 0.001], [0.1, 0.5],
+                                      method="edgeworth_cc")  # fmt: skip
+    assert out == expected.to_csv()
+    assert main([*args, "--format", "json", "-o", str(tmp_path / "t.json")]) == 0
+    assert capsys.readouterr().out.strip() == str(tmp_path / "t.json")
+    assert json.loads((tmp_path / "t.json").read_text())["min_n"] == [
+        list(r) for r in expected.min_n]  # fmt: skip
+    assert main([*args]) == 0  # Markdown by default
+    assert capsys.readouterr().out == expected.to_markdown()
+
+
+@pytest.mark.parametrize(
+    ("args", "message"),
+    [
+        (["table", "--format", "xml"], "`--format` must be one of 'csv', 'md', 'json'; got 'xml'."),
+        (["table", "--tol", "0.01,x"],
+         "`--tol` must be comma-separated numbers such as 0.01,0.005; got '0.01,x'."),
+        (["table", "--p", "0.5,1.5"], "`ps` must hold numbers in (0, 1); got 1.5."),
+        (["rules", "--rule", "abs(n) > 1"], "`--rule` may not contain a function call; allowed: "
+         "numbers, n, p, q, + - * / **, unary -, < <= > >= == !=, and, or, not, parentheses. "
+         "Got 'abs(n) > 1'."),
+        (["rules", "--format", "csv"], "`--format` must be one of 'md', 'json'; got 'csv'."),
+        (["rules", "--method", "normal"], "`methods` must be one of 'normal_cc', 'edgeworth_cc', "
+         "'poisson' (the atlas's methods); got 'normal'."),
+    ],
+)  # fmt: skip
+def test_cli_errors(chart_atlas, capsys, tmp_path, monkeypatch, args, message):
+    monkeypatch.chdir(tmp_path)
+    assert main([*args, "--atlas", str(chart_atlas.path)]) == 2
+    assert capsys.readouterr().err == f"approx-atlas: error: {message}\n"
+    assert os.listdir(tmp_path) == []
+
+
+def test_cli_rules(chart_atlas, capsys):
+    assert main(["rules", "--atlas", str(chart_atlas.path), "--rule", "n*p*q >= 25",
+                 "--method", "normal_cc", "--metric", "cdf", "--format", "json",
+                 "--tol", "0.01"]) == 0  # fmt: skip
+    record = json.loads(capsys.readouterr().out)
+    assert [r["rule"] for r in record["rows"]] == [*CLASSIC_RULES, "n*p*q >= 25"]
+    assert {r["method"] for r in record["rows"]} == {"normal_cc"}
+    assert {r["metric"] for r in record["rows"]} == {"cdf"}
+    expected = tables.rule_audit(
+        chart_atlas,
+        [*CLASSIC_RULES, "n*p*q >= 25"],
+        methods=["normal_cc"],
+        metrics=["cdf"],
+        tols=[0.01],
+    )
+    assert record == json.loads(expected.to_json())
