@@ -405,8 +405,7 @@ def _evaluate(n, p, methods, full=False):
     """:func:`evaluate` on checked arguments: int n, 1-D float64 p, a tuple of methods."""
     lo, hi, ends = _windows(n, p, methods)
     shape = (len(methods), p.size)
-    dmax, kmax = np.empty(shape), np.empty(shape, np.int64)
-    dmin, kmin = np.empty(shape), np.empty(shape, np.int64)
+    dmax, kmax, dmin, kmin = _extremes(shape)
     narrow = full | (hi - lo + 1 <= FULL_LIMIT)
     for rows, finder in ((narrow, _every_integer), (~narrow, _nested_search)):
         if rows.any():
@@ -437,25 +436,59 @@ def _evaluate(n, p, methods, full=False):
     return Evaluation(methods, interval, cdf, a, b)
 
 
+def evaluate_cells(n, p, method):
+    """Errors of one method at cells given as flat arrays of n and p, in any order.
+
+    Cells are grouped by n and each distinct (n, p) is computed once, with the p of one n in
+    one call of the engine.
+
+    Parameters
+    ----------
+    n : numpy.ndarray of int64
+        Checked n of the cells (see :func:`check_n`), one-dimensional.
+    p : numpy.ndarray of float64
+        Checked p of the cells, the same length.
+    method : str
+        A checked method name.
+
+    Returns
+    -------
+    tuple of numpy.ndarray
+        ``interval``, ``cdf``, ``lo``, ``hi`` for each cell, in the cells' order.
+    """
+    interval, cdf = np.empty(n.size), np.empty(n.size)
+    a, b = np.empty(n.size, np.int64), np.empty(n.size, np.int64)
+    order = np.lexsort((p, n))
+    n_sorted, p_sorted = n[order], p[order]
+    # Starts of runs of equal (n, p), and starts of runs of equal n among them.
+    new_cell = np.ones(n.size, dtype=bool)
+    new_cell[1:] = (n_sorted[1:] != n_sorted[:-1]) | (p_sorted[1:] != p_sorted[:-1])
+    cell_of = np.cumsum(new_cell) - 1
+    firsts = np.flatnonzero(new_cell)
+    cell_n, cell_p = n_sorted[firsts], p_sorted[firsts]
+    bounds = np.flatnonzero(np.r_[True, cell_n[1:] != cell_n[:-1], True])
+    results = [np.empty(firsts.size), np.empty(firsts.size)]
+    results += [np.empty(firsts.size, np.int64), np.empty(firsts.size, np.int64)]
+    for start, stop in zip(bounds[:-1], bounds[1:], strict=True):
+        ev = _evaluate(int(cell_n[start]), cell_p[start:stop], (method,))
+        for whole, part in zip(results, (ev.interval, ev.cdf, ev.lo, ev.hi), strict=True):
+            whole[start:stop] = part[0]
+    for out, values in zip((interval, cdf, a, b), results, strict=True):
+        out[order] = values[cell_of]
+    return interval, cdf, a, b
+
+
 def _broadcast_evaluate(n, p, method):
-    """Evaluate one method over broadcast n and p, grouping the cells by n."""
+    """Evaluate one method over broadcast n and p."""
     n_arr = check_n(n)
     p_arr = check_p(p)
     method = check_method(method)
-    if n_arr.ndim == 0 and p_arr.ndim == 0:
+    if n_arr.ndim == 0 and p_arr.ndim == 0:  # one cell: skip the grouping
         ev = _evaluate(int(n_arr), p_arr.reshape(1).astype(np.float64), (method,))
         return tuple(np.asarray(x[0, 0]) for x in (ev.interval, ev.cdf, ev.lo, ev.hi))
     n_b, p_b = np.broadcast_arrays(n_arr, p_arr)
-    shape = n_b.shape
-    n_flat, p_flat = n_b.ravel(), p_b.ravel()
-    interval, cdf = np.empty(n_flat.size), np.empty(n_flat.size)
-    a, b = np.empty(n_flat.size, np.int64), np.empty(n_flat.size, np.int64)
-    for value in np.unique(n_flat):
-        cells = np.flatnonzero(n_flat == value)
-        ev = _evaluate(int(value), p_flat[cells].astype(np.float64), (method,))
-        interval[cells], cdf[cells] = ev.interval[0], ev.cdf[0]
-        a[cells], b[cells] = ev.lo[0], ev.hi[0]
-    return tuple(x.reshape(shape) for x in (interval, cdf, a, b))
+    flat = evaluate_cells(n_b.ravel(), p_b.ravel().astype(np.float64), method)
+    return tuple(x.reshape(n_b.shape) for x in flat)
 
 
 def worst_error(n, p, *, method="normal_cc", metric="interval"):

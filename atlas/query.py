@@ -23,7 +23,7 @@ import numpy as np
 
 from atlas import store
 from atlas.approximations import check_method
-from atlas.engine import check_metric, check_n, check_p, evaluate
+from atlas.engine import check_metric, check_n, check_p, evaluate, evaluate_cells
 
 __all__ = ["Atlas", "Verdict", "check_tol", "open_atlas"]
 
@@ -311,25 +311,20 @@ class Atlas:
         else:
             hit = np.zeros(n_flat.size, dtype=bool)
         variable = _VARIABLES[metric]
-        if stored and hit.all():  # the fast path of vectorised lookups
-            values = self._stored(variable, method)[i, j].astype(np.float64)
-            lo = hi = None
+        values = np.empty(n_flat.size)
+        lo, hi = np.empty(n_flat.size, np.int64), np.empty(n_flat.size, np.int64)
+        if hit.any():
+            ih, jh = i[hit], j[hit]
+            values[hit] = self._stored(variable, method)[ih, jh]
             if bounds:
-                lo = self._stored("interval_lo", method)[i, j].astype(np.int64)
-                hi = self._stored("interval_hi", method)[i, j].astype(np.int64)
-        else:
-            values = np.empty(n_flat.size)
-            lo, hi = np.empty(n_flat.size, np.int64), np.empty(n_flat.size, np.int64)
-            if hit.any():
-                ih, jh = i[hit], j[hit]
-                values[hit] = self._stored(variable, method)[ih, jh]
-                if bounds:
-                    lo[hit] = self._stored("interval_lo", method)[ih, jh]
-                    hi[hit] = self._stored("interval_hi", method)[ih, jh]
-            miss = ~hit
-            got = _compute(n_flat[miss], p_flat[miss], method)
-            values[miss] = got[metric]
-            lo[miss], hi[miss] = got["lo"], got["hi"]
+                lo[hit] = self._stored("interval_lo", method)[ih, jh]
+                hi[hit] = self._stored("interval_hi", method)[ih, jh]
+        miss = ~hit
+        if miss.any():
+            interval, cdf, lo[miss], hi[miss] = evaluate_cells(
+                n_flat[miss], p_flat[miss].astype(np.float64), method
+            )
+            values[miss] = interval if metric == "interval" else cdf
         out = (values.reshape(shape), hit.reshape(shape))
         if bounds:
             out += (lo.reshape(shape), hi.reshape(shape))
@@ -699,25 +694,6 @@ class Atlas:
                 "metric": metric,
             },
         )
-
-
-def _compute(n, p, method):
-    """Engine errors at flat n and p for one method, each distinct (n, p) computed once."""
-    out = {
-        "interval": np.empty(n.size),
-        "cdf": np.empty(n.size),
-        "lo": np.empty(n.size, np.int64),
-        "hi": np.empty(n.size, np.int64),
-    }
-    for value in np.unique(n):
-        cells = np.flatnonzero(n == value)
-        p_unique, back = np.unique(p[cells], return_inverse=True)
-        ev = evaluate(int(value), p_unique, methods=(method,))
-        out["interval"][cells] = ev.interval[0][back]
-        out["cdf"][cells] = ev.cdf[0][back]
-        out["lo"][cells] = ev.lo[0][back]
-        out["hi"][cells] = ev.hi[0][back]
-    return out
 
 
 def open_atlas(path=None, *, verify=False):

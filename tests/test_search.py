@@ -88,3 +88,15 @@ def test_private_binomial_ufuncs_match_scipy_stats():
     assert_array_equal(engine._binom_cdf(k, n, p), stats.binom.cdf(k, n, p))
     assert_array_equal(engine._binom_sf(k, n, p), stats.binom.sf(k, n, p))
     assert_array_equal(engine._binom_pmf(k, n, p), stats.binom.pmf(k, n, p))
+
+
+def test_evaluate_cells_keeps_the_order_of_mixed_and_repeated_cells():
+    # Cells in any order, with repeats, must come back in their own order, each equal to the
+    # engine's value for that (n, p) alone.
+    n = np.array([50, 7, 50, 3000, 7, 50], dtype=np.int64)
+    p = np.array([0.1, 0.9, 0.1, 0.02, 0.5, 0.7])
+    interval, cdf, lo, hi = engine.evaluate_cells(n, p, "edgeworth_cc")
+    for c in range(n.size):
+        alone = engine.evaluate(int(n[c]), [p[c]], methods=("edgeworth_cc",))
+        assert interval[c] == alone.interval[0, 0] and cdf[c] == alone.cdf[0, 0]
+        assert (lo[c], hi[c]) == (alone.lo[0, 0], alone.hi[0, 0])
