@@ -7,14 +7,13 @@ depend only on its own (n, p) cells, so every way of running gives the same cube
 """
 
 import contextlib
-import os
 import signal
 import time
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from datetime import datetime, timezone
-from multiprocessing import get_context
+from multiprocessing import get_all_start_methods, get_context
 
 import numpy as np
 
@@ -64,13 +63,14 @@ def cell_cost(n, p):
 
     Notes
     -----
-    It follows the structure of :func:`atlas.engine.evaluate`. The window of one p holds
-    ``w = min(n + 1, 18 sigma + 21)`` integers, sigma = sqrt(n p q). Windows of at most
+    A model fitted to timings, shaped after :func:`atlas.engine.evaluate`. The window of one
+    p holds ``w = min(n + 1, 18 sigma + 21)`` integers, sigma = sqrt(n p q). Windows of at most
     ``FULL_LIMIT`` integers are evaluated at every integer of one rectangle, (count of those p)
-    x (widest window), padded. A wider window is sampled ``c = clip(6 w / sigma, 64, 8192) + 1``
-    times and the best samples are refined over brackets of ``b = min(2 w / (c - 1), FULL_LIMIT)``
-    integers, about ``c + 3 b`` evaluations. The model is for all seven methods; fewer methods
-    take less time per chunk, which only makes their chunks shorter.
+    x (widest window), padded. A wider window is searched at a cost that grows slowly with w,
+    counted as ``c + 3 b`` evaluations with ``c = clip(6 w / sigma, 64, 8192) + 1`` and
+    ``b = min(2 w / (c - 1), FULL_LIMIT)``, each worth ``_WIDE_WEIGHT`` narrow points. The
+    model is for all seven methods; fewer methods take less time per chunk, which only makes
+    their chunks shorter.
     """
     return float(_costs(np.array([n]), np.asarray(p, dtype=np.float64))[0])
 
@@ -398,7 +398,7 @@ def _execute(chunks, n, p, methods, workers, client):
     order = sorted(chunks, key=lambda c: -chunk_work(n, p, c))
     by_index = {chunk.index: chunk for chunk in chunks}
     # fork starts workers without re-importing; elsewhere spawn is the safe default.
-    context = get_context("fork" if "fork" in _start_methods() else "spawn")
+    context = get_context("fork" if "fork" in get_all_start_methods() else "spawn")
     pool = ProcessPoolExecutor(
         max_workers=min(workers, len(chunks)), mp_context=context, initializer=_ignore_interrupts
     )
@@ -438,18 +438,3 @@ def _stop_workers(pool):
 def _ignore_interrupts():
     """Pool initializer: Ctrl-C goes to the parent alone, which then stops the workers."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
-
-
-def _start_methods():
-    """The multiprocessing start methods of this platform."""
-    from multiprocessing import get_all_start_methods
-
-    return get_all_start_methods()
-
-
-def cpu_count():
-    """Cores available to this process."""
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # pragma: no cover - not on Linux
-        return os.cpu_count() or 1

@@ -213,12 +213,12 @@ def verify_file(nc, path=None):
     those of :func:`atlas.cube.verify_checksum`, which does the same for a Dataset.
     """
     try:
-        methods = method_names(nc)
-        arrays = {name: nc.variables[name][:] for name in ("n", "p", *DATA_VARIABLES)}
+        # One variable in memory at a time: the digest is fed as each is read.
+        actual = checksum(method_names(nc), lambda name: nc.variables[name][:])
     except Exception as err:  # netCDF4 raises RuntimeError (HDF error) for a damaged chunk
         raise unreadable(err, path) from None
     stored = nc.getncattr("checksum") if "checksum" in nc.ncattrs() else None
-    return verify_digest(stored, checksum(methods, arrays.__getitem__), path)
+    return verify_digest(stored, actual, path)
 
 
 # ---- one open file per process -----------------------------------------------------------------

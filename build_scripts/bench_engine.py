@@ -82,7 +82,9 @@ def main(argv=None):
         fulls.append(full)
     cell, full = min(cells), min(fulls)
     check = abs(naive(n, p) - atlas.worst_error(n, p))
-    print(f"[1] n=1e6, p=0.3 normal_cc: engine {cell * 1e3:.3f} ms, naive {full * 1e3:.1f} ms (best)")
+    print(
+        f"[1] n=1e6, p=0.3 normal_cc: engine {cell * 1e3:.3f} ms, naive {full * 1e3:.1f} ms (best)"
+    )
     print(
         f"    speed-up {full / cell:.0f}x, best against best (target >= 500x); median of "
         f"{len(ratios)} interleaved rounds {statistics.median(ratios):.0f}x (range "
