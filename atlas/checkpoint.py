@@ -66,7 +66,7 @@ def fingerprint_parts(n, p, methods, chunks):
         The grid axes (int64 and float64).
     methods : sequence of str
         The methods, in order.
-    chunks : sequence of atlas.build.Chunk
+    chunks : sequence of atlas.chunks.Chunk
         The chunk plan.
 
     Returns
@@ -186,8 +186,8 @@ class CheckpointStore:
             The grid axes.
         methods : sequence of str
             The methods, in order.
-        chunks : sequence of atlas.build.Chunk
-            The chunk plan (:func:`atlas.build.plan_chunks`).
+        chunks : sequence of atlas.chunks.Chunk
+            The chunk plan (:func:`atlas.chunks.plan_chunks`).
 
         Returns
         -------
@@ -211,7 +211,7 @@ class CheckpointStore:
         Examples
         --------
         >>> import tempfile, numpy as np
-        >>> from atlas.build import plan_chunks
+        >>> from atlas.chunks import plan_chunks
         >>> n, p = np.array([10, 20]), np.array([0.5])
         >>> chunks = plan_chunks(n, p)
         >>> with tempfile.TemporaryDirectory() as tmp:
@@ -286,7 +286,7 @@ class CheckpointStore:
 
         Parameters
         ----------
-        chunk : atlas.build.Chunk
+        chunk : atlas.chunks.Chunk
 
         Returns
         -------
@@ -335,9 +335,9 @@ class CheckpointStore:
 
         Parameters
         ----------
-        chunk : atlas.build.Chunk
+        chunk : atlas.chunks.Chunk
         part : dict
-            The arrays of :func:`atlas.build.compute_chunk`.
+            The arrays of :func:`atlas.chunks.compute_chunk`.
 
         Returns
         -------

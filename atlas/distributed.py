@@ -14,7 +14,7 @@ import contextlib
 import re
 import uuid
 
-from atlas.build import chunk_arrays, chunk_work
+from atlas.chunks import chunk_arrays, chunk_work
 
 __all__ = ["connect", "parse_spec", "run_chunks"]
 
@@ -163,7 +163,7 @@ def run_chunks(client, chunks, n, p, methods):
     ----------
     client : distributed.Client
         A connected client (see :func:`connect`).
-    chunks : sequence of atlas.build.Chunk
+    chunks : sequence of atlas.chunks.Chunk
         The chunks to compute.
     n, p : numpy.ndarray
         The whole grid axes (the chunks index into them).
@@ -174,7 +174,7 @@ def run_chunks(client, chunks, n, p, methods):
     ------
     tuple
         ``(chunk, arrays)`` in the order the chunks finish, arrays as from
-        :func:`atlas.build.compute_chunk`.
+        :func:`atlas.chunks.compute_chunk`.
 
     Raises
     ------
@@ -189,7 +189,7 @@ def run_chunks(client, chunks, n, p, methods):
     -----
     The axes are scattered once to every worker, and each chunk is one task (with a unique key,
     ``atlas-chunk-<index>-<run>-<round>``) that slices them; the costliest chunks are submitted
-    first (:func:`atlas.build.cell_cost`). A worker that dies is survived:
+    first (:func:`atlas.chunks.cell_cost`). A worker that dies is survived:
     the scheduler reruns its tasks elsewhere, and if the axes were lost with it (every worker
     holding them died) they are scattered again and the cancelled tasks resubmitted. Closing
     the generator early cancels the tasks not yet finished.

@@ -33,7 +33,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # run from a check
 import numpy as np  # noqa: E402 - after the path
 
 from atlas.approximations import METHODS  # noqa: E402
-from atlas.build import build_atlas, cell_cost, compute_chunk, plan_chunks  # noqa: E402
+from atlas.build import build_atlas  # noqa: E402
+from atlas.chunks import cell_cost, compute_chunk, plan_chunks  # noqa: E402
 from atlas.distributed import connect  # noqa: E402
 from atlas.grid import parse_n, parse_p  # noqa: E402
 
@@ -202,8 +203,8 @@ def time_save(cells, repeat=5):
     """CheckpointStore.save (write, fsync, rename) of a chunk of ``cells`` cells: seconds, bytes."""
     import tempfile
 
-    from atlas.build import Chunk
     from atlas.checkpoint import CheckpointStore
+    from atlas.chunks import Chunk
 
     rng = np.random.default_rng(0)
     shape = (len(METHODS), 1, cells)
@@ -301,7 +302,7 @@ def plan(measured, quick):
     print(
         "   assumptions: every worker is one core as fast as one of this machine's, with one "
         "thread;\n"
-        "   a chunk's time = the build's cost model (atlas.build.cell_cost) of its cells x the "
+        "   a chunk's time = the build's cost model (atlas.chunks.cell_cost) of its cells x the "
         "measured\n   seconds per cost unit, interpolated linearly in (log n, log seconds) between "
         "the sample n;\n"
         f"   a worker's background load of {measured['background']:.1%} of its core and "
@@ -321,7 +322,7 @@ def plan(measured, quick):
 _MALLOC_PROBE = """
 import time
 from atlas.approximations import METHODS
-from atlas.build import compute_chunk
+from atlas.chunks import compute_chunk
 from atlas.grid import parse_n, parse_p
 n, p = parse_n("log:1000:10000000:8"), parse_p("logit:0.001:0.999:41")
 compute_chunk(n[:1], p, METHODS)

@@ -1,5 +1,12 @@
 """Shared test fixtures."""
 
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
 import pytest
 
 # A tiny atlas for the query and CLI tests: every integer n to 40, eight log-spaced n to 5000,
@@ -41,3 +48,101 @@ def chart_atlas(tmp_path_factory):
     ds = atlas.build_atlas(n=CHART_N_SPEC, p=CHART_P_SPEC, methods=CHART_METHODS, progress=False)
     path = atlas.save_atlas(ds, tmp_path_factory.mktemp("chart_atlas") / "chart.nc")
     return atlas.open_atlas(path)
+
+
+# ---- a build killed with SIGKILL, and the processes it leaves behind ---------------------------
+
+# A grid that keeps two workers busy for far longer than a test waits (chunks of about a second).
+BUSY_N_SPEC = "1:3000,log:3000:100000000:100"
+
+
+def _stat(pid):
+    """(state, parent pid, CPU seconds, start time) of a process from /proc, or None if gone."""
+    try:
+        text = Path(f"/proc/{pid}/stat").read_text()
+    except (FileNotFoundError, ProcessLookupError):
+        return None
+    # The command name, in parentheses, may hold spaces: the fields follow its last ")".
+    fields = text[text.rindex(")") + 2 :].split()
+    ticks = os.sysconf("SC_CLK_TCK")
+    return fields[0], int(fields[1]), (int(fields[11]) + int(fields[12])) / ticks, int(fields[19])
+
+
+def _descendants(pid):
+    """{pid: start time} of every living descendant of process ``pid``, from /proc."""
+    children = {}
+    for entry in Path("/proc").iterdir():
+        if entry.name.isdigit():
+            stat = _stat(int(entry.name))
+            if stat is not None and stat[0] != "Z":
+                children.setdefault(stat[1], []).append((int(entry.name), stat[3]))
+    found, todo = {}, [pid]
+    while todo:
+        for child, start in children.get(todo.pop(), []):
+            found[child] = start
+            todo.append(child)
+    return found
+
+
+def _running(pid, start):
+    """Whether the process ``pid`` that started at ``start`` still runs (a zombie has ended)."""
+    stat = _stat(pid)
+    return stat is not None and stat[3] == start and stat[0] != "Z"
+
+
+@pytest.fixture
+def killed_build(tmp_path):
+    """Run a real ``python -m atlas build``, SIGKILL it while its workers compute, return survivors.
+
+    Call it with the build's extra options and the number of worker processes to wait for:
+    ``killed_build(["--workers", "2"], workers=2)``. It starts the build on a grid that keeps
+    the workers busy for minutes, waits until that many of the build's descendant processes
+    have each used 0.3 s of CPU (they compute), records every descendant by process id and start
+    time, kills the build with SIGKILL and returns ``(descendants, survivors)``: the pids
+    recorded, and those still running (not gone, not a zombie) ``grace`` seconds later.
+    Survivors are then killed by pid, so that a failing test leaves nothing behind either.
+    """
+    if not Path("/proc/self/stat").exists():
+        pytest.skip("needs /proc to find the build's worker processes")
+    started, trees = [], []
+
+    def run(options, *, workers, grace=5.0):
+        argv = [sys.executable, "-m", "atlas", "build", "--n", BUSY_N_SPEC,
+                "-o", str(tmp_path / "busy.nc"), *options]  # fmt: skip
+        log = open(tmp_path / "build.log", "w")
+        proc = subprocess.Popen(argv, stdout=log, stderr=subprocess.STDOUT)
+        started.append(proc)
+        try:
+            deadline = time.monotonic() + 60
+            while True:
+                assert proc.poll() is None, (tmp_path / "build.log").read_text()
+                assert time.monotonic() < deadline, "the build's workers did not start in 60 s"
+                tree = _descendants(proc.pid)
+                busy = [pid for pid in tree if (_stat(pid) or ("", 0, 0.0, 0))[2] >= 0.3]
+                if len(busy) >= workers:
+                    break
+                time.sleep(0.05)
+            tree = _descendants(proc.pid)
+            trees.append(tree)
+            proc.send_signal(signal.SIGKILL)
+            assert proc.wait(timeout=30) == -signal.SIGKILL
+            deadline = time.monotonic() + grace
+            while True:
+                survivors = [pid for pid, start in tree.items() if _running(pid, start)]
+                if not survivors or time.monotonic() > deadline:
+                    break
+                time.sleep(0.05)
+            return tree, survivors
+        finally:
+            log.close()
+
+    yield run
+    for proc in started:
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait(timeout=30)
+    # A survivor is a worker a failed test found: end it by its pid, as nothing else will.
+    for tree in trees:
+        for pid, start in tree.items():
+            if _running(pid, start):
+                os.kill(pid, signal.SIGKILL)

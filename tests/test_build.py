@@ -13,7 +13,7 @@ import pytest
 import xarray as xr
 
 import atlas
-from atlas import build, cube, grid, store
+from atlas import build, chunks, cube, grid, store
 from atlas.cli import main
 from atlas.engine import evaluate
 
@@ -43,7 +43,7 @@ def _no_work(monkeypatch):
     def forbidden(*args, **kwargs):
         raise AssertionError("the engine ran before the arguments were checked")
 
-    monkeypatch.setattr(build, "evaluate", forbidden)
+    monkeypatch.setattr(chunks, "evaluate", forbidden)
 
 
 # ---- grids, methods, results -------------------------------------------------------------------
@@ -133,42 +133,22 @@ def test_too_many_cells_refused_before_work(monkeypatch):
 def test_two_workers_identical(serial):
     # chunk_cost small enough for many chunks, so both workers take several.
     ds = atlas.build_atlas(N_SPEC, P_SPEC, METHODS3, progress=False, workers=2, chunk_cost=2e3)
-    assert len(build.plan_chunks(ds["n"].values, ds["p"].values, cost=2e3)) >= 6
+    assert len(chunks.plan_chunks(ds["n"].values, ds["p"].values, cost=2e3)) >= 6
     _same_bits(ds, serial)
 
 
-@pytest.mark.parametrize(("p_block", "chunk_cost"), [(1, 1e4), (3, build.CHUNK_COST), (None, 1)])
+@pytest.mark.parametrize(("p_block", "chunk_cost"), [(1, 1e4), (3, chunks.CHUNK_COST), (None, 1)])
 def test_chunking_identical(serial, p_block, chunk_cost):
     ds = atlas.build_atlas(N_SPEC, P_SPEC, METHODS3, progress=False, p_block=p_block,
                            chunk_cost=chunk_cost)  # fmt: skip
     _same_bits(ds, serial)
 
 
-def test_plan_chunks_cover_the_grid():
-    n, p = grid.parse_n(N_SPEC), grid.parse_p(P_SPEC)
-    for kwargs in ({}, {"p_block": 3}, {"cost": 1}, {"cost": 1e12, "p_block": 5}):
-        chunks = build.plan_chunks(n, p, **kwargs)
-        covered = np.zeros((n.size, p.size), dtype=int)
-        for i, c in enumerate(chunks):
-            assert c.index == i
-            covered[c.n_start : c.n_stop, c.p_start : c.p_stop] += 1
-        assert (covered == 1).all(), kwargs
-    assert len(build.plan_chunks(n, p, cost=1)) == n.size  # one n per chunk
-    assert len(build.plan_chunks(n, p, cost=1e12, p_block=5)) == 2  # 7 p in blocks of 5
-
-
-def test_cell_cost_grows_with_n():
-    p = grid.default_p()
-    costs = [build.cell_cost(n, p) for n in (1, 100, 2000, 10**5, 10**8)]
-    assert costs == sorted(costs)
-    assert build.cell_cost(10, p[:1]) < build.cell_cost(10, p)
-
-
 # ---- failures and interrupts leave no file -----------------------------------------------------
 
 
 def _fail_after(monkeypatch, calls, error):
-    real = build.evaluate
+    real = chunks.evaluate
     count = {"n": 0}
 
     def flaky(*args, **kwargs):
@@ -177,7 +157,7 @@ def _fail_after(monkeypatch, calls, error):
             raise error
         return real(*args, **kwargs)
 
-    monkeypatch.setattr(build, "evaluate", flaky)
+    monkeypatch.setattr(chunks, "evaluate", flaky)
 
 
 def _files(folder):
@@ -198,14 +178,14 @@ def test_error_in_a_worker_reaches_the_caller(monkeypatch):
 
 
 def test_a_worker_that_dies_is_reported(monkeypatch):
-    real = build.evaluate
+    real = chunks.evaluate
 
     def dying(n, p, **kwargs):
         if n == 387:  # one of the grid's n, in one chunk: that worker process exits at once
             os._exit(3)
         return real(n, p, **kwargs)
 
-    monkeypatch.setattr(build, "evaluate", dying)
+    monkeypatch.setattr(chunks, "evaluate", dying)
     with pytest.raises(RuntimeError, match=r"a worker process of the build died"):
         atlas.build_atlas(N_SPEC, P_SPEC, METHODS3, progress=False, workers=2, chunk_cost=1)
 

@@ -13,8 +13,9 @@ import numpy as np
 import pytest
 
 import atlas
-from atlas.build import build_atlas, compute_chunk, plan_chunks
+from atlas.build import build_atlas
 from atlas.checkpoint import _HOST, MANIFEST, CheckpointStore
+from atlas.chunks import compute_chunk, plan_chunks
 from atlas.grid import parse_n, parse_p
 
 REPO = Path(atlas.__file__).resolve().parents[1]

@@ -17,7 +17,8 @@ import pytest
 
 import atlas
 import atlas.distributed
-from atlas.build import build_atlas, plan_chunks
+from atlas.build import build_atlas
+from atlas.chunks import plan_chunks
 from atlas.distributed import connect, parse_spec, run_chunks
 
 REPO = Path(atlas.__file__).resolve().parents[1]
@@ -93,7 +94,8 @@ def test_no_chunks_needs_no_cluster():
 def test_import_atlas_does_not_import_dask():
     # Importing only: a build makes an xarray Dataset, and xarray itself imports dask.config.
     code = (
-        "import sys, atlas, atlas.build, atlas.distributed, atlas.checkpoint\n"
+        "import sys, atlas, atlas.build, atlas.chunks, atlas.pool, atlas.distributed\n"
+        "import atlas.checkpoint\n"
         "print(sorted(m for m in ('dask', 'distributed') if m in sys.modules))\n"
     )
     env = dict(
@@ -272,3 +274,15 @@ def test_scheduler_and_worker_over_tcp_give_the_serial_cube(serial, tmp_path):
             for proc in reversed(procs):
                 _stop(proc)
     _assert_same_cube(ds, serial)
+
+
+# ---- a build killed with SIGKILL ----
+
+
+def test_local_cluster_ends_with_a_build_killed_with_sigkill(killed_build):
+    # `--dask local:2` starts its worker processes from the build (the nannies live in the
+    # build's process). SIGKILL of the build ends them: distributed's worker processes watch a
+    # pipe from their parent and exit when it closes.
+    tree, survivors = killed_build(["--dask", "local:2"], workers=2)
+    assert len(tree) >= 2  # the two workers (and multiprocessing's resource tracker)
+    assert survivors == [], f"processes {survivors} of {sorted(tree)} outlived the build"
