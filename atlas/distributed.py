@@ -98,6 +98,13 @@ def connect(spec, *, timeout=10.0):
     TypeError
         If `spec` is neither a string nor None.
 
+    Notes
+    -----
+    The worker processes of ``"local:K"`` are children of this process (their nannies run in
+    it) and end with it however it ends, ``kill -9`` included: distributed starts each with a
+    thread that exits the process when a pipe from its parent closes, which the kernel does at
+    the parent's death (``tests/test_distributed.py`` kills a build and looks for survivors).
+
     Examples
     --------
     >>> with connect(None) as client:
