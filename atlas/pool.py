@@ -151,9 +151,11 @@ def end_with_parent(parent_pid, *, poll=POLL_INTERVAL):
     longer `parent_pid`), the process exits at once with status ``ORPHAN_STATUS``.
 
     On Linux, ``prctl(PR_SET_PDEATHSIG, SIGKILL)`` asks the kernel for SIGKILL when the parent
-    dies: it cannot be missed, and it comes even while this process computes in C with the
-    GIL held. The parent may die between the fork and the prctl call, when no signal would come,
-    so ``os.getppid()`` is compared with `parent_pid` after the call. The kernel counts the
+    dies: it cannot be missed, caught or ignored, and it comes even while this process computes
+    in C with the GIL held. SIGKILL rather than SIGTERM, as a worker has nothing to clean up:
+    its results were for the parent, and the checkpoint is written by the parent. The parent
+    may die between the fork and the prctl call, when no signal would come, so
+    ``os.getppid()`` is compared with `parent_pid` after the call. The kernel counts the
     parent's death from the end of the *thread* that started this process, so that thread must
     outlive the child: :func:`run_chunks` starts and stops its pool in one thread.
 
