@@ -99,8 +99,8 @@ def build_atlas(
     p_block : int, optional
         Split the p axis into blocks of this many values (default: the whole axis).
     chunk_cost : float, optional
-        Target work per chunk, in the units of :func:`cell_cost` (default ``CHUNK_COST``,
-        about a second of one core).
+        Target work per chunk, in the units of :func:`atlas.chunks.cell_cost` (default
+        ``CHUNK_COST``, about a second of one core).
 
     Returns
     -------
@@ -120,7 +120,9 @@ def build_atlas(
     -----
     A cell's values depend on that cell alone, so the cube is the same, bit for bit, for every
     ``workers``, ``client``, ``p_block`` and ``chunk_cost``. Work is cut into chunks of about
-    ``chunk_cost`` (:func:`plan_chunks`); a local pool takes the costliest chunks first.
+    ``chunk_cost`` (:func:`atlas.chunks.plan_chunks`); a local pool takes the costliest chunks
+    first. The workers of a local pool end with this process, however it ends
+    (:func:`atlas.pool.end_with_parent`).
 
     Examples
     --------
