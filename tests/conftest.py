@@ -52,8 +52,9 @@ def chart_atlas(tmp_path_factory):
 
 # ---- a build killed with SIGKILL, and the processes it leaves behind ---------------------------
 
-# A grid that keeps two workers busy for far longer than a test waits (chunks of about a second).
-BUSY_N_SPEC = "1:3000,log:3000:100000000:100"
+# About 170 chunks of about a second of one core (atlas.chunks.plan_chunks with all methods on
+# the default p axis): minutes of work for two workers, and the first chunk saved in seconds.
+BUSY_N_SPEC = "1:3000,log:3000:1000000:100"
 
 
 def _stat(pid):
@@ -96,10 +97,11 @@ def killed_build(tmp_path):
 
     Call it with the build's extra options and the number of worker processes to wait for:
     ``killed_build(["--workers", "2"], workers=2)``. It starts the build on a grid that keeps
-    the workers busy for minutes, waits until that many of the build's descendant processes
-    have each used 0.3 s of CPU (they compute), records every descendant by process id and start
-    time, kills the build with SIGKILL and returns ``(descendants, survivors)``: the pids
-    recorded, and those still running (not gone, not a zombie) ``grace`` seconds later.
+    the workers busy for minutes, with a checkpoint directory, and waits until a chunk has
+    been saved there and that many of the build's descendant processes have each used 0.3 s of
+    CPU: the workers compute. It records every descendant by process id and start time, kills
+    the build with SIGKILL and returns ``(descendants, survivors)``: the pids recorded, and
+    those still running (not gone, not a zombie) ``grace`` seconds later.
     Survivors are then killed by pid, so that a failing test leaves nothing behind either.
     """
     if not Path("/proc/self/stat").exists():
@@ -107,19 +109,23 @@ def killed_build(tmp_path):
     started, trees = [], []
 
     def run(options, *, workers, grace=5.0):
+        checkpoint = tmp_path / "checkpoint"  # a chunk saved there: the workers compute
         argv = [sys.executable, "-m", "atlas", "build", "--n", BUSY_N_SPEC,
-                "-o", str(tmp_path / "busy.nc"), *options]  # fmt: skip
+                "-o", str(tmp_path / "busy.nc"), "--checkpoint", str(checkpoint),
+                *options]  # fmt: skip
+        repo = str(Path(__file__).resolve().parents[1])
+        env = dict(os.environ, PYTHONPATH=os.pathsep.join([repo, os.environ.get("PYTHONPATH", "")]))
         log = open(tmp_path / "build.log", "w")
-        proc = subprocess.Popen(argv, stdout=log, stderr=subprocess.STDOUT)
+        proc = subprocess.Popen(argv, stdout=log, stderr=subprocess.STDOUT, env=env)
         started.append(proc)
         try:
             deadline = time.monotonic() + 60
             while True:
                 assert proc.poll() is None, (tmp_path / "build.log").read_text()
-                assert time.monotonic() < deadline, "the build's workers did not start in 60 s"
+                assert time.monotonic() < deadline, "no chunk was computed within 60 s"
                 tree = _descendants(proc.pid)
                 busy = [pid for pid in tree if (_stat(pid) or ("", 0, 0.0, 0))[2] >= 0.3]
-                if len(busy) >= workers:
+                if len(busy) >= workers and list(checkpoint.glob("chunk-*")):
                     break
                 time.sleep(0.05)
             tree = _descendants(proc.pid)
@@ -137,8 +143,9 @@ def killed_build(tmp_path):
             log.close()
 
     yield run
-    for proc in started:
+    for proc in started:  # a build a failed test did not kill: its processes first, then it
         if proc.poll() is None:
+            trees.append(_descendants(proc.pid))
             proc.kill()
             proc.wait(timeout=30)
     # A survivor is a worker a failed test found: end it by its pid, as nothing else will.
