@@ -242,7 +242,14 @@ def replacing_directory(path, *, overwrite=True):
     tmp, old = _temporary(path, "tmp"), _temporary(path, "old")
     tmp.mkdir()
     try:
-        yield tmp
+        try:
+            yield tmp
+        except OSError as err:  # about a file in the temporary directory: name the target's
+            name = str(err.filename or "")
+            if err.errno is not None and name.startswith(str(tmp)):
+                inside = path / Path(name).relative_to(tmp)
+                raise type(err)(err.errno, err.strerror, str(inside)) from None
+            raise
         if path.exists():
             os.replace(path, old)
             try:
