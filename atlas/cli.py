@@ -109,11 +109,15 @@ def _open_atlas(args):
             return open_atlas(args.atlas)
     try:
         return open_atlas(None)
+    except FileNotFoundError:
+        from atlas.store import default_path
+
+        raise FileNotFoundError(
+            f"the embedded atlas is missing: {str(default_path())!r}; reinstall approx-atlas, "
+            "or pass --atlas FILE."
+        ) from None
     except (ValueError, OSError) as error:  # the API's `path` is no option of the user's here
-        message = _describe_error(error).replace("`path`", "the embedded atlas")
-        if isinstance(error, FileNotFoundError):
-            message += " Reinstall approx-atlas, or pass --atlas FILE."
-        raise type(error)(message) from None
+        raise type(error)(_describe_error(error).replace("`path`", "the embedded atlas")) from None
 
 
 def _probabilities(text, option):

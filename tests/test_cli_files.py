@@ -169,8 +169,8 @@ def _no_build(monkeypatch):
 def test_build_into_a_missing_directory_starts_no_work(tmp_path, monkeypatch, capsys):
     _no_build(monkeypatch)
     target = tmp_path / "nowhere" / "cube.nc"
-    status, out, err = _run_in(tmp_path, monkeypatch, capsys,
-                               ["build", "--n", "1:3", "--p", "0.5", "-o", str(target)])  # fmt: skip
+    argv = ["build", "--n", "1:3", "--p", "0.5", "-o", str(target)]
+    status, out, err = _run_in(tmp_path, monkeypatch, capsys, argv)
     assert (status, out) == (2, "")
     assert err == (f"approx-atlas: error: `-o` is in a directory that does not exist: "
                    f"{str(target)!r}.\n")  # fmt: skip
@@ -189,8 +189,8 @@ def test_build_into_an_unwritable_directory_starts_no_work(tmp_path, monkeypatch
 
     monkeypatch.setattr(files, "open", no_create, raising=False)
     target = tmp_path / "cube.nc"
-    status, out, err = _run_in(tmp_path, monkeypatch, capsys,
-                               ["build", "--n", "1:3", "--p", "0.5", "-o", str(target)])  # fmt: skip
+    argv = ["build", "--n", "1:3", "--p", "0.5", "-o", str(target)]
+    status, out, err = _run_in(tmp_path, monkeypatch, capsys, argv)
     assert (status, out) == (2, "")
     assert err == (f"approx-atlas: error: `-o` cannot be written: {str(target)!r} (Permission "
                    "denied in its directory).\n")  # fmt: skip
@@ -230,8 +230,9 @@ def test_a_failed_write_names_the_users_file(tmp_path):
         (["sheet", "-o", "s.pdf"], "s.pdf", lambda b: b.startswith(b"%PDF-")),
     ],
 )  # fmt: skip
-def test_writers_refuse_an_existing_file_without_force(chart_atlas, tmp_path, monkeypatch,
-                                                       capsys, argv, name, looks_written):  # fmt: skip
+def test_writers_refuse_an_existing_file_without_force(
+    chart_atlas, tmp_path, monkeypatch, capsys, argv, name, looks_written
+):
     target = tmp_path / name
     target.write_text("the inspection log of lot 17\n")
     args = [*argv, "--atlas", str(chart_atlas.path)]
@@ -278,8 +279,10 @@ def test_wiki_into_a_directory(chart_atlas, tmp_path, monkeypatch, capsys):
     (page / "budget.xlsx").write_text("")
     status, _, err = _run_in(tmp_path, monkeypatch, capsys, [*base, "--force"])
     assert status == 2
-    assert err == ("approx-atlas: error: `-o` 'page' holds files a page does not write (such as "
-                   "'budget.xlsx'); it is never replaced: name a new or empty directory.\n")  # fmt: skip
+    assert err == (
+        "approx-atlas: error: `-o` 'page' holds files a page does not write (such as "
+        "'budget.xlsx'); it is never replaced: name a new or empty directory.\n"
+    )
     assert "budget.xlsx" in os.listdir(page)
     # A file where the directory should be.
     (tmp_path / "notes").write_text("")
@@ -361,7 +364,8 @@ def test_p_lists_and_ranges_take_fractions_and_percentages(capsys, tiny_path):
                  "--atlas", tiny_path]) == 0  # fmt: skip
     assert json.loads(capsys.readouterr().out)["ps"] == [0.01, 0.5]
     assert main(["grid", "--n", "10", "--p", "1/4,5%"]) == 0
-    assert capsys.readouterr().out == "n: 1 value, 10; p: 2 values from 0.05 to 0.25; 2 (n, p) points\n"
+    out = capsys.readouterr().out
+    assert out == "n: 1 value, 10; p: 2 values from 0.05 to 0.25; 2 (n, p) points\n"
 
 
 def test_p_is_printed_so_that_it_reads_back(capsys, tiny_path):

@@ -231,8 +231,10 @@ def test_demo_without_the_embedded_atlas(capsys, monkeypatch, tmp_path):
     monkeypatch.setattr(store, "default_path", lambda: missing)
     status, out, err = run(capsys, "demo")
     assert (status, out) == (2, "")
-    assert err == (f"approx-atlas: error: the embedded atlas names no atlas file: "
-                   f"{str(missing)!r}. Reinstall approx-atlas, or pass --atlas FILE.\n")  # fmt: skip
+    assert err == (
+        f"approx-atlas: error: the embedded atlas is missing: {str(missing)!r}; reinstall "
+        "approx-atlas, or pass --atlas FILE.\n"
+    )
 
 
 # --- a user's mistakes: one line on stderr, exit status 2 ---------------------------------------
