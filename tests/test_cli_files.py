@@ -120,7 +120,7 @@ def test_damaged_atlas_is_one_line_and_leaves_nothing(bad_files, tmp_path, monke
         "truncated": r"`--atlas` is not a readable atlas file: ",
         "not_netcdf": r"`--atlas` is not a readable atlas file: ",
         "not_an_atlas": r"`--atlas` is NetCDF but not an atlas file",
-        "flipped": r"(the atlas is corrupt: \w+ of \w+ cannot be read|"
+        "flipped": r"(the atlas is corrupt: \w+ of \w+ cannot be read from '.*flipped\.nc'|"
                    r"`--atlas` '.*flipped\.nc' is corrupt: its data cannot be read)",
     }[kind]  # fmt: skip
     assert re.match(f"approx-atlas: error: {expected}", err), err
@@ -139,7 +139,7 @@ def test_chart_cdf_of_a_damaged_cdf_chunk(tiny_ds, tmp_path, monkeypatch, capsys
         status, out, err = _run_in(work, monkeypatch, capsys, [*argv, "--atlas", path])
         assert (status, out) == (2, ""), argv
         assert re.match(r"approx-atlas: error: (the atlas is corrupt: cdf_error of normal_cc "
-                        r"cannot be read|`--atlas` '.*' is corrupt)", err), err  # fmt: skip
+                        r"cannot be read from '.*cdf_flipped\.nc'|`--atlas` '.*' is corrupt)", err), err  # fmt: skip
         assert err.count("\n") == 1
     assert os.listdir(work) == []
     # The interval error is intact: a chart of it is drawn.
