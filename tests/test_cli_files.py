@@ -138,8 +138,10 @@ def test_chart_cdf_of_a_damaged_cdf_chunk(tiny_ds, tmp_path, monkeypatch, capsys
                  ["inspect"]):  # fmt: skip
         status, out, err = _run_in(work, monkeypatch, capsys, [*argv, "--atlas", path])
         assert (status, out) == (2, ""), argv
-        expected = (r"approx-atlas: error: (the atlas is corrupt: cdf_error of normal_cc cannot be "
-                    r"read from '.*cdf_flipped\.nc'|`--atlas` '.*cdf_flipped\.nc' is corrupt)")  # fmt: skip
+        expected = (
+            r"approx-atlas: error: (the atlas is corrupt: cdf_error of normal_cc cannot be "
+            r"read from '.*cdf_flipped\.nc'|`--atlas` '.*cdf_flipped\.nc' is corrupt)"
+        )
         assert re.match(expected, err), err
         assert err.count("\n") == 1
     assert os.listdir(work) == []
