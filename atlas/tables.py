@@ -315,7 +315,7 @@ class AuditRow:
             "worst_n": self.worst_n,
             "worst_p": self.worst_p,
         }
-        out["share_within"] = {f"{t:g}": s for t, s in zip(tols, self.shares, strict=True)}
+        out["share_within"] = {format_p(t): s for t, s in zip(tols, self.shares, strict=True)}
         return out
 
 
