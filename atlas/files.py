@@ -142,6 +142,8 @@ def check_directory_target(path, *, overwrite=False, name="directory"):
         If nothing can be created in the parent of ``path``.
     """
     path = Path(path)
+    if not path.name:  # "." or "..": the directory by its own name
+        path = path.resolve()
     if path.exists() and not path.is_dir():
         raise NotADirectoryError(f"`{name}` must name a directory; got a file: {str(path)!r}.")
     if path.is_dir():
@@ -237,8 +239,7 @@ def replacing_directory(path, *, overwrite=True):
     into its place, and the old one then removed; if the second rename fails, the old directory
     is put back.
     """
-    path = Path(path)
-    check_directory_target(path, overwrite=overwrite)
+    path = check_directory_target(path, overwrite=overwrite)
     tmp, old = _temporary(path, "tmp"), _temporary(path, "old")
     tmp.mkdir()
     try:
