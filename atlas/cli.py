@@ -100,24 +100,37 @@ def _number(text):
     return text
 
 
+class _EmbeddedAtlas:
+    """Retell errors about the embedded atlas without the API's `path` (the user typed none)."""
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, kind, error, _tb):
+        if isinstance(error, FileNotFoundError):
+            from atlas.store import default_path
+
+            raise FileNotFoundError(
+                f"the embedded atlas is missing: {str(default_path())!r}; reinstall "
+                "approx-atlas, or pass --atlas FILE."
+            ) from None
+        if isinstance(error, (ValueError, OSError)) and getattr(error, "filename", None) is None:
+            message = _describe_error(error).replace("`path`", "the embedded atlas")
+            raise type(error)(message) from None
+        return False
+
+
+def _atlas_errors(given, option="--atlas"):
+    """The context that words errors about the atlas file: named by ``option`` if ``given``."""
+    return _Options(path=option) if given else _EmbeddedAtlas()
+
+
 def _open_atlas(args):
     """The atlas named by ``--atlas``, or the embedded default."""
     from atlas.query import open_atlas
 
-    if args.atlas is not None:
-        with _Options(path="--atlas"):
-            return open_atlas(args.atlas)
-    try:
-        return open_atlas(None)
-    except FileNotFoundError:
-        from atlas.store import default_path
-
-        raise FileNotFoundError(
-            f"the embedded atlas is missing: {str(default_path())!r}; reinstall approx-atlas, "
-            "or pass --atlas FILE."
-        ) from None
-    except (ValueError, OSError) as error:  # the API's `path` is no option of the user's here
-        raise type(error)(_describe_error(error).replace("`path`", "the embedded atlas")) from None
+    with _atlas_errors(args.atlas is not None):
+        return open_atlas(args.atlas)
 
 
 def _probabilities(text, option):
@@ -445,7 +458,8 @@ def _cmd_inspect(args):
     if args.file is not None and args.atlas is not None and args.file != args.atlas:
         raise ValueError(f"give FILE or `--atlas`, not both; got {args.file!r} and {args.atlas!r}.")
     path = args.file or args.atlas or store.default_path()
-    with _Options(path="FILE" if args.file is not None else "--atlas"):
+    given = args.file is not None or args.atlas is not None
+    with _atlas_errors(given, "FILE" if args.file is not None else "--atlas"):
         ds = cube.load_dataset(path)
         try:  # every value is read and checked before anything is printed
             digest = cube.verify_checksum(ds, path)

@@ -428,3 +428,20 @@ def test_help_lists_the_metrics_and_p_forms(capsys, command):
 def test_grid_of_one_value_is_plain_english(capsys):
     assert main(["grid", "--n", "1000000", "--p", "0.5"]) == 0
     assert capsys.readouterr().out == "n: 1 value, 1000000; p: 1 value, 0.5; 1 (n, p) point\n"
+
+
+def test_a_missing_or_damaged_embedded_atlas_is_named_so(bad_files, tmp_path, monkeypatch, capsys):
+    # No --atlas typed: the message speaks of the embedded atlas, not of an option or `path`.
+    missing = tmp_path / "default_atlas.nc"
+    monkeypatch.setattr(store, "default_path", lambda: missing)
+    for argv in (["inspect"], ["demo"], ["table"]):
+        assert main(argv) == 2
+        assert capsys.readouterr().err == (
+            f"approx-atlas: error: the embedded atlas is missing: {str(missing)!r}; reinstall "
+            "approx-atlas, or pass --atlas FILE.\n"
+        )
+    monkeypatch.setattr(store, "default_path", lambda: bad_files["flipped"])
+    assert main(["inspect"]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith(f"approx-atlas: error: the embedded atlas {str(bad_files['flipped'])!r}")
+    assert "`" not in err
