@@ -28,6 +28,7 @@ from pathlib import Path
 import numpy as np
 
 from atlas import __version__
+from atlas.notation import format_p
 
 __all__ = ["CheckpointStore", "MANIFEST", "fingerprint_parts"]
 
@@ -94,7 +95,12 @@ def _fingerprint(parts):
 
 
 def _grid_summary(n, p):
-    return f"{n.size} n from {n[0]} to {n[-1]} x {p.size} p from {p[0]:.6g} to {p[-1]:.6g}"
+    def axis(name, values, show):
+        if values.size == 1:
+            return f"1 {name}, {show(values[0])}"
+        return f"{values.size} {name} from {show(values[0])} to {show(values[-1])}"
+
+    return f"{axis('n', n, int)} x {axis('p', p, format_p)}"
 
 
 def _fsync_directory(directory):

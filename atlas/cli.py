@@ -2,16 +2,27 @@
 
 Each command is a function ``_cmd_<name>(args) -> int`` registered in `_build_parser`. A user's
 mistake (a ValueError, TypeError or OSError from the API) becomes one line on stderr,
-``approx-atlas: error: <message>``, and exit status 2, never a traceback.
+``approx-atlas: error: <message>``, and exit status 2, never a traceback. The API names its
+parameters in backquotes (`` `p_lo` ``); each command maps those names to its options
+(``--p-range``), so that a message names what the user typed.
+
+Every command that writes a file checks, before any work, that it can be written (a probe file
+is created and removed in its directory) and refuses to replace an existing one without
+``--force``; the file is written under a temporary name and renamed when complete.
 """
 
 import argparse
+import re
 import sys
 
-from atlas import __version__
+from atlas import METHODS, METRICS, __version__
 from atlas.grid import DEFAULT_N_SPEC, DEFAULT_P_SPEC, describe_grid
+from atlas.notation import format_p, parse_probability, plural, rounded
 
 PROG = "approx-atlas"
+_METHOD_LIST = ", ".join(METHODS)
+_METRIC_HELP = "interval (default: any P(a <= X <= b)) or cdf (any P(X <= k))"
+_P_FORMS = "a number (0.05), a fraction (1/20) or a percentage (5%%)"
 
 
 def _fail(message, *, status=2):
@@ -27,16 +38,47 @@ def _fail(message, *, status=2):
     return status
 
 
-def _describe_error(error):
-    """The message of an exception raised by a command, without Python's decorations."""
+def _describe_error(error, names=None):
+    """The message of an exception raised by a command, without Python's decorations, with the
+    API's parameter names (`` `p_lo` ``) replaced by the command's options (``names``)."""
     if isinstance(error, OSError) and error.filename is not None:
-        return f"{error.strerror or error}: {error.filename!r}"
-    return str(error) or type(error).__name__
+        message = f"{error.strerror or error}: {error.filename!r}"
+    else:
+        message = str(error) or type(error).__name__
+    if names:
+        message = re.sub(r"`(\w+)`", lambda m: f"`{names.get(m.group(1), m.group(1))}`", message)
+        message = re.sub(r"\[(`[^`]+`), \1\]", r"\1", message)  # [`--p-range`, `--p-range`]
+    return message
+
+
+class _Options:
+    """Retell the API's errors raised in the block with the given option names.
+
+    >>> try:
+    ...     with _Options(p_lo="--p-range"):
+    ...         raise ValueError("`p_lo` must be <= `p_hi`.")
+    ... except ValueError as err:
+    ...     print(err)
+    `--p-range` must be <= `p_hi`.
+    """
+
+    def __init__(self, **names):
+        self.names = names
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, kind, error, _tb):
+        plain_os_error = isinstance(error, OSError) and error.filename is None
+        if isinstance(error, (ValueError, TypeError)) or plain_os_error:
+            raise type(error)(_describe_error(error, self.names)) from None
+        return False
 
 
 def _cmd_grid(args):
     """Print a one-line summary of the grid that the n and p specs give."""
-    print(describe_grid(args.n, args.p))
+    with _Options(n="--n", p="--p"):
+        print(describe_grid(args.n, args.p))
     return 0
 
 
@@ -58,17 +100,55 @@ def _number(text):
     return text
 
 
+class _EmbeddedAtlas:
+    """Retell errors about the embedded atlas without the API's `path` (the user typed none)."""
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, kind, error, _tb):
+        if isinstance(error, FileNotFoundError):
+            from atlas.store import default_path
+
+            raise FileNotFoundError(
+                f"the embedded atlas is missing: {str(default_path())!r}; reinstall "
+                "approx-atlas, or pass --atlas FILE."
+            ) from None
+        if isinstance(error, (ValueError, OSError)) and getattr(error, "filename", None) is None:
+            message = _describe_error(error).replace("`path`", "the embedded atlas")
+            raise type(error)(message) from None
+        return False
+
+
+def _atlas_errors(given, option="--atlas"):
+    """The context that words errors about the atlas file: named by ``option`` if ``given``."""
+    return _Options(path=option) if given else _EmbeddedAtlas()
+
+
 def _open_atlas(args):
     """The atlas named by ``--atlas``, or the embedded default."""
     from atlas.query import open_atlas
 
-    return open_atlas(args.atlas)
+    with _atlas_errors(args.atlas is not None):
+        return open_atlas(args.atlas)
+
+
+def _probabilities(text, option):
+    """``"0.01,1/3,5%"`` as a list of floats (:func:`atlas.notation.parse_probability`)."""
+    return [parse_probability(item, option) for item in str(text).split(",")]
 
 
 def _print_json(record):
     import json
 
     print(json.dumps(record, allow_nan=False))
+
+
+def _digits(atlas, source):
+    """Significant digits of an answer: the atlas's for a stored cell, float64's if computed."""
+    from atlas.notation import FLOAT64_DIGITS
+
+    return atlas.error_digits if source == "atlas" else FLOAT64_DIGITS
 
 
 def _source_text(atlas, source, method):
@@ -85,13 +165,18 @@ def _cmd_query(args):
     """Print the verdict at one (n, p); with --strict, exit 3 when unsafe."""
     import dataclasses
 
+    p = parse_probability(args.p, "--p")
     atlas = _open_atlas(args)
     verdict = atlas.is_safe(
-        _number(args.n), _number(args.p), _number(args.tol), method=args.method, metric=args.metric
+        _number(args.n), p, _number(args.tol), method=args.method, metric=args.metric
     )
     a, b = verdict.worst_interval
     if args.json:
+        digits = _digits(atlas, verdict.source)
         record = dataclasses.asdict(verdict)
+        record["error"] = rounded(verdict.error, digits)
+        record["margin"] = rounded(verdict.margin, digits)
+        record["error_digits"] = digits
         record["worst_interval"] = [a, b]
         record["explain"] = verdict.explain()
         record["atlas"] = None if atlas.path is None else str(atlas.path)
@@ -99,9 +184,10 @@ def _cmd_query(args):
     else:
         label = "worst interval" if verdict.metric == "interval" else "worst interval*"
         lines = [
-            f"Bin(n={verdict.n}, p={verdict.p:.6g}), {verdict.method}, {verdict.metric} error",
+            f"Bin(n={verdict.n}, p={format_p(verdict.p)}), {verdict.method}, {verdict.metric} "
+            "error",
             f"  error           {verdict.error:.4g}",
-            f"  tolerance       {verdict.tol:.4g}",
+            f"  tolerance       {format_p(verdict.tol)}",
             f"  margin          {verdict.margin:.4g}  (tolerance - error)",
             "  verdict         "
             + ("safe: the error is within the tolerance" if verdict.safe
@@ -116,28 +202,38 @@ def _cmd_query(args):
 
 
 def _p_range(text):
-    """``LO:HI`` as two numbers (each left to the API to check)."""
+    """``LO:HI`` as two probabilities, LO <= HI (their range is left to the API to check)."""
     lo, sep, hi = text.partition(":")
     if not sep or not lo.strip() or not hi.strip() or ":" in hi:
         raise ValueError(f"`--p-range` must be LO:HI, such as 0.05:0.95; got {text!r}.")
-    return _number(lo.strip()), _number(hi.strip())
+    lo, hi = parse_probability(lo, "--p-range"), parse_probability(hi, "--p-range")
+    if lo > hi:
+        raise ValueError(f"`--p-range` LO:HI must have LO <= HI; got {text!r}.")
+    return lo, hi
 
 
 def _cmd_min_n(args):
-    """Print the smallest grid n from which the error stays within tol (at p, or over a p range)."""
+    """Print the smallest grid n at which the error is within tol and stays so at every larger
+    grid n (at p, or at every grid p of a range)."""
+    p_range = None if args.p_range is None else _p_range(args.p_range)
+    p = None if args.p is None else parse_probability(args.p, "--p")
     atlas = _open_atlas(args)
     tol = _number(args.tol)
     options = {"method": args.method, "metric": args.metric}
-    if args.p_range is not None:
-        lo, hi = _p_range(args.p_range)
+    if p_range is not None:
+        lo, hi = p_range
+        with _Options(p="--p-range", p_lo="--p-range", p_hi="--p-range"):
+            chosen = atlas.select_p(lo, hi)
         result = atlas.min_n_over(lo, hi, tol, **options)
-        chosen = atlas.select_p(lo, hi)
-        where = f"every grid p in [{lo:g}, {hi:g}] ({chosen.size} values)"
+        if lo == hi:
+            where = f"p = {format_p(lo)}"
+        else:
+            where = (f"every grid p in [{format_p(lo)}, {format_p(hi)}] "
+                     f"({plural(chosen.size, 'value')})")  # fmt: skip
     else:
-        p = _number(args.p)
         result = atlas.min_n(p, tol, **options)
         chosen = [p]
-        where = f"p = {p:.6g}"
+        where = f"p = {format_p(p)}"
     source = "atlas" if bool(atlas.on_grid(p=chosen, method=args.method).all()) else "computed"
     n_axis, dense = atlas.n, atlas.dense_n
     below = None
@@ -160,14 +256,14 @@ def _cmd_min_n(args):
             "n_max": int(n_axis[-1]),
         })  # fmt: skip
         return 0
-    head = f"{args.method} {args.metric} error <= {tol:g} at {where}"
+    head = f"{args.method} {args.metric} error <= {format_p(tol)} at {where}"
     if result is None:
         lines = [
-            f"{head}: no n of the atlas grid qualifies",
+            f"{head}: at no n of the atlas grid",
             f"  the largest grid n, {int(n_axis[-1])}, is not within the tolerance",
         ]
     else:
-        lines = [f"{head}: from n = {result} on (n = {result} and every larger grid n)"]
+        lines = [f"{head}: for n = {result} and every larger grid n"]
         if result <= dense:
             fails = "" if below is None else f"; n = {below} is not"
             lines.append(f"  exact: every integer n from {result} to {dense} is within it{fails}")
@@ -185,20 +281,23 @@ def _cmd_min_n(args):
 
 def _cmd_compare(args):
     """Print every method of the atlas ranked by its error at (n, p)."""
+    p = parse_probability(args.p, "--p")
     atlas = _open_atlas(args)
-    n, p = _number(args.n), _number(args.p)
+    n = _number(args.n)
     ranking = atlas.best_method(n, p, metric=args.metric)
     source = "atlas" if atlas.on_grid(n, p, method=ranking[0][0]) else "computed"
     if args.json:
+        digits = _digits(atlas, source)
         _print_json({
             "n": int(n),
             "p": float(p),
             "metric": args.metric,
             "source": source,
-            "ranking": [{"method": m, "error": e} for m, e in ranking],
+            "error_digits": digits,
+            "ranking": [{"method": m, "error": rounded(e, digits)} for m, e in ranking],
         })  # fmt: skip
         return 0
-    lines = [f"Bin(n={int(n)}, p={float(p):.6g}), {args.metric} error, best first"]
+    lines = [f"Bin(n={int(n)}, p={format_p(p)}), {args.metric} error, best first"]
     lines += [f"  {i:>2}  {m:<14} {e:.3e}" for i, (m, e) in enumerate(ranking, start=1)]
     lines.append(f"  source: {_source_text(atlas, source, ranking[0][0])}")
     print("\n".join(lines))
@@ -216,23 +315,31 @@ def _cmd_demo(args):
     best, best_error = atlas.best_method(n, p)[0]
     smallest = atlas.min_n(p, tol)
     within = "within" if best_error <= tol else "not within"
-    from_n = f"from n = {smallest} on" if smallest is not None else "at no n of the atlas grid"
-    if smallest is not None and smallest > atlas.dense_n:
-        from_n += f" (grid n: beyond n = {atlas.dense_n} only grid values are checked)"
-    elif smallest is not None:
-        from_n += f" (every integer n from {smallest} to {atlas.dense_n} checked)"
+    if smallest is None:
+        from_n = "at no n of the atlas grid"
+    elif smallest > atlas.dense_n:
+        from_n = (f"for n = {smallest} and every larger grid n (beyond n = {atlas.dense_n} "
+                  "only the grid's values of n are checked)")  # fmt: skip
+    else:
+        from_n = (f"for n = {smallest} and every larger grid n (every integer n from {smallest} "
+                  f"to {atlas.dense_n} checked)")  # fmt: skip
+    p_text, tol_text = format_p(p), format_p(tol)
     print("\n".join([
         f"Demo (an invented scenario): an incoming inspection lot of n = {n} fasteners with a "
-        f"defect rate of p = {p:g}; every P(a <= X <= b), X ~ Bin({n}, {p:g}), wanted within "
-        f"{tol:g}.",
+        f"defect rate of p = {p_text}; every P(a <= X <= b), X ~ Bin({n}, {p_text}), wanted "
+        f"within {tol_text}.",
         f"  normal_cc: {verdict.explain()}",
         f"  best method here: {best}, error {best_error:.3g} ({within} the tolerance)",
-        f"  normal_cc is within {tol:g} at p = {p:g} {from_n}",
-        f"  next: approx-atlas query --n {n} --p {p:g} --tol {tol:g}; approx-atlas compare "
-        f"--n {n} --p {p:g}",
+        f"  normal_cc is within {tol_text} at p = {p_text} {from_n}",
+        f"  next: approx-atlas query --n {n} --p {p_text} --tol {tol_text}; approx-atlas "
+        f"compare --n {n} --p {p_text}",
         f"  caution: {caution}",
     ]))  # fmt: skip
     return 0
+
+
+def _method_help(default="normal_cc"):
+    return f"the approximation, one of {_METHOD_LIST} (default {default})"
 
 
 def _add_query_commands(commands):
@@ -241,31 +348,48 @@ def _add_query_commands(commands):
     def common(sub, *, method=True):
         sub.add_argument("--atlas", metavar="FILE", help="atlas file (default: the embedded one)")
         if method:
-            sub.add_argument("--method", default="normal_cc", help="approximation (normal_cc)")
-        sub.add_argument("--metric", default="interval", help="interval (default) or cdf")
+            sub.add_argument("--method", default="normal_cc", help=_method_help())
+        sub.add_argument("--metric", default="interval", help=_METRIC_HELP)
         sub.add_argument("--json", action="store_true", help="print one JSON object")
 
+    p_help = f"success probability, 0 < p < 1: {_P_FORMS}"
     query = commands.add_parser("query", help="is the approximation within a tolerance at (n, p)?")
     query.add_argument("--n", required=True, help="number of trials, n >= 1")
-    query.add_argument("--p", required=True, help="success probability, 0 < p < 1")
+    query.add_argument("--p", required=True, help=p_help)
     query.add_argument("--tol", required=True, help="tolerance on the error, > 0")
     common(query)
     query.add_argument("--strict", action="store_true", help="exit with status 3 when unsafe")
-    query.set_defaults(handler=_cmd_query)
+    query.set_defaults(
+        handler=_cmd_query,
+        names={"n": "--n", "p": "--p", "tol": "--tol", "method": "--method", "metric": "--metric"},
+    )
 
-    min_n = commands.add_parser("min-n", help="the smallest n from which the error stays in tol")
+    min_n = commands.add_parser(
+        "min-n", help="the smallest n at which the error is within tol, and stays so above it"
+    )
     where = min_n.add_mutually_exclusive_group(required=True)
-    where.add_argument("--p", help="success probability, 0 < p < 1")
-    where.add_argument("--p-range", metavar="LO:HI", help="every grid p in [LO, HI]")
+    where.add_argument("--p", help=p_help)
+    where.add_argument("--p-range", metavar="LO:HI",
+                       help=f"every grid p in [LO, HI]; LO and HI each {_P_FORMS}")  # fmt: skip
     min_n.add_argument("--tol", required=True, help="tolerance on the error, > 0")
     common(min_n)
-    min_n.set_defaults(handler=_cmd_min_n)
+    min_n.set_defaults(
+        handler=_cmd_min_n,
+        names={
+            "p": "--p",
+            "tol": "--tol",
+            "method": "--method",
+            "metric": "--metric",
+            "p_lo": "--p-range",
+            "p_hi": "--p-range",
+        },
+    )
 
     compare = commands.add_parser("compare", help="every method ranked by its error at (n, p)")
     compare.add_argument("--n", required=True, help="number of trials, n >= 1")
-    compare.add_argument("--p", required=True, help="success probability, 0 < p < 1")
+    compare.add_argument("--p", required=True, help=p_help)
     common(compare, method=False)
-    compare.set_defaults(handler=_cmd_compare)
+    compare.set_defaults(handler=_cmd_compare, names={"n": "--n", "p": "--p", "metric": "--metric"})
 
     demo = commands.add_parser("demo", help="the main questions for an invented inspection lot")
     demo.add_argument("--atlas", metavar="FILE", help="atlas file (default: the embedded one)")
@@ -286,20 +410,15 @@ def _integer(text):
 def _cmd_build(args):
     """Build an atlas over a grid and write it to a NetCDF file, atomically."""
     import time
-    from pathlib import Path
 
     from atlas import cube
     from atlas.build import build_atlas, check_methods
+    from atlas.files import check_target
     from atlas.grid import parse_n, parse_p
 
-    # Every check that can fail comes before any work.
-    target = Path(args.output)
-    if target.is_dir():
-        raise ValueError(f"`-o` must name a file; got a directory: {str(target)!r}.")
-    if target.exists() and not args.force:
-        raise FileExistsError(f"`-o` {str(target)!r} exists; pass --force to replace it.")
-    if not target.parent.is_dir():
-        raise FileNotFoundError(f"`-o` is in a directory that does not exist: {str(target)!r}.")
+    # Every check that can fail comes before any work: FILE can be written (a probe file is
+    # created and removed beside it), the specs and methods are valid.
+    target = check_target(args.output, overwrite=args.force, name="-o")
     parse_n(args.n)
     parse_p(args.p)
     check_methods(args.methods)
@@ -336,13 +455,18 @@ def _cmd_inspect(args):
     """Print an atlas file's grid, methods, variables and provenance, then verify its checksum."""
     from atlas import cube, store
 
-    path = store.default_path() if args.file is None else args.file
-    ds = cube.load_dataset(path)
-    try:
-        print("\n".join(cube.describe_dataset(ds, path)), flush=True)
-        digest = cube.verify_checksum(ds, path)
-    finally:
-        ds.close()
+    if args.file is not None and args.atlas is not None and args.file != args.atlas:
+        raise ValueError(f"give FILE or `--atlas`, not both; got {args.file!r} and {args.atlas!r}.")
+    path = args.file or args.atlas or store.default_path()
+    given = args.file is not None or args.atlas is not None
+    with _atlas_errors(given, "FILE" if args.file is not None else "--atlas"):
+        ds = cube.load_dataset(path)
+        try:  # every value is read and checked before anything is printed
+            digest = cube.verify_checksum(ds, path)
+            lines = cube.describe_dataset(ds, path)
+        finally:
+            ds.close()
+    print("\n".join(lines))
     print(f"checksum: ok ({digest})")
     return 0
 
@@ -352,7 +476,9 @@ def _add_build_commands(commands):
     build = commands.add_parser("build", help="compute an atlas over a grid and write it to NetCDF")
     build.add_argument("--n", default=DEFAULT_N_SPEC, help="n axis spec (default: the atlas's)")
     build.add_argument("--p", default=DEFAULT_P_SPEC, help="p axis spec (default: the atlas's)")
-    build.add_argument("--methods", help="comma-separated methods (default: all)")
+    build.add_argument(
+        "--methods", help=f"comma-separated methods of {_METHOD_LIST} (default: all)"
+    )
     build.add_argument("-o", "--output", required=True, metavar="FILE", help="the NetCDF file")
     build.add_argument(
         "--workers", type=_integer, metavar="K", help="local worker processes (default: this one)"
@@ -363,10 +489,16 @@ def _add_build_commands(commands):
     )
     build.add_argument("--dask", metavar="SPEC", help="'local:K' or 'tcp://HOST:PORT'")
     build.add_argument("--checkpoint", metavar="DIR", help="keep finished chunks in DIR")
-    build.set_defaults(handler=_cmd_build)
+    build.set_defaults(
+        handler=_cmd_build,
+        names={"n": "--n", "p": "--p", "methods": "--methods", "method": "--methods",
+               "workers": "--workers", "spec": "--dask", "checkpoint": "--checkpoint",
+               "path": "-o"},
+    )  # fmt: skip
 
     inspect = commands.add_parser("inspect", help="describe an atlas file and verify its checksum")
     inspect.add_argument("file", nargs="?", metavar="FILE", help="default: the embedded atlas")
+    inspect.add_argument("--atlas", metavar="FILE", help="the same as FILE")
     inspect.set_defaults(handler=_cmd_inspect)
 
 
@@ -384,6 +516,14 @@ def _number_list(text, option):
         ) from None
 
 
+def _check_output(args):
+    """Refuse ``-o`` (if given) before any work: it exists without --force, or cannot be written."""
+    if args.output is not None:
+        from atlas.files import check_target
+
+        check_target(args.output, overwrite=args.force, name="-o")
+
+
 def _emit(text, output):
     """Print ``text``, or write it atomically to ``output`` and print the path."""
     if output is None:
@@ -399,7 +539,9 @@ def _cmd_chart(args):
     """Draw a map (or a comparison) and write it as PNG, SVG or PDF by the file's extension."""
     from atlas import charts, figures
 
-    figures.figure_format(args.output)  # refuse a bad extension before any drawing
+    with _Options(path="-o"):
+        figures.figure_format(args.output)  # refuse a bad extension before any drawing
+    _check_output(args)
     atlas = _open_atlas(args)
     fig = charts.chart(atlas, kind=args.kind, method=args.method, method2=args.method2,
                        metric=args.metric, p_scale=args.p_scale)  # fmt: skip
@@ -419,43 +561,53 @@ def _cmd_table(args):
     from atlas.tables import TABLE_FORMATS, threshold_table
 
     _check_format(args.format, TABLE_FORMATS)
-    table = threshold_table(_open_atlas(args), _number_list(args.tol, "--tol"),
-                            _number_list(args.p, "--p"), method=args.method,
+    tols, ps = _number_list(args.tol, "--tol"), _probabilities(args.p, "--p")
+    _check_output(args)
+    table = threshold_table(_open_atlas(args), tols, ps, method=args.method,
                             metric=args.metric)  # fmt: skip
     return _emit(table.render(args.format), args.output)
 
 
 def _cmd_rules(args):
     """Print (or write) the audit of the classic rules of thumb and the user's own."""
-    from atlas.engine import METRICS
     from atlas.rules import CLASSIC_RULES, parse_rule
     from atlas.tables import AUDIT_FORMATS, rule_audit
 
     _check_format(args.format, AUDIT_FORMATS)
     extra = [parse_rule(text, name="--rule") for text in args.rule or ()]
+    tols = _number_list(args.tol, "--tol")
+    _check_output(args)
     audit = rule_audit(
         _open_atlas(args),
         list(CLASSIC_RULES) + extra,
         methods=args.method,
         metrics=args.metric or METRICS,
-        tols=_number_list(args.tol, "--tol"),
+        tols=tols,
     )
     return _emit(audit.render(args.format), args.output)
 
 
 def _cmd_sheet(args):
     """Write the printable PDF reference sheet."""
+    from pathlib import Path
+
     from atlas.sheets import write_sheet
 
+    if Path(args.output).suffix.lower() != ".pdf":
+        raise ValueError(f"`-o` must end in '.pdf'; got {args.output!r}.")
+    _check_output(args)
     print(write_sheet(_open_atlas(args), args.output, methods=args.method))
     return 0
 
 
 def _cmd_wiki(args):
     """Write the static wiki page (index.html, index.md and SVG charts) into a directory."""
+    from atlas.files import check_directory_target
     from atlas.sheets import write_wiki
 
-    written = write_wiki(_open_atlas(args), args.output, methods=args.method)
+    check_directory_target(args.output, overwrite=args.force, name="-o")
+    written = write_wiki(_open_atlas(args), args.output, methods=args.method,
+                         overwrite=args.force)  # fmt: skip
     print(written[-1])
     return 0
 
@@ -466,58 +618,92 @@ def _add_output_commands(commands):
     def atlas_option(sub):
         sub.add_argument("--atlas", metavar="FILE", help="atlas file (default: the embedded one)")
 
+    def force_option(sub, what="FILE"):
+        sub.add_argument("--force", action="store_true", help=f"replace an existing {what}")
+
     def page_methods(sub):
         sub.add_argument(
             "--method",
             action="append",
-            help="a method to map (repeatable; default normal_cc, edgeworth_cc)",
+            help=f"a method to map, one of {_METHOD_LIST} (repeatable; default normal_cc and "
+            "edgeworth_cc)",
         )
 
     def text_options(sub, formats):
-        """--format, --atlas and -o of a command that prints text or writes it to a file."""
+        """--format, --atlas, -o and --force of a command that prints text or writes a file."""
         sub.add_argument("--format", default="md", help=formats)
         atlas_option(sub)
         sub.add_argument("-o", "--output", metavar="FILE", help="write FILE instead of printing")
+        force_option(sub)
 
     chart = commands.add_parser("chart", help="draw an error map or a comparison of methods")
-    chart.add_argument("--method", default="normal_cc", help="approximation (normal_cc)")
+    chart.add_argument("--method", default="normal_cc", help=_method_help())
     chart.add_argument("--method2", help="the other method of --kind compare or gain")
-    chart.add_argument("--metric", default="interval", help="interval (default) or cdf")
+    chart.add_argument("--metric", default="interval", help=_METRIC_HELP)
     chart.add_argument("--kind", default="map", help="map (default), compare, gain or best")
     chart.add_argument("--p-scale", default="logit", help="p axis: logit (default) or linear")
     atlas_option(chart)
     chart.add_argument("-o", "--output", required=True, metavar="FILE",
                        help="FILE.png (>= 1600 px wide), FILE.svg or FILE.pdf")  # fmt: skip
-    chart.set_defaults(handler=_cmd_chart)
+    force_option(chart)
+    chart.set_defaults(handler=_cmd_chart,
+                       names={"method": "--method", "method2": "--method2", "metric": "--metric",
+                              "kind": "--kind", "p_scale": "--p-scale", "path": "-o"})  # fmt: skip
 
     table = commands.add_parser("table", help="the minimum n for each tolerance and p")
     table.add_argument("--tol", default="0.01,0.005,0.001", help="tolerances (0.01,0.005,0.001)")
-    table.add_argument("--p", default="0.01,0.05,0.1,0.3,0.5", help="p values (0.01,...,0.5)")
-    table.add_argument("--method", default="normal_cc", help="approximation (normal_cc)")
-    table.add_argument("--metric", default="interval", help="interval (default) or cdf")
+    table.add_argument("--p", default="0.01,0.05,0.1,0.3,0.5",
+                       help=f"p values (0.01,0.05,0.1,0.3,0.5), each {_P_FORMS}")  # fmt: skip
+    table.add_argument("--method", default="normal_cc", help=_method_help())
+    table.add_argument("--metric", default="interval", help=_METRIC_HELP)
     text_options(table, "csv, md (default) or json")
-    table.set_defaults(handler=_cmd_table)
+    table.set_defaults(
+        handler=_cmd_table,
+        names={
+            "tols": "--tol",
+            "ps": "--p",
+            "p": "--p",
+            "tol": "--tol",
+            "method": "--method",
+            "metric": "--metric",
+            "path": "-o",
+        },
+    )
 
     audit = commands.add_parser("rules", help="audit the rules of thumb (and yours) on the atlas")
     audit.add_argument("--rule", action="append", metavar="EXPR",
                        help="also audit EXPR, e.g. 'n*p*q >= 10' (repeatable)")  # fmt: skip
-    audit.add_argument("--method", action="append", help="a method (repeatable; default all)")
-    audit.add_argument("--metric", action="append", help="a metric (repeatable; default both)")
+    audit.add_argument("--method", action="append",
+                       help=f"a method of the atlas, of {_METHOD_LIST} (repeatable; default "
+                            "all the atlas holds)")  # fmt: skip
+    audit.add_argument("--metric", action="append",
+                       help="interval or cdf (repeatable; default both)")  # fmt: skip
     audit.add_argument("--tol", default="0.01,0.005,0.001", help="tolerances for the shares")
     text_options(audit, "md (default) or json")
-    audit.set_defaults(handler=_cmd_rules)
+    audit.set_defaults(handler=_cmd_rules,
+                       names={"methods": "--method", "metric": "--metric", "metrics": "--metric",
+                              "tols": "--tol", "rules": "--rule", "path": "-o"})  # fmt: skip
 
     sheet = commands.add_parser("sheet", help="write the printable PDF reference sheet")
     page_methods(sheet)
     atlas_option(sheet)
     sheet.add_argument("-o", "--output", required=True, metavar="FILE.pdf", help="the PDF file")
-    sheet.set_defaults(handler=_cmd_sheet)
+    force_option(sheet)
+    sheet.set_defaults(handler=_cmd_sheet, names={"methods": "--method", "path": "-o"})
 
     wiki = commands.add_parser("wiki", help="write a static wiki page with SVG charts")
     page_methods(wiki)
     atlas_option(wiki)
-    wiki.add_argument("-o", "--output", required=True, metavar="DIR", help="the page's directory")
-    wiki.set_defaults(handler=_cmd_wiki)
+    wiki.add_argument(
+        "-o",
+        "--output",
+        required=True,
+        metavar="DIR",
+        help="the page's directory: new, empty, or with --force a page's directory to replace",
+    )
+    force_option(wiki, "page directory DIR")
+    wiki.set_defaults(handler=_cmd_wiki,
+                      names={"methods": "--method", "directory": "-o", "path": "-o"})  # fmt: skip
 
 
 def _build_parser():
@@ -531,8 +717,10 @@ def _build_parser():
 
     grid = commands.add_parser("grid", help="summarize the (n, p) grid a pair of specs gives")
     grid.add_argument("--n", default=DEFAULT_N_SPEC, help="n axis spec (default: the atlas's)")
-    grid.add_argument("--p", default=DEFAULT_P_SPEC, help="p axis spec (default: the atlas's)")
-    grid.set_defaults(handler=_cmd_grid)
+    grid.add_argument("--p", default=DEFAULT_P_SPEC,
+                      help="p axis spec (default: the atlas's); numbers may be fractions "
+                           "(1/3) or percentages (5%%)")  # fmt: skip
+    grid.set_defaults(handler=_cmd_grid, names={"n": "--n", "p": "--p"})
     _add_query_commands(commands)
     _add_build_commands(commands)
     _add_output_commands(commands)
@@ -570,4 +758,4 @@ def main(argv=None):
         sys.stderr.close()
         return 0
     except (ValueError, TypeError, OSError) as error:  # OSError covers FileNotFound/Exists
-        return _fail(_describe_error(error))
+        return _fail(_describe_error(error, getattr(args, "names", None)))

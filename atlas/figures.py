@@ -17,6 +17,7 @@ import numpy as np
 from atlas import cube
 from atlas.engine import check_metric
 from atlas.files import replacing
+from atlas.notation import format_p
 
 __all__ = [
     "FOOTER_STYLE",
@@ -119,7 +120,15 @@ def errors_on_grid(atlas, method, metric):
     check_metric(metric)
     check_atlas_method(ds, method)
     index = atlas_methods(ds).index(method)
-    return np.asarray(ds[_VARIABLES[metric]].isel(method=index).values, dtype=np.float64)
+    try:
+        return np.asarray(ds[_VARIABLES[metric]].isel(method=index).values, dtype=np.float64)
+    except (RuntimeError, OSError) as err:  # netCDF4/HDF5 on a chunk failing Fletcher-32
+        source = ds.encoding.get("source")
+        where = f" from {str(source)!r}" if source else ""
+        raise ValueError(
+            f"the atlas is corrupt: {_VARIABLES[metric]} of {method} cannot be read{where} "
+            f"({type(err).__name__}: {err})."
+        ) from None
 
 
 # ---- words -------------------------------------------------------------------------------------
@@ -145,6 +154,13 @@ def _build_date(ds):
     return match.group(0) if match else "unknown date"
 
 
+def _axis_text(values, show):
+    """The range and count of an axis, such as "1…10 (10 values)" or "5 (1 value)"."""
+    if values.size == 1:
+        return f"{show(values[0])} (1 value)"
+    return f"{show(values[0])}…{show(values[-1])} ({values.size} values)"
+
+
 def provenance_line(atlas):
     """One line on where the atlas came from: version, schema, build date, grid and checksum."""
     ds = as_dataset(atlas)
@@ -153,8 +169,8 @@ def provenance_line(atlas):
     short = checksum[: len("sha256:") + 12] + "…" if checksum else "no checksum"
     return (
         f"Atlas: {ds.attrs.get('source', 'approx-atlas')}, schema {ds.attrs.get('atlas_schema')}, "
-        f"built {_build_date(ds)}; grid n = {n[0]:,}…{n[-1]:,} ({n.size} values), "
-        f"p = {p[0]:.4g}…{p[-1]:.4g} ({p.size} values); "
+        f"built {_build_date(ds)}; grid n = {_axis_text(n, lambda x: f'{x:,}')}, "
+        f"p = {_axis_text(p, format_p)}; "
         f"{str(ds.attrs.get('error_precision', '')).split(' ')[0]}; "
         f"{short}"
     )

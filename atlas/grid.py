@@ -5,6 +5,8 @@ import re
 
 import numpy as np
 
+from atlas.notation import format_p, plural, read_probability
+
 __all__ = ["DEFAULT_N_SPEC", "DEFAULT_P_SPEC", "ROUND_P", "default_n", "default_p",
            "describe_grid", "parse_n", "parse_p"]  # fmt: skip
 
@@ -27,6 +29,11 @@ def _error(name, rule, item, spec=None):  # names the argument, the rule and the
 
 
 def _number(name, token, item, spec):
+    if name == "p":  # also a fraction 1/3 or a percentage 5%
+        value = read_probability(token)
+        if value is None:
+            raise _error(name, f"items must be {_FORMS[name]}", item, spec)
+        return value
     try:
         return float(token)
     except ValueError:
@@ -167,7 +174,8 @@ def parse_p(spec):
     ----------
     spec : str or sequence of float
         Comma-separated items: a number ``x``; ``lin:a:b:m``, ``log:a:b:m`` or ``logit:a:b:m``
-        for m points evenly spaced in p, in log p or in log(p/(1-p)). Or the values.
+        for m points evenly spaced in p, in log p or in log(p/(1-p)). Each number may also be
+        written as a fraction ``1/3`` or a percentage ``5%``. Or the values.
 
     Returns
     -------
@@ -243,7 +251,15 @@ def describe_grid(n, p):
     --------
     >>> describe_grid("1:10", "0.1,0.5")
     'n: 10 values from 1 to 10; p: 2 values from 0.1 to 0.5; 20 (n, p) points'
+    >>> describe_grid("1000000", "0.9999999")
+    'n: 1 value, 1000000; p: 1 value, 0.9999999; 1 (n, p) point'
     """
     n, p = parse_n(n), parse_p(p)
-    text = f"n: {n.size} values from {n[0]} to {n[-1]}; p: {p.size} values from {p[0]:.6g} "
-    return text + f"to {p[-1]:.6g}; {n.size * p.size} (n, p) points"
+
+    def axis(name, values, show):
+        if values.size == 1:
+            return f"{name}: 1 value, {show(values[0])}"
+        return f"{name}: {values.size} values from {show(values[0])} to {show(values[-1])}"
+
+    points = plural(n.size * p.size, "(n, p) point")
+    return f"{axis('n', n, int)}; {axis('p', p, format_p)}; {points}"

@@ -24,6 +24,7 @@ import numpy as np
 from atlas import store
 from atlas.approximations import check_method
 from atlas.engine import check_metric, check_n, check_p, evaluate, evaluate_cells
+from atlas.notation import error_digits, format_p
 
 __all__ = ["Atlas", "Verdict", "check_tol", "open_atlas"]
 
@@ -134,12 +135,15 @@ class Verdict:
         >>> Verdict(False, 0.0244, 0.01, -0.0144, "normal_cc", "interval", 50, 0.1, (2, 6),
         ...         "atlas").explain()
         'n=50, p=0.1: normal_cc interval error 0.0244 <= tol 0.01? no (margin -0.0144); worst interval [2, 6]; from the atlas'
+
+        n and p are written so that they read back as the same numbers (p = 0.9999999 is not
+        written as 1); the error and margin to three significant digits.
         """  # noqa: E501 - a doctest's output line cannot be wrapped
         a, b = self.worst_interval
         where = "from the atlas" if self.source == "atlas" else "computed exactly (no atlas cell)"
         return (
-            f"n={self.n}, p={self.p:.6g}: {self.method} {self.metric} error {_fmt(self.error)} "
-            f"<= tol {_fmt(self.tol)}? {'yes' if self.safe else 'no'} "
+            f"n={self.n}, p={format_p(self.p)}: {self.method} {self.metric} error "
+            f"{_fmt(self.error)} <= tol {format_p(self.tol)}? {'yes' if self.safe else 'no'} "
             f"(margin {_fmt(self.margin)}); worst interval [{a}, {b}]; {where}"
         )
 
@@ -208,6 +212,24 @@ class Atlas:
         if self._file is not None and self._dataset is None:
             return self._file.attrs()
         return dict(self.dataset.attrs)
+
+    @property
+    def error_digits(self):
+        """The significant digits the atlas holds of each error: 7 if stored as float32 (the
+        attribute ``error_precision``), 17 (any float64, exactly) otherwise.
+
+        Errors are returned as float64 either way; print them with these digits.
+        """
+        digits = self._cache.get("error_digits")
+        if digits is None:
+            precision = self.attrs.get("error_precision")
+            if precision is None:  # a file without the attribute: the variable's own dtype
+                if self._file is not None:
+                    precision = self._file.nc.variables["interval_error"].dtype
+                else:
+                    precision = self.dataset["interval_error"].dtype
+            digits = self._cache["error_digits"] = error_digits(precision)
+        return digits
 
     @property
     def n(self):
@@ -420,10 +442,12 @@ class Atlas:
         p_axis = self.p
         chosen = p_axis[(p_axis >= lo) & (p_axis <= hi)]
         if chosen.size == 0:
-            first, last = float(p_axis[0]), float(p_axis[-1])
+            first, last = format_p(p_axis[0]), format_p(p_axis[-1])
+            grid = (f"the grid's one p is {first}" if p_axis.size == 1 else
+                    f"the grid's {p_axis.size} values of p run from {first} to {last}")  # fmt: skip
             raise ValueError(
                 f"[`p_lo`, `p_hi`] must hold a p of the atlas grid; got [{lo!r}, {hi!r}], and "
-                f"the grid's {p_axis.size} p run from {first!r} to {last!r}."
+                f"{grid}."
             )
         return chosen
 
@@ -546,7 +570,8 @@ class Atlas:
         )
 
     def min_n(self, p, tol, *, method="normal_cc", metric="interval"):
-        """The smallest grid n from which on the error stays within ``tol`` at this p.
+        """The smallest grid n at which the error is within ``tol`` and stays within it at every
+        larger grid n, at this p.
 
         Parameters
         ----------
@@ -590,8 +615,8 @@ class Atlas:
         return self._smallest_safe_suffix(np.array([p_value]), tol_value, method, metric)
 
     def min_n_over(self, p_lo, p_hi, tol, *, method="normal_cc", metric="interval"):
-        """The smallest grid n from which on the error stays within ``tol`` for every grid p in
-        [p_lo, p_hi].
+        """The smallest grid n at which the error is within ``tol`` for every grid p in
+        [p_lo, p_hi], and stays so at every larger grid n.
 
         Parameters
         ----------

@@ -16,7 +16,7 @@ from pathlib import Path
 from atlas import charts, cube, figures
 from atlas.engine import METRICS, check_metric
 from atlas.figures import METHOD_LABELS, TEXT_COLOUR, provenance_line
-from atlas.files import replacing, save_text
+from atlas.files import replacing, replacing_directory, save_text
 from atlas.tables import (
     AUDIT_TOLS,
     TABLE_PS,
@@ -166,7 +166,8 @@ def _wrap(text, size, width=0.92):
 def _tables_page(tables):
     fig = _text_page("Minimum n for each tolerance")
     note = (
-        "The smallest grid n from which on the worst-case error stays within the tolerance. "
+        "The smallest grid n at which the worst-case error is within the tolerance and stays "
+        "within it at every larger grid n. "
         f"'> N': not reached on the grid (n up to {tables[0].n_max:,}); †: beyond "
         f"n = {tables[0].dense_n:,} only the grid's n are checked, not every integer."
     )
@@ -347,7 +348,7 @@ def _wiki_charts(ds, chosen, metric):
 
 
 def write_wiki(atlas, directory, *, methods=None, metric="interval", tols=TABLE_TOLS,
-               ps=TABLE_PS):  # fmt: skip
+               ps=TABLE_PS, overwrite=True):  # fmt: skip
     """Write a static wiki page: ``index.html`` and ``index.md`` with SVG charts beside them.
 
     The page has the charts, the threshold tables, the rule audit, the definitions, the
@@ -358,9 +359,13 @@ def write_wiki(atlas, directory, *, methods=None, metric="interval", tols=TABLE_
     ----------
     atlas : Atlas
     directory : str or os.PathLike
-        Created if missing (its parent must exist).
+        Created (its parent must exist), or an empty directory; a directory of an earlier page
+        is replaced if ``overwrite``.
     methods, metric, tols, ps
         As for :func:`write_sheet`.
+    overwrite : bool, optional
+        Replace a non-empty directory that holds only page files (``.html``, ``.md``,
+        ``.svg``, ...); a directory holding anything else is never replaced.
 
     Returns
     -------
@@ -370,40 +375,37 @@ def write_wiki(atlas, directory, *, methods=None, metric="interval", tols=TABLE_
     Raises
     ------
     ValueError
-        For bad methods, metric, tols or ps.
+        For bad methods, metric, tols or ps, or an atlas whose data cannot be read.
     FileNotFoundError
         If the parent of ``directory`` does not exist.
+    FileExistsError
+        If ``directory`` is not empty and ``overwrite`` is False, or holds other files.
+
+    Notes
+    -----
+    The page is written into a temporary directory beside ``directory`` and renamed into place
+    when complete (:func:`atlas.files.replacing_directory`): a failure leaves nothing behind.
     """
     ds = figures.as_dataset(atlas)
     check_metric(metric)
     chosen = _headline(ds, methods)
     directory = Path(directory)
-    if not directory.parent.is_dir():
-        raise FileNotFoundError(
-            f"`directory` is in a directory that does not exist: {str(directory)!r}."
-        )
-    directory.mkdir(exist_ok=True)
-    tables = [threshold_table(atlas, tols, ps, method=m, metric=x) for m in chosen
-              for x in METRICS]  # fmt: skip
-    audit = rule_audit(ds, methods=chosen)
-    written = []
-    images = []
-    for name, caption, make in _wiki_charts(ds, chosen, metric):
-        written.append(figures.save_figure(make(), directory / name))
-        images.append((name, caption))
-    provenance = provenance_line(ds)
-    where = _where(atlas)
-    written.append(
-        save_text(
-            directory / "index.md", _wiki_markdown(ds, images, tables, audit, provenance, where)
-        )
-    )
-    written.append(
-        save_text(
-            directory / "index.html", _wiki_html(ds, images, tables, audit, provenance, where)
-        )
-    )
-    return written
+    with replacing_directory(directory, overwrite=overwrite) as folder:
+        tables = [threshold_table(atlas, tols, ps, method=m, metric=x) for m in chosen
+                  for x in METRICS]  # fmt: skip
+        audit = rule_audit(ds, methods=chosen)
+        names = []
+        images = []
+        for name, caption, make in _wiki_charts(ds, chosen, metric):
+            figures.save_figure(make(), folder / name)
+            names.append(name)
+            images.append((name, caption))
+        provenance = provenance_line(ds)
+        where = _where(atlas)
+        page = _wiki_markdown(ds, images, tables, audit, provenance, where)
+        save_text(folder / "index.md", page)
+        save_text(folder / "index.html", _wiki_html(ds, images, tables, audit, provenance, where))
+    return [directory / name for name in (*names, "index.md", "index.html")]
 
 
 def _wiki_markdown(ds, images, tables, audit, provenance, where):

@@ -147,7 +147,9 @@ def to_dataset(nc):
     """
     import xarray as xr
 
-    return xr.open_dataset(xr.backends.NetCDF4DataStore(nc))
+    ds = xr.open_dataset(xr.backends.NetCDF4DataStore(nc))
+    ds.encoding.setdefault("source", nc.filepath())  # named when a damaged chunk is refused
+    return ds
 
 
 # ---- the checksum ------------------------------------------------------------------------------

@@ -20,6 +20,7 @@ import numpy as np
 from atlas import figures
 from atlas.engine import METRICS, check_metric
 from atlas.figures import METRIC_FORMULAS, format_level, provenance_line
+from atlas.notation import FLOAT64_DIGITS, error_digits, format_p, rounded
 from atlas.rules import CLASSIC_RULES, parse_rule, rule_name
 
 TABLE_TOLS = (0.01, 0.005, 0.001, 0.0001)
@@ -65,7 +66,7 @@ def _fmt_error(x):
 
 
 def _fmt_p(x):
-    return f"{x:.6g}"
+    return format_p(x)
 
 
 _SUPERSCRIPTS = str.maketrans("0123456789", "⁰¹²³⁴⁵⁶⁷⁸⁹")
@@ -124,6 +125,24 @@ class ThresholdTable:
     def title(self):
         return f"Minimum n for {self.method}, {self.metric} error"
 
+    def basis(self, value):
+        """What a minimum n rests on: ``"exact"``, ``"grid"`` or ``"not_reached"`` (see
+        :meth:`basis_meanings`)."""
+        if value is None:
+            return "not_reached"
+        return "grid" if value > self.dense_n else "exact"
+
+    def basis_meanings(self):
+        """The meaning of each basis code, for this table's grid."""
+        return {
+            "exact": f"every integer n from the entry to {self.dense_n} is within the tolerance, "
+            "and so is every larger grid n",
+            "grid": f"the entry is beyond n = {self.dense_n}, where only the grid's n are "
+            "checked, not every integer",
+            "not_reached": f"not reached within the grid: the error exceeds the tolerance at "
+            f"its largest n, {self.n_max}",
+        }
+
     def _cell(self, value):
         if value is None:
             return f"> {_compact_n(self.n_max)}"
@@ -132,11 +151,13 @@ class ThresholdTable:
     def notes(self):
         """The footnotes of the table, as a list of sentences."""
         return [
-            f"Each entry is the smallest n of the atlas grid from which on the worst-case "
-            f"{self.metric} error of {self.method} stays within the tolerance "
-            f"({METRIC_FORMULAS[self.metric]}).",
-            f"'> {_compact_n(self.n_max)}': not reached within the grid (n up to {self.n_max:,}).",
+            f"Each entry is the smallest n of the atlas grid at which the worst-case "
+            f"{self.metric} error of {self.method} is within the tolerance and stays within it "
+            f"at every larger grid n ({METRIC_FORMULAS[self.metric]}).",
+            f"An entry without a mark is exact: every integer n from it to {self.dense_n:,} is "
+            "within the tolerance.",
             f"†: beyond n = {self.dense_n:,} only the grid's n are checked, not every integer.",
+            f"'> {_compact_n(self.n_max)}': not reached within the grid (n up to {self.n_max:,}).",
         ]
 
     def to_rows(self):
@@ -149,12 +170,18 @@ class ThresholdTable:
         return header, rows
 
     def to_csv(self):
-        """CSV: a column ``p`` and one column per tolerance; an empty cell for None."""
+        """CSV, one row per p and tolerance: ``p, tol, min_n, basis``.
+
+        ``min_n`` is an integer, or ``> N`` (N the largest grid n) when not reached; ``basis``
+        is ``exact``, ``grid`` or ``not_reached`` (:meth:`basis_meanings`).
+        """
         buffer = io.StringIO()
         writer = csv.writer(buffer, lineterminator="\n")
-        writer.writerow(["p"] + [f"tol={t:g}" for t in self.tols])
+        writer.writerow(["p", "tol", "min_n", "basis"])
         for p, values in zip(self.ps, self.min_n, strict=True):
-            writer.writerow([repr(p)] + ["" if v is None else v for v in values])
+            for tol, v in zip(self.tols, values, strict=True):
+                shown = f"> {self.n_max}" if v is None else v
+                writer.writerow([format_p(p), format_p(tol), shown, self.basis(v)])
         return buffer.getvalue()
 
     def to_markdown(self):
@@ -165,7 +192,8 @@ class ThresholdTable:
         return "\n".join(lines) + "\n"
 
     def to_json(self):
-        """JSON: the parameters, ``min_n`` as a list of rows (null for None) and provenance."""
+        """JSON: the parameters, ``min_n`` as a list of rows (null when not reached), ``basis``
+        beside it (rows of ``exact``, ``grid``, ``not_reached``), their meanings, provenance."""
         return _json_text(
             {
                 "method": self.method,
@@ -174,6 +202,8 @@ class ThresholdTable:
                 "tols": list(self.tols),
                 "ps": list(self.ps),
                 "min_n": [list(row) for row in self.min_n],
+                "basis": [[self.basis(v) for v in row] for row in self.min_n],
+                "basis_meanings": self.basis_meanings(),
                 "n_max": self.n_max,
                 "dense_n": self.dense_n,
                 "atlas": self.provenance,
@@ -285,7 +315,7 @@ class AuditRow:
             "worst_n": self.worst_n,
             "worst_p": self.worst_p,
         }
-        out["share_within"] = {f"{t:g}": s for t, s in zip(tols, self.shares, strict=True)}
+        out["share_within"] = {format_p(t): s for t, s in zip(tols, self.shares, strict=True)}
         return out
 
 
@@ -301,12 +331,15 @@ class RuleAudit:
     grid_cells : int
         Cells of the atlas grid (len(n) x len(p)).
     provenance : str
+    error_digits : int
+        Significant digits of the atlas's errors: 7 for float32 storage, 17 for float64.
     """
 
     rows: tuple
     tols: tuple
     grid_cells: int
     provenance: str
+    error_digits: int = FLOAT64_DIGITS
 
     def header(self):
         return ["rule", "method", "metric", "cells", "worst error", "at n", "at p"] + [
@@ -325,7 +358,7 @@ class RuleAudit:
                     f"{row.cells:,}",
                     _fmt_error(row.worst_error),
                     "—" if row.worst_n is None else f"{row.worst_n:,}",
-                    "—" if row.worst_p is None else f"{row.worst_p:.4g}",
+                    "—" if row.worst_p is None else format_p(row.worst_p),
                 ]
                 + [_fmt_share(s) for s in row.shares]
             )
@@ -338,6 +371,7 @@ class RuleAudit:
             "≤ tol: the share of the rule's grid cells whose error is within tol "
             f"(of {self.grid_cells:,} grid cells in all; shares count cells, so they follow the "
             "grid's density).",
+            "—: the rule admits no cell of the grid.",
         ]
 
     def to_markdown(self):
@@ -349,12 +383,17 @@ class RuleAudit:
         return "\n".join(lines) + "\n"
 
     def to_json(self):
-        """JSON: the tolerances, one object per row, and provenance."""
+        """JSON: the tolerances, one object per row (errors to ``error_digits`` significant
+        digits; null where the rule admits no cell), and provenance."""
+        rows = [row.as_dict(self.tols) for row in self.rows]
+        for row in rows:
+            row["worst_error"] = rounded(row["worst_error"], self.error_digits)
         return _json_text(
             {
                 "tols": list(self.tols),
                 "grid_cells": self.grid_cells,
-                "rows": [row.as_dict(self.tols) for row in self.rows],
+                "error_digits": self.error_digits,
+                "rows": rows,
                 "atlas": self.provenance,
             }
         )
@@ -427,7 +466,9 @@ def rule_audit(atlas, rules=None, *, methods=None, metrics=METRICS, tols=AUDIT_T
                 if key not in errors:
                     errors[key] = figures.errors_on_grid(ds, method, metric)
                 rows.append(_audit_row(rule, method, metric, mask, cells, errors[key], n, p, tols))
-    return RuleAudit(tuple(rows), tols, int(n.size * p.size), provenance_line(ds))
+    precision = ds.attrs.get("error_precision", ds["interval_error"].dtype)
+    return RuleAudit(tuple(rows), tols, int(n.size * p.size), provenance_line(ds),
+                     error_digits(precision))  # fmt: skip
 
 
 def _audit_row(rule, method, metric, mask, cells, values, n, p, tols):

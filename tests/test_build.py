@@ -356,13 +356,13 @@ def test_cli_float32_and_workers(tmp_path, capsys, serial):
 @pytest.mark.parametrize(
     ("args", "message"),
     [
-        (["--n", "0"], "`n` values must be from 1 to 9007199254740992; got item '0' in '0'."),
-        (["--p", "1"], "`p` values must be in the open interval (0, 1); got item '1' in '1'."),
-        (["--methods", "normal,bogus"], "`method` must be one of 'normal_cc', 'edgeworth_cc', "
+        (["--n", "0"], "`--n` values must be from 1 to 9007199254740992; got item '0' in '0'."),
+        (["--p", "1"], "`--p` values must be in the open interval (0, 1); got item '1' in '1'."),
+        (["--methods", "normal,bogus"], "`--methods` must be one of 'normal_cc', 'edgeworth_cc', "
          "'edgeworth2_cc', 'normal', 'poisson', 'camp_paulson', 'peizer_pratt'; got 'bogus'."),
-        (["--workers", "0"], "`workers` must be a positive integer; got 0."),
-        (["--workers", "two"], "`workers` must be a positive integer; got 'two'."),
-        (["--dask", "bogus"], "`spec` must be 'local:K' (K local worker processes) or "
+        (["--workers", "0"], "`--workers` must be a positive integer; got 0."),
+        (["--workers", "two"], "`--workers` must be a positive integer; got 'two'."),
+        (["--dask", "bogus"], "`--dask` must be 'local:K' (K local worker processes) or "
          "'tcp://HOST:PORT' (a running scheduler); got 'bogus'."),
     ],
 )  # fmt: skip
@@ -395,13 +395,13 @@ def test_cli_inspect_refuses_bad_files(tmp_path, capsys):
     assert main(["inspect", str(text)]) == 2
     err = capsys.readouterr().err
     assert err.startswith(
-        f"approx-atlas: error: `path` is not a readable atlas file: {str(text)!r}"
+        f"approx-atlas: error: `FILE` is not a readable atlas file: {str(text)!r}"
     )
     assert err.count("\n") == 1
 
     assert main(["inspect", str(tmp_path / "missing.nc")]) == 2
     assert capsys.readouterr().err == (
-        f"approx-atlas: error: `path` names no atlas file: {str(tmp_path / 'missing.nc')!r}.\n"
+        f"approx-atlas: error: `FILE` names no atlas file: {str(tmp_path / 'missing.nc')!r}.\n"
     )
 
     ds = atlas.build_atlas("1:3", "0.5", "normal", progress=False)
@@ -411,7 +411,7 @@ def test_cli_inspect_refuses_bad_files(tmp_path, capsys):
     captured = capsys.readouterr()
     assert "checksum: ok" not in captured.out
     assert captured.err.startswith(
-        f"approx-atlas: error: `path` {str(changed)!r} is corrupt: its checksum does not match"
+        f"approx-atlas: error: `FILE` {str(changed)!r} is corrupt: its checksum does not match"
     )
     assert captured.err.count("\n") == 1
 

@@ -293,14 +293,14 @@ def test_cli_chart(chart_atlas, tmp_path, capsys):
 @pytest.mark.parametrize(
     ("args", "message"),
     [
-        (["-o", "x.gif"], "`path` must end in one of '.png', '.svg', '.pdf'; got 'x.gif'."),
+        (["-o", "x.gif"], "`-o` must end in one of '.png', '.svg', '.pdf'; got 'x.gif'."),
         (["--kind", "pie", "-o", "x.png"],
-         "`kind` must be one of 'map', 'compare', 'gain', 'best'; got 'pie'."),
+         "`--kind` must be one of 'map', 'compare', 'gain', 'best'; got 'pie'."),
         (["--method", "bogus", "-o", "x.png"],
-         "`method` must be one of 'normal_cc', 'edgeworth_cc', 'poisson' (the atlas's methods); "
+         "`--method` must be one of 'normal_cc', 'edgeworth_cc', 'poisson' (the atlas's methods); "
          "got 'bogus'."),
         (["--p-scale", "log", "-o", "x.svg"],
-         "`p_scale` must be one of 'logit', 'linear'; got 'log'."),
+         "`--p-scale` must be one of 'logit', 'linear'; got 'log'."),
     ],
 )  # fmt: skip
 def test_cli_chart_errors(chart_atlas, tmp_path, capsys, monkeypatch, args, message):

@@ -51,7 +51,7 @@ def test_grid_bad_spec_is_one_line(capsys):
     captured = capsys.readouterr()
     assert captured.out == ""
     assert captured.err == (
-        "approx-atlas: error: `p` values must be in the open interval (0, 1); "
+        "approx-atlas: error: `--p` values must be in the open interval (0, 1); "
         "got item 'lin:0.5:1.5:3' in 'lin:0.5:1.5:3'.\n"
     )
 

@@ -32,6 +32,7 @@ QUERY_KEYS = {
     "worst_interval": list,
     "explain": str,
     "atlas": str,
+    "error_digits": int,
 }
 
 
@@ -95,6 +96,7 @@ def test_query_json_schema_and_values(capsys, path, at):
     assert (record["n"], record["p"], record["tol"]) == (50, 0.1, 0.01)
     assert (record["method"], record["metric"]) == ("normal_cc", "cdf")
     assert record["explain"] == v.explain() and record["atlas"] == path
+    assert record["error_digits"] == 17  # a float64 atlas: every digit, as stored
 
 
 def test_query_off_grid_is_computed(capsys, path):
@@ -118,11 +120,22 @@ def test_query_exit_statuses(capsys, path, at):
 
 
 def test_query_float32_atlas(capsys, small_atlas, at):
-    record = run_json(capsys, "query", "--n", "50", "--p", "0.1", "--tol", "0.01",
-                      "--atlas", str(small_atlas["float32"]))  # fmt: skip
-    # float32 rounding: relative error at most 2**-24 (IEEE 754 binary32)
-    assert_allclose(record["error"], at.error(50, 0.1), rtol=2.0**-24)
-    assert type(record["error"]) is float
+    path32 = str(small_atlas["float32"])
+    argv = ["query", "--n", "50", "--p", "0.1", "--tol", "0.01", "--atlas", path32]
+    status, raw, _ = run(capsys, *argv, "--json")
+    record = json.loads(raw)
+    # float32 rounding, then 7 significant digits: relative error below 2**-24 + 5e-7
+    assert_allclose(record["error"], at.error(50, 0.1), rtol=2.0**-24 + 5e-7)
+    assert type(record["error"]) is float and record["error_digits"] == 7
+    # The file holds 7 significant digits, and the JSON says no more (no 17-digit tail).
+    stored = open_atlas(path32).error(50, 0.1)
+    assert record["error"] == float(f"{stored:.7g}")
+    assert re.search(r'"error": 0\.0\d{7}, ', raw)  # 0.0xxxxxxx: 7 significant digits
+    assert len(repr(record["margin"]).lstrip("-0.")) <= 7
+    # Computed off the grid: float64, every digit.
+    off = run_json(capsys, "query", "--n", "51", "--p", "0.1", "--tol", "0.01", "--atlas", path32)
+    assert off["source"] == "computed" and off["error_digits"] == 17
+    assert off["error"] == worst_error(51, 0.1)
 
 
 # --- min-n -------------------------------------------------------------------------------------
@@ -143,14 +156,13 @@ def test_min_n_human(capsys, path):
     status, out, err = run(capsys, "min-n", "--p", "0.5", "--tol", "0.01", "--atlas", path)
     assert status == 0 and err == ""
     assert out.splitlines() == [
-        "normal_cc interval error <= 0.01 at p = 0.5: from n = 6 on (n = 6 and every larger "
-        "grid n)",
+        "normal_cc interval error <= 0.01 at p = 0.5: for n = 6 and every larger grid n",
         "  exact: every integer n from 6 to 40 is within it; n = 5 is not",
         "  above n = 40 only the grid values of n are checked",
         f"  source: atlas (a stored cell of {path})",
     ]
     _, out, _ = run(capsys, "min-n", "--p", "0.5", "--tol", "1e-12", "--atlas", path)
-    assert "no n of the atlas grid qualifies" in out
+    assert "at no n of the atlas grid" in out
 
 
 def test_min_n_range(capsys, path, at):
@@ -159,6 +171,11 @@ def test_min_n_range(capsys, path, at):
     assert record["p_range"] == [0.05, 0.5] and record["p_checked"] == 4 and record["p"] is None
     status, out, _ = run(capsys, "min-n", "--p-range", "0.05:0.5", "--tol", "0.02", "--atlas", path)
     assert status == 0 and "every grid p in [0.05, 0.5] (4 values)" in out
+    # One grid p: said as one p, not as "1 values"; fractions and percentages are read.
+    _, out, _ = run(capsys, "min-n", "--p-range", "50%:1/2", "--tol", "0.02", "--atlas", path)
+    assert out.startswith("normal_cc interval error <= 0.02 at p = 0.5: for n = ")
+    _, out, _ = run(capsys, "min-n", "--p-range", "0.04:0.06", "--tol", "0.02", "--atlas", path)
+    assert "every grid p in [0.04, 0.06] (1 value)" in out
 
 
 # --- compare -----------------------------------------------------------------------------------
@@ -166,7 +183,8 @@ def test_min_n_range(capsys, path, at):
 
 def test_compare(capsys, path, at):
     record = run_json(capsys, "compare", "--n", "50", "--p", "0.1", "--atlas", path)
-    assert set(record) == {"n", "p", "metric", "source", "ranking"}
+    assert set(record) == {"n", "p", "metric", "source", "error_digits", "ranking"}
+    assert record["error_digits"] == 17
     ranking = [(r["method"], r["error"]) for r in record["ranking"]]
     assert ranking == at.best_method(50, 0.1)
     assert [e for _, e in ranking] == sorted(e for _, e in ranking)
@@ -198,7 +216,7 @@ def test_demo_on_a_given_atlas(capsys, path, at):
     assert f"  normal_cc: {at.is_safe(80, 0.025, 0.01).explain()}" in lines
     best, error = at.best_method(80, 0.025)[0]
     assert any(line.startswith(f"  best method here: {best}, error {error:.3g}") for line in lines)
-    assert any(f"from n = {at.min_n(0.025, 0.01)} on" in line for line in lines)
+    assert any(f"for n = {at.min_n(0.025, 0.01)} and every larger grid n" in line for line in lines)
     assert lines[-1] == f"  caution: {cube.CAUTION}"
 
 
@@ -213,7 +231,10 @@ def test_demo_without_the_embedded_atlas(capsys, monkeypatch, tmp_path):
     monkeypatch.setattr(store, "default_path", lambda: missing)
     status, out, err = run(capsys, "demo")
     assert (status, out) == (2, "")
-    assert err == f"approx-atlas: error: `path` names no atlas file: {str(missing)!r}.\n"
+    assert err == (
+        f"approx-atlas: error: the embedded atlas is missing: {str(missing)!r}; reinstall "
+        "approx-atlas, or pass --atlas FILE.\n"
+    )
 
 
 # --- a user's mistakes: one line on stderr, exit status 2 ---------------------------------------
@@ -225,45 +246,58 @@ _METHODS = ", ".join(repr(m) for m in METHODS)
     ("argv", "message"),
     [
         (["query", "--n", "50", "--p", "2", "--tol", "0.01"],
-         "`p` must be in the open interval (0, 1); got 2.0."),
+         "`--p` must be in the open interval (0, 1); got 2.0."),
         (["query", "--n", "-3", "--p", "0.1", "--tol", "0.01"],
-         "`n` must be an integer >= 1; got -3."),
+         "`--n` must be an integer >= 1; got -3."),
         (["query", "--n", "2.5", "--p", "0.1", "--tol", "0.01"],
-         "`n` must be an integer >= 1; got 2.5."),
+         "`--n` must be an integer >= 1; got 2.5."),
         (["query", "--n", "abc", "--p", "0.1", "--tol", "0.01"],
-         "`n` must be an integer >= 1; got 'abc'."),
+         "`--n` must be an integer >= 1; got 'abc'."),
         (["query", "--n", "50", "--p", "x", "--tol", "0.01"],
-         "`p` must be in the open interval (0, 1); got 'x'."),
+         "`--p` is not a number: got 'x' (write 0.05, 1/20 or 5%)."),
+        (["query", "--n", "50", "--p", "1/0", "--tol", "0.01"],
+         "`--p` is not a number: got '1/0' (write 0.05, 1/20 or 5%)."),
         (["query", "--n", "50", "--p", "nan", "--tol", "0.01"],
-         "`p` must be in the open interval (0, 1); got nan."),
+         "`--p` must be in the open interval (0, 1); got nan."),
+        (["query", "--n", "50", "--p", "150%", "--tol", "0.01"],
+         "`--p` must be in the open interval (0, 1); got 1.5."),
+        (["query", "--n", "50", "--p", "4/3", "--tol", "0.01"],
+         "`--p` must be in the open interval (0, 1); got 1.3333333333333333."),
         (["query", "--n", "50", "--p", "0.1", "--tol", "0"],
-         "`tol` must be a positive finite number; got 0."),
+         "`--tol` must be a positive finite number; got 0."),
         (["query", "--n", "50", "--p", "0.1", "--tol", "-0.001"],
-         "`tol` must be a positive finite number; got -0.001."),
+         "`--tol` must be a positive finite number; got -0.001."),
         (["query", "--n", "50", "--p", "0.1", "--tol", "inf"],
-         "`tol` must be a positive finite number; got inf."),
+         "`--tol` must be a positive finite number; got inf."),
         (["query", "--n", "50", "--p", "0.1", "--tol", "tiny"],
-         "`tol` must be a positive finite number; got 'tiny'."),
+         "`--tol` must be a positive finite number; got 'tiny'."),
         (["query", "--n", "50", "--p", "0.1", "--tol", "0.01", "--method", "bogus"],
-         f"`method` must be one of {_METHODS}; got 'bogus'."),
+         f"`--method` must be one of {_METHODS}; got 'bogus'."),
         (["query", "--n", "50", "--p", "0.1", "--tol", "0.01", "--metric", "max"],
-         "`metric` must be one of 'interval', 'cdf'; got 'max'."),
+         "`--metric` must be one of 'interval', 'cdf'; got 'max'."),
         (["min-n", "--p", "1.5", "--tol", "0.01"],
-         "`p` must be in the open interval (0, 1); got 1.5."),
-        (["min-n", "--p", "0.5", "--tol", "0"], "`tol` must be a positive finite number; got 0."),
+         "`--p` must be in the open interval (0, 1); got 1.5."),
+        (["min-n", "--p", "half", "--tol", "0.01"],
+         "`--p` is not a number: got 'half' (write 0.05, 1/20 or 5%)."),
+        (["min-n", "--p", "0.5", "--tol", "0"],
+         "`--tol` must be a positive finite number; got 0."),
         (["min-n", "--p", "0.5", "--tol", "0.01", "--method", "bogus"],
-         f"`method` must be one of {_METHODS}; got 'bogus'."),
+         f"`--method` must be one of {_METHODS}; got 'bogus'."),
         (["min-n", "--p-range", "0.5", "--tol", "0.01"],
          "`--p-range` must be LO:HI, such as 0.05:0.95; got '0.5'."),
         (["min-n", "--p-range", "0.6:0.4", "--tol", "0.01"],
-         "`p_lo` must be <= `p_hi`; got p_lo=0.6 > p_hi=0.4."),
+         "`--p-range` LO:HI must have LO <= HI; got '0.6:0.4'."),
+        (["min-n", "--p-range", "0.1:x", "--tol", "0.01"],
+         "`--p-range` is not a number: got 'x' (write 0.05, 1/20 or 5%)."),
         (["min-n", "--p-range", "0.11:0.12", "--tol", "0.01"],
-         "[`p_lo`, `p_hi`] must hold a p of the atlas grid; got [0.11, 0.12]"),
+         "`--p-range` must hold a p of the atlas grid; got [0.11, 0.12]"),
         (["min-n", "--p-range", "0:0.5", "--tol", "0.01"],
-         "`p` must be in the open interval (0, 1); got 0.0."),
-        (["compare", "--n", "0", "--p", "0.1"], "`n` must be an integer >= 1; got 0."),
+         "`--p-range` must be in the open interval (0, 1); got 0.0."),
+        (["compare", "--n", "0", "--p", "0.1"], "`--n` must be an integer >= 1; got 0."),
+        (["compare", "--n", "50", "--p", "5 %%"],
+         "`--p` is not a number: got '5 %%' (write 0.05, 1/20 or 5%)."),
         (["compare", "--n", "50", "--p", "0.1", "--metric", "x"],
-         "`metric` must be one of 'interval', 'cdf'; got 'x'."),
+         "`--metric` must be one of 'interval', 'cdf'; got 'x'."),
     ],
 )  # fmt: skip
 def test_user_mistakes(capsys, path, argv, message):
@@ -278,7 +312,7 @@ def test_missing_atlas_file(capsys, tmp_path):
     status, out, err = run(capsys, "query", "--n", "50", "--p", "0.1", "--tol", "0.01",
                            "--atlas", str(missing))  # fmt: skip
     assert (status, out) == (2, "")
-    assert err == f"approx-atlas: error: `path` names no atlas file: {str(missing)!r}.\n"
+    assert err == f"approx-atlas: error: `--atlas` names no atlas file: {str(missing)!r}.\n"
 
 
 def test_garbage_atlas_file(capsys, tmp_path):
@@ -292,7 +326,7 @@ def test_garbage_atlas_file(capsys, tmp_path):
     ):
         status, out, err = run(capsys, *argv, "--atlas", str(garbage))
         assert (status, out) == (2, "")
-        assert err.startswith("approx-atlas: error: `path` is not a readable atlas file: ")
+        assert err.startswith("approx-atlas: error: `--atlas` is not a readable atlas file: ")
         assert err.count("\n") == 1 and "Traceback" not in err
 
 

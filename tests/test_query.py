@@ -375,7 +375,7 @@ def test_min_n_over_refuses_bad_intervals(at):
         ValueError,
         match=re.escape(
             "[`p_lo`, `p_hi`] must hold a p of the atlas grid; got [0.11, 0.12], and the grid's "
-            "7 p run from 0.01 to 0.9."
+            "7 values of p run from 0.01 to 0.9."
         ),
     ):
         at.min_n_over(0.11, 0.12, 0.01)

@@ -239,7 +239,7 @@ def test_wiki_in_a_real_browser(wiki, tmp_path):
 def test_cli_sheet_refuses_another_extension(chart_atlas, capsys, tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)
     status = main(["sheet", "-o", "sheet.txt", "--atlas", str(chart_atlas.path)])
-    message = "`path` must end in '.pdf'; got 'sheet.txt'."
+    message = "`-o` must end in '.pdf'; got 'sheet.txt'."
     assert (status, capsys.readouterr().err) == (2, f"approx-atlas: error: {message}\n")
     assert os.listdir(tmp_path) == []
 

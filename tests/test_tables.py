@@ -60,14 +60,35 @@ def test_table_at_one_half_from_the_engine(chart_atlas):
 
 def test_table_formats(chart_atlas):
     table = tables.threshold_table(chart_atlas, TOLS + (1e-4,), PS, method="poisson")
+    tols = TOLS + (1e-4,)
+    # CSV: one row per (p, tol), and every cell says what it means: min_n is an integer or
+    # "> 100000" (not reached on a grid ending at 10^5), basis says on what it rests.
     rows = list(csv.reader(io.StringIO(table.to_csv())))
-    assert rows[0] == ["p", "tol=0.01", "tol=0.005", "tol=0.001", "tol=0.0001"]
-    for line, p, values in zip(rows[1:], PS, table.min_n, strict=True):
-        assert float(line[0]) == p
-        assert line[1:] == ["" if v is None else str(v) for v in values]
-    assert any(v is None for row in table.min_n for v in row)  # Poisson never reaches 1e-4 here
+    assert rows[0] == ["p", "tol", "min_n", "basis"]
+    expected = []
+    for p, values in zip(PS, table.min_n, strict=True):
+        for tol, v in zip(tols, values, strict=True):
+            if v is None:
+                expected.append([repr(p), repr(tol), "> 100000", "not_reached"])
+            else:
+                expected.append([repr(p), repr(tol), str(v), "exact" if v <= 30 else "grid"])
+    assert rows[1:] == expected
+    assert all(cell != "" for row in rows for cell in row)
+    # All three kinds: 6 at p = 1/2 (exact), 9,569 at p = 0.01 (grid; README table) and not
+    # reached for 1e-4 at p = 0.01 (the README's default atlas needs n > 10^5 for 1e-3).
+    mixed = tables.threshold_table(chart_atlas, [0.01, 1e-4], [0.01, 0.5])
+    bases = [row[3] for row in csv.reader(io.StringIO(mixed.to_csv()))][1:]
+    assert set(bases) == {"exact", "grid", "not_reached"}
     record = json.loads(table.to_json())
     assert record["min_n"] == [list(r) for r in table.min_n]
+    assert record["basis"] == [[table.basis(v) for v in row] for row in table.min_n]
+    assert set(record["basis_meanings"]) == {"exact", "grid", "not_reached"}
+    assert "only the grid's n are checked" in record["basis_meanings"]["grid"]
+    assert "100000" in record["basis_meanings"]["not_reached"]
+    for row, marks in zip(record["min_n"], record["basis"], strict=True):
+        for v, mark in zip(row, marks, strict=True):
+            assert (v is None) == (mark == "not_reached")
+    assert any(v is None for row in table.min_n for v in row)  # Poisson never reaches 1e-4 here
     assert record["method"] == "poisson" and record["metric"] == "interval"
     assert record["tols"] == list(TOLS) + [1e-4] and record["n_max"] == 100000
     markdown = table.to_markdown()
@@ -75,12 +96,24 @@ def test_table_formats(chart_atlas):
     assert "| p | tol 0.01 | tol 0.005 | tol 0.001 | tol 1e-4 |" in markdown
     assert "> 10⁵" in markdown  # None: not reached on a grid that ends at 10^5
     assert "†: beyond n = 30 only the grid's n are checked" in markdown
+    assert "An entry without a mark is exact: every integer n from it to 30" in markdown
+    assert "from which on" not in markdown
     for value in (v for row in table.min_n for v in row if v is not None):
         assert f"{value:,}" + (" †" if value > 30 else "") in markdown
     assert table.render("md") == markdown
     with pytest.raises(ValueError, match=r"^`format` must be one of 'csv', 'md', 'json'; got "
                                          r"'xml'\.$"):  # fmt: skip
         table.render("xml")
+
+
+def test_table_writes_p_as_typed(chart_atlas):
+    # A p near 1 keeps its digits (0.9999999 is not rounded to 1) in every format.
+    table = tables.threshold_table(chart_atlas, [0.01], [1 / 3, 0.9999999])
+    assert "\n| 0.9999999 | " in table.to_markdown() and "\n| 1 | " not in table.to_markdown()
+    assert "0.3333333333333333" in table.to_markdown()
+    assert [row[0] for row in csv.reader(io.StringIO(table.to_csv()))][1:] == [
+        "0.3333333333333333", "0.9999999"]  # fmt: skip
+    assert json.loads(table.to_json())["ps"] == [1 / 3, 0.9999999]
 
 
 def test_table_refuses(chart_atlas):
@@ -210,12 +243,15 @@ def test_cli_table(chart_atlas, capsys, tmp_path):
         (["table", "--format", "xml"], "`--format` must be one of 'csv', 'md', 'json'; got 'xml'."),
         (["table", "--tol", "0.01,x"],
          "`--tol` must be comma-separated numbers such as 0.01,0.005; got '0.01,x'."),
-        (["table", "--p", "0.5,1.5"], "`ps` must hold numbers in (0, 1); got 1.5."),
+        (["table", "--p", "0.5,1.5"], "`--p` must hold numbers in (0, 1); got 1.5."),
+        (["table", "--p", "0.5,3/2"], "`--p` must hold numbers in (0, 1); got 1.5."),
+        (["table", "--p", "0.5,half"],
+         "`--p` is not a number: got 'half' (write 0.05, 1/20 or 5%)."),
         (["rules", "--rule", "abs(n) > 1"], "`--rule` may not contain a function call; allowed: "
          "numbers, n, p, q, + - * / **, unary -, < <= > >= == !=, and, or, not, parentheses. "
          "Got 'abs(n) > 1'."),
         (["rules", "--format", "csv"], "`--format` must be one of 'md', 'json'; got 'csv'."),
-        (["rules", "--method", "normal"], "`methods` must be one of 'normal_cc', 'edgeworth_cc', "
+        (["rules", "--method", "normal"], "`--method` must be one of 'normal_cc', 'edgeworth_cc', "
          "'poisson' (the atlas's methods); got 'normal'."),
     ],
 )  # fmt: skip
