@@ -146,6 +146,13 @@ def check_directory_target(path, *, overwrite=False, name="directory"):
         path = path.resolve()
     if path.exists() and not path.is_dir():
         raise NotADirectoryError(f"`{name}` must name a directory; got a file: {str(path)!r}.")
+    # Replacing a directory renames it away: never the one a shell (or this process) stands in.
+    here = Path.cwd().resolve()
+    if path.is_dir() and (path.resolve() == here or path.resolve() in here.parents):
+        raise IsADirectoryError(
+            f"`{name}` {str(path)!r} is the current directory or holds it; it is never "
+            "replaced: name a new or empty directory beside it."
+        )
     if path.is_dir():
         entries = sorted(path.iterdir())
         foreign = [e.name for e in entries if e.is_dir() or e.suffix not in _PAGE_SUFFIXES]

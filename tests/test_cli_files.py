@@ -445,3 +445,19 @@ def test_a_missing_or_damaged_embedded_atlas_is_named_so(bad_files, tmp_path, mo
     err = capsys.readouterr().err
     assert err.startswith(f"approx-atlas: error: the embedded atlas {str(bad_files['flipped'])!r}")
     assert "`" not in err
+
+
+def test_wiki_never_replaces_the_current_directory(chart_atlas, tmp_path, monkeypatch, capsys):
+    # Replacing a directory renames it away; a shell standing in it would be left in a deleted
+    # directory, so "." (and any directory holding the current one) is refused.
+    (tmp_path / "index.html").write_text("<p>an earlier page</p>")
+    for target in (".", str(tmp_path)):
+        argv = ["wiki", "--atlas", str(chart_atlas.path), "-o", target, "--force"]
+        status, out, err = _run_in(tmp_path, monkeypatch, capsys, argv)
+        assert (status, out) == (2, "")
+        shown = str(tmp_path) if target == "." else target
+        assert err == (
+            f"approx-atlas: error: `-o` {shown!r} is the current directory or holds it; it is "
+            "never replaced: name a new or empty directory beside it.\n"
+        )
+    assert os.listdir(tmp_path) == ["index.html"]
