@@ -141,11 +141,11 @@ def main(argv=None):
     if size is None:
         return 1
     total = time.perf_counter() - started
-    cells = ds.sizes["method"] * ds.sizes["n"] * ds.sizes["p"]
+    cells = ds.sizes["approximation"] * ds.sizes["n"] * ds.sizes["p"]
     points = ds.sizes["n"] * ds.sizes["p"]
     own, child = _peak_mb()
     checksum = ds.attrs["checksum"]
-    print(f"cells: {cells} ({ds.sizes['method']} methods x {points} (n, p) points)")
+    print(f"cells: {cells} ({ds.sizes['approximation']} methods x {points} (n, p) points)")
     print(f"compute time: {computed:.1f} s; {cells / computed:.0f} cells/s, "
           f"{points / computed:.0f} (n, p) points/s")  # fmt: skip
     print(f"total time (compute, compact, write): {total:.1f} s")

@@ -32,7 +32,7 @@ SAMPLE_CELLS = [
 
 
 def _cell(ds, name, n, p, method):
-    return ds[name].sel({"method": method, "n": n, "p": p}).values.item()
+    return ds[name].sel({"approximation": method, "n": n, "p": p}).values.item()
 
 
 @pytest.fixture

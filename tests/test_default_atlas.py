@@ -70,7 +70,7 @@ def test_round_p_exactly_on_the_grid(default):
     for x in ROUND_P:
         assert np.count_nonzero(p == x) == 1, x
     # ... so that label lookups find them without a tolerance.
-    assert default["interval_error"].sel({"method": "normal_cc", "n": 100, "p": 0.05}).size == 1
+    assert default["interval_error"].sel({"approximation": "normal_cc", "n": 100, "p": 0.05}).size == 1
 
 
 def test_every_integer_n_to_2000(default):
@@ -122,7 +122,7 @@ def test_sampled_cells_match_the_engine(default):
 def test_known_cell(default):
     # W(10, 1/2) = 0.005372 and W(20, 1/2) = 0.002782 for normal_cc (REFERENCES.md fact 1,
     # computed values, 4 significant digits).
-    cells = default["interval_error"].sel({"method": "normal_cc", "p": 0.5})
+    cells = default["interval_error"].sel({"approximation": "normal_cc", "p": 0.5})
     assert_allclose(cells.sel(n=10), 0.005372, atol=5e-7)
     assert_allclose(cells.sel(n=20), 0.002782, atol=5e-7)
 
@@ -133,6 +133,6 @@ def test_symmetry_in_p(default):
     # computed at p and at 1 - p separately.
     p = default["p"].values
     assert_allclose(p + p[::-1], 1.0, rtol=0, atol=1e-15)
-    rows = default["interval_error"].sel({"method": "normal_cc"}).isel(n=slice(0, 2000, 97))
+    rows = default["interval_error"].sel({"approximation": "normal_cc"}).isel(n=slice(0, 2000, 97))
     values = rows.values.astype(np.float64)
     assert_allclose(values, values[:, ::-1], rtol=1e-5, atol=1e-12)
