@@ -498,10 +498,11 @@ def describe_dataset(ds, path=None, *, width=100):
     lines.append("variables:")
     for name in store.DATA_VARIABLES:
         var = ds[name]
-        lines.append(
-            f"  {name}({', '.join(var.dims)}) {var.dtype}, units {var.attrs.get('units', '?')!r}: "
+        text = (
+            f"{name}({', '.join(var.dims)}) {var.dtype}, units {var.attrs.get('units', '?')!r}: "
             f"{var.attrs.get('long_name', '')}"
         )
+        lines.extend(textwrap.wrap(text, width, initial_indent="  ", subsequent_indent=" " * 4))
     lines.append("global attributes (the value, then = what it means):")
     notes = attribute_notes(ds)
     for key, value in ds.attrs.items():

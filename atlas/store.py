@@ -287,8 +287,10 @@ def checksum(names, read):
     >>> import numpy as np
     >>> arrays = {"n": np.array([10]), "p": np.array([0.5])}
     >>> arrays.update({v: np.zeros((1, 1, 1)) for v in DATA_VARIABLES})
-    >>> checksum(["normal_cc"], arrays.__getitem__)[:15]
-    'sha256:6bbf7f1b'
+    >>> import hashlib, struct
+    >>> raw = b"normal_cc\\n" + struct.pack("<qd", 10, 0.5) + bytes(4 * 8)  # then four 0.0
+    >>> checksum(["normal_cc"], arrays.__getitem__) == "sha256:" + hashlib.sha256(raw).hexdigest()
+    True
     """
     digest = hashlib.sha256()
     for name in names:
