@@ -654,8 +654,11 @@ class Atlas:
             ev = evaluate(int(n_value), [p_value], methods=methods)
             errors = [float(x) for x in (ev.interval if metric == "interval" else ev.cdf)[:, 0]]
         rank = {m: i for i, m in enumerate(METHODS)}
-        order = sorted(range(len(methods)),
-                       key=lambda k: (errors[k], rank.get(methods[k], len(rank)), methods[k]))  # fmt: skip
+
+        def key(k):  # the error, then the order of atlas.METHODS
+            return errors[k], rank.get(methods[k], len(rank)), methods[k]
+
+        order = sorted(range(len(methods)), key=key)
         return [(methods[k], errors[k]) for k in order]
 
     def safe_region(self, tol, *, method="normal_cc", metric="interval"):

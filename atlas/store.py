@@ -186,7 +186,7 @@ def check_axes(axes, where):
     """
     for name, values in axes.items():
         if name == APPROXIMATION:
-            ordered = all(a < b for a, b in zip(values, values[1:]))
+            ordered = all(a < b for a, b in zip(values[:-1], values[1:], strict=True))
             rule = "in strictly increasing (alphabetical) order, without repeats"
         else:
             values = np.asarray(values)
@@ -312,7 +312,10 @@ def unreadable(err, path=None):
     return ValueError(f"{_where(path)} is corrupt: its data cannot be read ({err}).")
 
 
-def verify_digest(stored, actual, path=None, variables=" ".join(CHECKSUM_VARIABLES)):
+_CHECKSUM_LIST = " ".join(CHECKSUM_VARIABLES)  # the checksum_variables attribute of this schema
+
+
+def verify_digest(stored, actual, path=None, variables=_CHECKSUM_LIST):
     """Return ``actual`` if it equals the ``stored`` checksum, else raise ValueError.
 
     ``variables`` is the file's ``checksum_variables`` attribute: the checksum is verified only
@@ -327,7 +330,7 @@ def verify_digest(stored, actual, path=None, variables=" ".join(CHECKSUM_VARIABL
     where = _where(path)
     if stored is None:
         raise ValueError(f"{where} has no checksum attribute to verify.")
-    expected = " ".join(CHECKSUM_VARIABLES)
+    expected = _CHECKSUM_LIST
     if variables != expected:
         raise ValueError(
             f"{where} is corrupt: its checksum_variables attribute must be {expected!r}; "

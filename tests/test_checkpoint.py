@@ -178,7 +178,6 @@ def test_other_methods_are_refused(tmp_path):
         _build(tmp_path, methods=("normal_cc",))
 
 
-
 def test_the_same_methods_in_another_order_resume(tmp_path, reference):
     # The cube stores its approximations in alphabetical order, so the order they are asked for
     # in does not make another build: every chunk is loaded, none recomputed (files untouched).

@@ -397,7 +397,7 @@ def test_describe_dataset(small_atlas):
     for key in ds.attrs:
         if key != "attribute_notes":
             assert f"\n  {key}: " in text, key
-    assert f"\n  attribute_notes: " not in text
+    assert "\n  attribute_notes: " not in text
     at = lines.index("  error_precision: float32 (7 significant digits)")
     assert lines[at + 1] == "    = " + notes["error_precision"][:94].rsplit(" ", 1)[0]
     at = lines.index("  tail_tolerance: 1e-17")
@@ -462,14 +462,17 @@ def test_nearest_lookups(small_atlas):
         other = ds.interval_error.sel(n=55, p=0.11, method="nearest").sel(approximation="normal_cc")
         assert other.item() == want
         # In one call, pandas tries "nearest" on the names too and fails: the README says so.
-        with pytest.raises(TypeError, match=r"unsupported operand type\(s\) for -: 'str' and 'str'"):
+        with pytest.raises(
+            TypeError, match=r"unsupported operand type\(s\) for -: 'str' and 'str'"
+        ):
             ds.interval_error.sel(approximation="normal_cc", n=55, p=0.11, method="nearest")
 
 
 def test_unordered_axes_are_refused(tmp_path, tiny):
     backwards = tiny.isel(n=slice(None, None, -1))
-    with pytest.raises(ValueError, match=r"^`ds` is not an atlas of this schema: its n coordinate "
-                                         r"must be non-empty and strictly increasing\.$"):  # fmt: skip
+    message = (r"^`ds` is not an atlas of this schema: its n coordinate must be non-empty and "
+               r"strictly increasing\.$")  # fmt: skip
+    with pytest.raises(ValueError, match=message):
         cube.save_atlas(backwards, tmp_path / "backwards.nc")
     assert _leftovers(tmp_path) == []
     with pytest.raises(ValueError, match=r"its p coordinate must be non-empty and strictly"):

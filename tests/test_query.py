@@ -146,7 +146,9 @@ def test_on_grid(at):
     assert not at.on_grid(50, 0.1 + 0.2 - 0.2 + 1e-9)
     assert_array_equal(at.on_grid(p=[0.1, 0.2]), [True, False])
     assert_array_equal(at.on_grid(n=[40, 41, 50]), [True, False, True])
-    assert not Atlas(at.dataset.sel(approximation=["normal_cc"])).on_grid(50, 0.1, method="edgeworth_cc")
+    assert not Atlas(at.dataset.sel(approximation=["normal_cc"])).on_grid(
+        50, 0.1, method="edgeworth_cc"
+    )
 
 
 def test_select_p(at):

@@ -5,9 +5,9 @@ Dataset's own (a round trip), so they need no outside source.
 """
 
 import json
+import pathlib
 import re
 import shlex
-import pathlib
 import subprocess
 import sys
 
@@ -56,7 +56,8 @@ def test_reopening_after_a_second_handle_is_closed_does_not_crash(small_atlas):
         "path = sys.argv[1]\n"
         "held = netCDF4.Dataset(path)\n"
         "second = netCDF4.Dataset(path); second.variables['approximation'][:]; second.close()\n"
-        "again = netCDF4.Dataset(path); raw = [str(m) for m in again.variables['approximation'][:]]\n"
+        "again = netCDF4.Dataset(path)\n"
+        "raw = [str(m) for m in again.variables['approximation'][:]]\n"
         "ds = cube.load_dataset(path); ds['approximation'].values; ds.close()\n"
         "ds = cube.load_dataset(path, verify=True)\n"
         "print(json.dumps({'raw': raw, 'xarray': [str(m) for m in ds['approximation'].values],\n"
