@@ -491,7 +491,8 @@ def describe_dataset(ds, path=None, *, width=100):
     if path is not None:
         size = Path(path).stat().st_size
         lines.append(f"file: {path} ({size / 1e6:.2f} MB, {size} bytes)")
-    lines.append(f"grid: {describe_grid(ds['n'].values, ds['p'].values)}")
+    grid = f"grid: {describe_grid(ds['n'].values, ds['p'].values)}"
+    lines.extend(textwrap.wrap(grid, width, subsequent_indent=" " * 4))
     names = [str(m) for m in ds[store.APPROXIMATION].values]
     lines.append(
         f"approximations ({len(names)}; the names --method takes; dimension "

@@ -6,6 +6,10 @@ computes, so the comparisons are exact for float64 storage and to float32 roundi
 """
 
 import os
+import pathlib
+import re
+import subprocess
+import sys
 
 import netCDF4
 import numpy as np
@@ -531,3 +535,25 @@ def test_approximation_description_lists_only_the_stored(tmp_path, tiny):
                         f"poisson: {cube.METHOD_DESCRIPTIONS['poisson']}")  # fmt: skip
     for other in set(atlas.METHODS) - {"normal_cc", "poisson"}:
         assert f"{other}:" not in description, other
+
+
+# ---- the README's code, as typed -----------------------------------------------------------------
+
+
+def _readme_blocks():
+    """The fenced blocks of the README's section on the cube, as (language, text) pairs."""
+    text = (pathlib.Path(atlas.__file__).parent.parent / "README.md").read_text()
+    section = text.split("## The cube, from xarray and from other languages", 1)[1]
+    section = section.split("\n## ", 1)[0]
+    return re.findall(r"```(\w*)\n(.*?)```", section, flags=re.S)
+
+
+def test_readme_xarray_lines_run_as_typed(tmp_path):
+    # The README's block runs as printed, in a fresh interpreter, and prints what it shows.
+    blocks = _readme_blocks()
+    (language, code), (_, shown) = blocks[0], blocks[1]
+    assert language == "python" and 'sel(approximation="normal_cc", n=50, p=0.1)' in code
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          timeout=120, cwd=tmp_path)  # fmt: skip
+    assert done.returncode == 0, done.stderr[-2000:]
+    assert done.stdout == shown

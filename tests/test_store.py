@@ -265,3 +265,26 @@ def test_checksum_variables_must_be_the_schemas(tmp_path, small_atlas):
         cube.load_dataset(path, verify=True)
     with pytest.raises(ValueError, match=message):
         open_atlas(path, verify=True)
+
+
+def test_readme_checksum_reader(tmp_path, small_atlas):
+    # The README's reader (netCDF4, numpy and hashlib only) prints True for an intact file and
+    # False once one value has changed.
+    text = (ROOT / "README.md").read_text()
+    (code,) = [b for b in re.findall(r"```python\n(.*?)```", text, flags=re.S)
+               if "checksum_variables" in b]  # fmt: skip
+    script = tmp_path / "reader.py"
+    script.write_text(code)
+    path = tmp_path / "atlas.nc"
+    path.write_bytes(small_atlas["float32"].read_bytes())
+
+    def run():
+        argv = [sys.executable, "-I", str(script), str(path)]
+        done = subprocess.run(argv, capture_output=True, text=True, timeout=120, cwd=tmp_path)
+        assert done.returncode == 0, done.stderr[-2000:]
+        return done.stdout
+
+    assert run() == "True\n"
+    with netCDF4.Dataset(path, "a") as f:
+        f.variables["interval_lo"][0, 0, 0] += 1
+    assert run() == "False\n"
