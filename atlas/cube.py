@@ -118,8 +118,9 @@ ATTRIBUTE_NOTES = {
         "these attributes); a reader refuses a version it does not know."
     ),
     "tail_tolerance": (
-        "The largest |F(k) - G(k)| the exact search may leave unevaluated in the far tails of "
-        "X ~ Bin(n, p) in any cell, so every stored error is exact to within this amount."
+        "The bound, checked in every cell, on |F(k) - G(k)| at each k the exact search leaves "
+        "out (the far tails of X ~ Bin(n, p)): the omitted k change no stored error by more "
+        "than this."
     ),
     "error_precision": (
         "The type interval_error and cdf_error are stored in: float64, or float32 (7 "
@@ -221,19 +222,24 @@ def make_dataset(n, p, methods, arrays, *, n_spec, p_spec, history, tail_toleran
 def approximation_attrs(names):
     """The attributes of the approximation coordinate: its description lists ``names`` only.
 
+    The description is one line of what the coordinate is, then one line per approximation the
+    atlas holds, ``name: G(k)``, in the stored (alphabetical) order.
+
     Examples
     --------
-    >>> text = approximation_attrs(["normal_cc", "poisson"])["description"]
-    >>> text.split("; ")[1:3]
-    ['normal_cc: Phi(z), z = (k + 1/2 - n p) / sqrt(n p q)', 'poisson: Poisson(n p) CDF']
-    """
-    formulas = "; ".join(f"{m}: {METHOD_DESCRIPTIONS.get(m, 'not described')}" for m in names)
+    >>> print(approximation_attrs(["normal_cc", "poisson"])["description"])
+    the approximation G(k) to F(k) = P(X <= k), X ~ Bin(n, p); one line per name, in the stored (alphabetical) order:
+    normal_cc: Phi(z), z = (k + 1/2 - n p) / sqrt(n p q)
+    poisson: Poisson(n p) CDF; for p > 1/2 applied to the failures n - X
+    """  # noqa: E501 (a doctest's output line is as long as it is)
+    head = (
+        "the approximation G(k) to F(k) = P(X <= k), X ~ Bin(n, p); one line per name, in the "
+        "stored (alphabetical) order:"
+    )
+    lines = [f"{m}: {METHOD_DESCRIPTIONS.get(m, 'not described')}" for m in names]
     return {
         "long_name": "approximation to the binomial distribution function",
-        "description": (
-            "the approximation G(k) to F(k) = P(X <= k), X ~ Bin(n, p), in alphabetical order; "
-            + formulas
-        ),
+        "description": "\n".join([head, *lines]),
     }
 
 

@@ -405,7 +405,7 @@ def test_describe_dataset(small_atlas):
     at = lines.index("  error_precision: float32 (7 significant digits)")
     assert lines[at + 1] == "    = " + notes["error_precision"][:94].rsplit(" ", 1)[0]
     at = lines.index("  tail_tolerance: 1e-17")
-    assert lines[at + 1].startswith("    = The largest |F(k) - G(k)| the exact search may leave")
+    assert lines[at + 1].startswith("    = The bound, checked in every cell, on |F(k) - G(k)|")
     # The compact copy's second history line is indented under the first.
     at = [line.startswith("  history: ") for line in lines].index(True)
     assert any(line.startswith("    2") and " compact: " in line for line in lines[at + 1 : at + 4])
@@ -518,7 +518,7 @@ def test_every_global_attribute_is_explained(tmp_path, tiny):
     for name in ("tail_tolerance", "n_spec", "p_spec", "error_precision", "atlas_schema",
                  "checksum", "checksum_variables"):  # fmt: skip
         assert len(notes[name]) > 40 and notes[name].endswith("."), name
-    assert "unevaluated in the far tails" in notes["tail_tolerance"]
+    assert "the omitted k change no stored error by more than this" in notes["tail_tolerance"]
     assert "`approx-atlas build --n`" in notes["n_spec"]
     assert "float32 (7 significant digits)" in notes["error_precision"]
     assert "checksum_recipe" in notes["checksum"]
@@ -530,9 +530,10 @@ def test_approximation_description_lists_only_the_stored(tmp_path, tiny):
         var = f.variables["approximation"]
         description = var.getncattr("description")
         assert var.getncattr("long_name") == "approximation to the binomial distribution function"
-    formulas = description.split("; ", 1)[1]
-    assert formulas == (f"normal_cc: {cube.METHOD_DESCRIPTIONS['normal_cc']}; "
-                        f"poisson: {cube.METHOD_DESCRIPTIONS['poisson']}")  # fmt: skip
+    lines = description.splitlines()
+    assert lines[0].endswith("one line per name, in the stored (alphabetical) order:")
+    assert lines[1:] == [f"normal_cc: {cube.METHOD_DESCRIPTIONS['normal_cc']}",
+                         f"poisson: {cube.METHOD_DESCRIPTIONS['poisson']}"]  # fmt: skip
     for other in set(atlas.METHODS) - {"normal_cc", "poisson"}:
         assert f"{other}:" not in description, other
 
