@@ -159,7 +159,9 @@ def main(argv=None):
           f"at most {own + args.workers * child:.0f} MB together")  # fmt: skip
     print(f"file: {args.output} ({size / 1e6:.2f} MB, {size} bytes)")
     print(f"checksum: {checksum}")
-    if previous is not None:
+    if previous == "unreadable":
+        print("the previous file could not be read (damaged, or of an older schema)")
+    elif previous is not None:
         same = "the same as" if previous == checksum else "DIFFERENT from"
         print(f"checksum is {same} the previous file's ({previous})")
     print(f"load average at end: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
