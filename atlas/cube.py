@@ -518,10 +518,15 @@ def describe_dataset(ds, path=None, *, width=100):
     for key, value in ds.attrs.items():
         if key == "attribute_notes":  # shown here, under each attribute
             continue
-        for k, part in enumerate(str(value).split("\n")):  # a history line each
+        # Each line of a multi-line value (history) starts at 4 spaces under the first and
+        # continues at 6, so that each reads as one; a one-line value continues at 4.
+        parts = str(value).split("\n")
+        more = " " * (6 if len(parts) > 1 else 4)
+        for k, part in enumerate(parts):
+            first = f"  {key}: " if k == 0 else " " * 4
             lines.extend(
-                textwrap.wrap(part, width, initial_indent=f"  {key}: " if k == 0 else " " * 4,
-                              subsequent_indent=" " * 4, break_on_hyphens=False,
+                textwrap.wrap(part, width, initial_indent=first, subsequent_indent=more,
+                              break_on_hyphens=False,
                               break_long_words=False)  # a spec or digest stays whole
             )  # fmt: skip
         if key in notes:
