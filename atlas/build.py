@@ -87,7 +87,8 @@ def build_atlas(
         A specification such as ``"logit:0.0001:0.9999:201"`` or the values; default the
         default grid.
     methods : str or sequence of str, optional
-        Methods (all by default).
+        Methods (all by default), in any order: the cube stores them in alphabetical order
+        along its ``approximation`` dimension.
     workers : int, optional
         Local worker processes (``workers >= 1``); None or 1 computes in this process.
     progress : bool, optional
@@ -126,15 +127,16 @@ def build_atlas(
 
     Examples
     --------
-    >>> ds = build_atlas(n="10,20", p="0.5", methods="normal_cc", progress=False)
-    >>> # "method" is also a keyword of .sel(), so the labels go in a dict
-    >>> round(float(ds["interval_error"].sel({"method": "normal_cc", "n": 10, "p": 0.5})), 6)
+    >>> ds = build_atlas(n="10,20", p="0.5", methods="normal_cc,camp_paulson", progress=False)
+    >>> [str(m) for m in ds.approximation.values]
+    ['camp_paulson', 'normal_cc']
+    >>> round(float(ds.interval_error.sel(approximation="normal_cc", n=10, p=0.5)), 6)
     0.005372
     """
     n_axis, n_spec = _axis(n, grid.parse_n, grid.DEFAULT_N_SPEC)
     p_axis, p_spec = _axis(p, grid.parse_p, grid.DEFAULT_P_SPEC)
     check_n(n_axis)  # the engine's own limit on n, checked before any work
-    methods = check_methods(methods)
+    methods = tuple(sorted(check_methods(methods)))  # the order of the cube's index
     if workers is not None:
         workers = positive_int("workers", workers)
     cells = len(methods) * n_axis.size * p_axis.size

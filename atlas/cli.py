@@ -442,9 +442,10 @@ def _cmd_build(args):
     cube.save_atlas(ds, target, overwrite=args.force)
     elapsed = time.perf_counter() - started
     sizes = ds.sizes
-    cells = sizes["method"] * sizes["n"] * sizes["p"]
+    methods = sizes["approximation"]
+    cells = methods * sizes["n"] * sizes["p"]
     print(
-        f"wrote {target}: {sizes['n']} n x {sizes['p']} p x {sizes['method']} methods = {cells} "
+        f"wrote {target}: {sizes['n']} n x {sizes['p']} p x {methods} methods = {cells} "
         f"cells in {elapsed:.1f} s ({cells / elapsed:.0f} cells/s), "
         f"{target.stat().st_size / 1e6:.2f} MB, {ds['interval_error'].dtype} errors"
     )

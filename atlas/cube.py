@@ -1,18 +1,25 @@
-"""The atlas cube: an xarray Dataset of worst-case errors over (method, n, p), and its NetCDF file.
+"""The atlas cube: worst-case errors over (approximation, n, p) as an xarray Dataset and a file.
 
 The layout (schema version :data:`atlas.store.SCHEMA_VERSION`):
 
-- dimensions and coordinates ``method`` (strings), ``n`` (int64), ``p`` (float64);
+- dimensions and coordinates ``approximation`` (strings, in alphabetical order), ``n`` (int64)
+  and ``p`` (float64), both strictly increasing, whatever order a build was asked for;
 - ``interval_error`` and ``cdf_error`` (float64, or float32 in a compact copy: the global
   attribute ``error_precision`` says which), ``interval_lo`` and ``interval_hi`` (int64);
 - global attributes ``title``, ``Conventions``, ``source``, ``history``, ``references``,
   ``comment`` (the caution), ``n_spec``, ``p_spec``, ``atlas_schema``, ``tail_tolerance``,
-  ``error_precision`` and ``checksum`` (SHA-256 of the coordinates and data, see
-  :func:`data_checksum`).
+  ``error_precision``, ``checksum`` (SHA-256 of the names, coordinates and data, see
+  :func:`data_checksum`), ``checksum_variables``, ``checksum_recipe`` and ``attribute_notes``
+  (one line per attribute saying what it means, :data:`ATTRIBUTE_NOTES`).
+
+The dimension is ``approximation``, not ``method``: ``method`` is a keyword of xarray's
+``.sel()``, so ``ds.interval_error.sel(approximation="normal_cc", n=50, p=0.1)`` works as typed.
+The Python API and the command line keep the word method (``method=``, ``--method``).
 
 Files are written to a temporary name beside the target and renamed when complete, with HDF5's
-Fletcher-32 checksums on every chunk, so a damaged chunk is refused when it is read. The method
-names are stored as fixed-width characters (CF character arrays, dimension ``method_strlen``).
+Fletcher-32 checksums on every chunk, so a damaged chunk is refused when it is read. The
+approximation names are stored as fixed-width characters (CF character arrays, dimension
+``approximation_strlen``).
 Files are read and checked by :mod:`atlas.store`; xarray is imported only by the functions that
 build a Dataset, so that importing this module stays light.
 """
@@ -74,18 +81,63 @@ _VARIABLE_ATTRS = {
     },
 }
 _COORD_ATTRS = {
-    "method": {
-        "long_name": "approximation method",
-        "description": "; ".join(f"{m}: {d}" for m, d in METHOD_DESCRIPTIONS.items()),
+    "n": {
+        "long_name": "number of trials",
+        "units": "1",
+        "description": "n of X ~ Bin(n, p); strictly increasing",
     },
-    "n": {"long_name": "number of trials", "units": "1", "description": "n of X ~ Bin(n, p)"},
     "p": {
         "long_name": "success probability",
         "units": "1",
-        "description": "p of X ~ Bin(n, p), 0 < p < 1",
+        "description": "p of X ~ Bin(n, p), 0 < p < 1; strictly increasing",
     },
 }
 PRECISIONS = ("float64", "float32")
+#: What each global attribute of the file means, one sentence each: stored in the file as the
+#: attribute ``attribute_notes`` (one "name: sentence" line per attribute) and shown by
+#: ``approx-atlas inspect`` under each value.
+ATTRIBUTE_NOTES = {
+    "title": "What the file holds.",
+    "Conventions": "The CF metadata conventions version the file follows.",
+    "source": "The program and version that computed the values.",
+    "history": "One line per step that made or changed the file: UTC time, program and action.",
+    "references": "The published sources of the approximations and of the error measures.",
+    "comment": "The caution that applies to every use of the values.",
+    "n_spec": (
+        "The n axis as given to the build, comma-separated items 'k', 'a:b' (every integer "
+        "from a to b) and 'log:a:b:m' (m integers log-spaced from a to b); "
+        "`approx-atlas build --n` with it gives the same axis."
+    ),
+    "p_spec": (
+        "The p axis as given to the build, comma-separated items 'x', 'lin:a:b:m', 'log:a:b:m' "
+        "and 'logit:a:b:m' (m points evenly spaced in p, log p or log(p/(1-p))); "
+        "`approx-atlas build --p` with it gives the same axis."
+    ),
+    "atlas_schema": (
+        "The version of this file layout (dimensions approximation, n and p, the variables and "
+        "these attributes); a reader refuses a version it does not know."
+    ),
+    "tail_tolerance": (
+        "The bound, checked in every cell, on |F(k) - G(k)| at each k the exact search leaves "
+        "out (the far tails of X ~ Bin(n, p)): the omitted k change no stored error by more "
+        "than this."
+    ),
+    "error_precision": (
+        "The type interval_error and cdf_error are stored in: float64, or float32 (7 "
+        "significant digits) in a compact copy; interval_lo and interval_hi are exact int64."
+    ),
+    "checksum": (
+        "'sha256:' and the SHA-256 digest of the names and values, computed as checksum_recipe "
+        "says; recompute it to detect damaged or altered values."
+    ),
+    "checksum_variables": "The variables whose values enter the checksum, in order, "
+    "separated by spaces.",
+    "checksum_recipe": "How the checksum is computed, in words for a reader in any language.",
+    "attribute_notes": "This list: one line per global attribute saying what it means.",
+}
+#: Global attributes that document the file format, the same in every atlas, rather than the
+#: provenance of one atlas: provenance listings (the sheet, the wiki page) leave them out.
+FORMAT_ATTRIBUTES = ("checksum_recipe", "attribute_notes")
 
 
 def make_dataset(n, p, methods, arrays, *, n_spec, p_spec, history, tail_tolerance):
@@ -98,7 +150,7 @@ def make_dataset(n, p, methods, arrays, *, n_spec, p_spec, history, tail_toleran
     p : array_like of float
         The p axis.
     methods : sequence of str
-        The method axis.
+        The approximations, in any order (stored alphabetically).
     arrays : dict
         ``interval_error``, ``cdf_error``, ``interval_lo``, ``interval_hi``, each of shape
         (len(methods), len(n), len(p)).
@@ -112,20 +164,36 @@ def make_dataset(n, p, methods, arrays, *, n_spec, p_spec, history, tail_toleran
     Returns
     -------
     xarray.Dataset
-        With every attribute of the schema, the checksum included.
+        With every attribute of the schema, the checksum included. The approximations are in
+        alphabetical order (the arrays are reordered with them), whatever order they came in.
+
+    Raises
+    ------
+    ValueError
+        If n or p is not strictly increasing, or a name repeats.
     """
     import xarray as xr
 
+    names = [str(m) for m in methods]
+    order = sorted(range(len(names)), key=names.__getitem__)
+    names = [names[i] for i in order]
+    n = np.asarray(n, dtype=np.int64)
+    p = np.asarray(p, dtype=np.float64)
+    store.check_axes({store.APPROXIMATION: names, "n": n, "p": p}, "`methods`, `n` and `p`")
     coords = {
-        "method": ("method", np.asarray(list(methods), dtype=object), _COORD_ATTRS["method"]),
-        "n": ("n", np.asarray(n, dtype=np.int64), _COORD_ATTRS["n"]),
-        "p": ("p", np.asarray(p, dtype=np.float64), _COORD_ATTRS["p"]),
+        store.APPROXIMATION: (
+            store.APPROXIMATION,
+            np.asarray(names, dtype=object),
+            approximation_attrs(names),
+        ),
+        "n": ("n", n, _COORD_ATTRS["n"]),
+        "p": ("p", p, _COORD_ATTRS["p"]),
     }
     dtypes = {"interval_error": np.float64, "cdf_error": np.float64}
     data_vars = {
         name: (
-            ("method", "n", "p"),
-            np.asarray(arrays[name], dtype=dtypes.get(name, np.int64)),
+            store.DIMENSIONS,
+            np.asarray(arrays[name], dtype=dtypes.get(name, np.int64))[order],
             dict(_VARIABLE_ATTRS[name]),
         )
         for name in store.DATA_VARIABLES
@@ -143,24 +211,70 @@ def make_dataset(n, p, methods, arrays, *, n_spec, p_spec, history, tail_toleran
         "atlas_schema": store.SCHEMA_VERSION,
         "tail_tolerance": float(tail_tolerance),
         "error_precision": "float64",
+        "checksum": data_checksum(ds),
+        "checksum_variables": " ".join(store.CHECKSUM_VARIABLES),
+        "checksum_recipe": store.CHECKSUM_RECIPE,
+        "attribute_notes": "\n".join(f"{k}: {v}" for k, v in ATTRIBUTE_NOTES.items()),
     }
-    ds.attrs["checksum"] = data_checksum(ds)
     return ds
 
 
-def data_checksum(ds):
-    """SHA-256 over the coordinates and data variables of an atlas Dataset.
+def approximation_attrs(names):
+    """The attributes of the approximation coordinate: its description lists ``names`` only.
 
-    The digest covers, in a fixed order, each coordinate and data variable's name, dtype, shape
-    and C-ordered bytes (method names as UTF-8 text), so it changes with any value. It is
-    :func:`atlas.store.checksum` of the Dataset's values, the digest the file readers check.
+    The description is one line of what the coordinate is, then one line per approximation the
+    atlas holds, ``name: G(k)``, in the stored (alphabetical) order.
+
+    Examples
+    --------
+    >>> print(approximation_attrs(["normal_cc", "poisson"])["description"])
+    the approximation G(k) to F(k) = P(X <= k), X ~ Bin(n, p); one line per name, in the stored (alphabetical) order:
+    normal_cc: Phi(z), z = (k + 1/2 - n p) / sqrt(n p q)
+    poisson: Poisson(n p) CDF; for p > 1/2 applied to the failures n - X
+    """  # noqa: E501 (a doctest's output line is as long as it is)
+    head = (
+        "the approximation G(k) to F(k) = P(X <= k), X ~ Bin(n, p); one line per name, in the "
+        "stored (alphabetical) order:"
+    )
+    lines = [f"{m}: {METHOD_DESCRIPTIONS.get(m, 'not described')}" for m in names]
+    return {
+        "long_name": "approximation to the binomial distribution function",
+        "description": "\n".join([head, *lines]),
+    }
+
+
+def attribute_notes(ds):
+    """The explanation of each global attribute of an atlas, from its ``attribute_notes``.
+
+    Returns
+    -------
+    dict
+        Attribute name -> sentence, read from the Dataset's ``attribute_notes`` (what the file
+        itself says), falling back to :data:`ATTRIBUTE_NOTES` for a name it does not explain.
+    """
+    notes = dict(ATTRIBUTE_NOTES)
+    for line in str(ds.attrs.get("attribute_notes", "")).splitlines():
+        name, _, text = line.partition(": ")
+        if text:
+            notes[name.strip()] = text.strip()
+    return notes
+
+
+def data_checksum(ds):
+    """SHA-256 over the approximation names, coordinates and data variables of an atlas Dataset.
+
+    The digest covers the names (UTF-8, each followed by a line feed), then the raw
+    little-endian bytes of n, p and each data variable in C order (the recipe is the
+    ``checksum_recipe`` attribute, :data:`atlas.store.CHECKSUM_RECIPE`), so it changes with any
+    value. It is :func:`atlas.store.checksum` of the Dataset's values, the digest the file
+    readers check.
 
     Returns
     -------
     str
         ``"sha256:<hex digest>"``.
     """
-    return store.checksum(ds["method"].values, lambda name: ds[name].values)
+    return store.checksum(ds[store.APPROXIMATION].values, lambda name: ds[name].values)
 
 
 def compact(ds, precision="float32"):
@@ -244,19 +358,22 @@ def save_atlas(ds, path, *, overwrite=True):
     FileExistsError
         If the target exists and ``overwrite`` is False.
     ValueError
-        If ``ds`` lacks a variable of the schema.
+        If ``ds`` lacks a variable of the schema, or an index coordinate is not strictly
+        increasing (the readers would refuse the file).
 
     Notes
     -----
-    The method names are written as fixed-width characters over (method, method_strlen), not
-    as variable-length strings: with netCDF4 1.7.5, reading variable-length strings through a
-    second handle on an open file, closing it and opening the file again crashes the
-    interpreter (see :mod:`atlas.store`).
+    The approximation names are written as fixed-width characters over (approximation,
+    approximation_strlen), not as variable-length strings: with netCDF4 1.7.5, reading
+    variable-length strings through a second handle on an open file, closing it and opening the
+    file again crashes the interpreter (see :mod:`atlas.store`).
     """
     path = Path(path)
-    missing = [name for name in store.DATA_VARIABLES if name not in ds]
+    missing = [name for name in (*store.DATA_VARIABLES, *store.DIMENSIONS) if name not in ds]
     if missing:
         raise ValueError(f"`ds` is not an atlas Dataset: it lacks {', '.join(missing)}.")
+    names = [str(m) for m in ds[store.APPROXIMATION].values]
+    store.check_axes({store.APPROXIMATION: names, "n": ds["n"].values, "p": ds["p"].values}, "`ds`")
     if path.exists() and not overwrite:
         raise FileExistsError(
             f"`path` exists: {str(path)!r}; pass overwrite (--force) to replace it."
@@ -273,7 +390,7 @@ def save_atlas(ds, path, *, overwrite=True):
         }
         for name in store.DATA_VARIABLES
     }
-    encoding["method"] = {"dtype": "S1", "char_dim_name": store.METHOD_STRLEN}
+    encoding[store.APPROXIMATION] = {"dtype": "S1", "char_dim_name": store.APPROXIMATION_STRLEN}
     encoding["n"] = {"_FillValue": None}
     encoding["p"] = {"_FillValue": None}
     with replacing(path) as tmp:
@@ -349,11 +466,13 @@ def verify_checksum(ds, path=None):
         ds.load()
     except Exception as err:  # netCDF4 raises RuntimeError (HDF error) for a damaged chunk
         raise store.unreadable(err, path) from None
-    return store.verify_digest(ds.attrs.get("checksum"), data_checksum(ds), path)
+    return store.verify_digest(
+        ds.attrs.get("checksum"), data_checksum(ds), path, ds.attrs.get("checksum_variables")
+    )
 
 
-def describe_dataset(ds, path=None):
-    """Lines of text describing an atlas: grid, methods, variables and provenance.
+def describe_dataset(ds, path=None, *, width=100):
+    """Lines of text describing an atlas: grid, approximations, variables, attributes explained.
 
     Parameters
     ----------
@@ -361,35 +480,56 @@ def describe_dataset(ds, path=None):
         An atlas Dataset.
     path : str or os.PathLike, optional
         Its file, whose name and size head the description.
+    width : int, optional
+        Long values and explanations are wrapped to this many characters.
 
     Returns
     -------
     list of str
-        What ``approx-atlas inspect`` prints before it verifies the checksum.
+        What ``approx-atlas inspect`` prints before it verifies the checksum: each global
+        attribute's value, and under it, marked "= ", what it means (:func:`attribute_notes`).
     """
+    import textwrap
+
     from atlas.grid import describe_grid
 
     lines = []
     if path is not None:
         size = Path(path).stat().st_size
         lines.append(f"file: {path} ({size / 1e6:.2f} MB, {size} bytes)")
-    attrs = ds.attrs
-    lines.append(f"title: {attrs.get('title', '')}")
-    lines.append(f"grid: {describe_grid(ds['n'].values, ds['p'].values)}")
-    lines.append(f"n_spec: {attrs.get('n_spec', '')}")
-    lines.append(f"p_spec: {attrs.get('p_spec', '')}")
-    methods = [str(m) for m in ds["method"].values]
-    lines.append(f"methods ({len(methods)}): {', '.join(methods)}")
+    grid = f"grid: {describe_grid(ds['n'].values, ds['p'].values)}"
+    lines.extend(textwrap.wrap(grid, width, subsequent_indent=" " * 4))
+    names = [str(m) for m in ds[store.APPROXIMATION].values]
+    lines.append(
+        f"approximations ({len(names)}; the names --method takes; dimension "
+        f"'{store.APPROXIMATION}', in alphabetical order):"
+    )
+    lines.extend(f"  {m}: {METHOD_DESCRIPTIONS.get(m, 'not described')}" for m in names)
     lines.append("variables:")
     for name in store.DATA_VARIABLES:
         var = ds[name]
-        lines.append(
-            f"  {name}({', '.join(var.dims)}) {var.dtype}, units {var.attrs.get('units', '?')!r}: "
+        text = (
+            f"{name}({', '.join(var.dims)}) {var.dtype}, units {var.attrs.get('units', '?')!r}: "
             f"{var.attrs.get('long_name', '')}"
         )
-    for key in ("source", "history", "Conventions", "atlas_schema", "error_precision",
-                "tail_tolerance", "references", "comment"):  # fmt: skip
-        if key in attrs:  # a multi-line history continues under its first line
-            text = str(attrs[key]).replace("\n", "\n" + " " * (len(key) + 2))
-            lines.extend(f"{key}: {text}".split("\n"))
+        lines.extend(textwrap.wrap(text, width, initial_indent="  ", subsequent_indent=" " * 4))
+    lines.append("global attributes (the value, then = what it means):")
+    notes = attribute_notes(ds)
+    for key, value in ds.attrs.items():
+        if key == "attribute_notes":  # shown here, under each attribute
+            continue
+        # Each line of a multi-line value (history) starts at 4 spaces under the first and
+        # continues at 6, so that each reads as one; a one-line value continues at 4.
+        parts = str(value).split("\n")
+        more = " " * (6 if len(parts) > 1 else 4)
+        for k, part in enumerate(parts):
+            first = f"  {key}: " if k == 0 else " " * 4
+            lines.extend(
+                textwrap.wrap(part, width, initial_indent=first, subsequent_indent=more,
+                              break_on_hyphens=False,
+                              break_long_words=False)  # a spec or digest stays whole
+            )  # fmt: skip
+        if key in notes:
+            lines.extend(textwrap.wrap(notes[key], width, initial_indent="    = ",
+                                       subsequent_indent=" " * 6))  # fmt: skip
     return lines

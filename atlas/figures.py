@@ -14,7 +14,8 @@ from pathlib import Path
 
 import numpy as np
 
-from atlas import cube
+from atlas import cube, store
+from atlas.approximations import METHODS
 from atlas.engine import check_metric
 from atlas.files import replacing
 from atlas.notation import format_p
@@ -92,9 +93,18 @@ def as_dataset(atlas):
     return ds
 
 
+def _stored_methods(ds):
+    """The approximation names in the order the Dataset stores them (alphabetical)."""
+    return [str(m) for m in ds[store.APPROXIMATION].values]
+
+
 def atlas_methods(ds):
-    """The methods of an atlas Dataset, a tuple of str."""
-    return tuple(str(m) for m in ds["method"].values)
+    """The methods of an atlas Dataset, a tuple of str, in the order figures and tables list
+    them: that of :data:`atlas.METHODS` (normal_cc first), then any other name alphabetically.
+    The file itself stores them alphabetically.
+    """
+    rank = {m: i for i, m in enumerate(METHODS)}
+    return tuple(sorted(_stored_methods(ds), key=lambda m: (rank.get(m, len(rank)), m)))
 
 
 def check_atlas_method(ds, method, name="method"):
@@ -119,9 +129,9 @@ def errors_on_grid(atlas, method, metric):
     ds = as_dataset(atlas)
     check_metric(metric)
     check_atlas_method(ds, method)
-    index = atlas_methods(ds).index(method)
+    index = _stored_methods(ds).index(method)
     try:
-        return np.asarray(ds[_VARIABLES[metric]].isel(method=index).values, dtype=np.float64)
+        return np.asarray(ds[_VARIABLES[metric]].isel(approximation=index).values, dtype=np.float64)
     except (RuntimeError, OSError) as err:  # netCDF4/HDF5 on a chunk failing Fletcher-32
         source = ds.encoding.get("source")
         where = f" from {str(source)!r}" if source else ""

@@ -22,7 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from atlas import store
-from atlas.approximations import check_method
+from atlas.approximations import METHODS, check_method
 from atlas.engine import check_metric, check_n, check_p, evaluate, evaluate_cells
 from atlas.notation import error_digits, format_p
 
@@ -196,13 +196,14 @@ class Atlas:
 
     @property
     def methods(self):
-        """The methods held in the atlas, as a tuple of str."""
+        """The methods held in the atlas, a tuple of str in the order the file stores them
+        (alphabetical, along the Dataset's ``approximation`` dimension)."""
         methods = self._cache.get("methods")
         if methods is None:
             if self._file is not None:
-                methods = self._file.methods()
+                methods = self._file.approximations()
             else:
-                methods = tuple(str(m) for m in np.ravel(self.dataset["method"].values))
+                methods = tuple(str(m) for m in np.ravel(self.dataset["approximation"].values))
             self._cache["methods"] = methods
         return methods
 
@@ -302,7 +303,7 @@ class Atlas:
                 if self._file is not None:
                     values = self._file.read(name, index)
                 else:
-                    values = np.asarray(self.dataset[name].isel(method=index).values)
+                    values = np.asarray(self.dataset[name].isel(approximation=index).values)
             except Exception as err:  # netCDF4/HDF5 raise RuntimeError or OSError on a bad chunk
                 where = f"{str(self.path)!r}" if self.path is not None else "the Dataset"
                 raise ValueError(
@@ -659,7 +660,8 @@ class Atlas:
         Returns
         -------
         list of tuple
-            ``(method, error)`` pairs sorted by error, ties in the atlas's method order.
+            ``(method, error)`` pairs sorted by error, ties in the order of
+            :data:`atlas.METHODS` (normal_cc first), whatever order the atlas stores them in.
 
         Raises
         ------
@@ -676,7 +678,12 @@ class Atlas:
         else:
             ev = evaluate(int(n_value), [p_value], methods=methods)
             errors = [float(x) for x in (ev.interval if metric == "interval" else ev.cdf)[:, 0]]
-        order = sorted(range(len(methods)), key=lambda k: (errors[k], k))
+        rank = {m: i for i, m in enumerate(METHODS)}
+
+        def key(k):  # the error, then the order of atlas.METHODS
+            return errors[k], rank.get(methods[k], len(rank)), methods[k]
+
+        order = sorted(range(len(methods)), key=key)
         return [(methods[k], errors[k]) for k in order]
 
     def safe_region(self, tol, *, method="normal_cc", metric="interval"):

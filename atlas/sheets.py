@@ -219,7 +219,8 @@ def _definitions_pages(ds, where):
     pages = flow.pages
     flow = _Flow("Provenance and caution")
     flow.para("The atlas these pages were drawn from (its NetCDF global attributes):", size=9.5)
-    entries = [("file", where)] + [(k, str(v)) for k, v in ds.attrs.items() if k != "comment"]
+    entries = [("file", where)] + [(k, str(v)) for k, v in ds.attrs.items()
+                                   if k not in ("comment", *cube.FORMAT_ATTRIBUTES)]  # fmt: skip
     for key, value in entries:
         if key in ("n_spec", "p_spec") and len(value) > 150:
             value = value[:150] + " …"
@@ -424,7 +425,8 @@ def _wiki_markdown(ds, images, tables, audit, provenance, where):
         for m in figures.atlas_methods(ds)
     ]
     out += ["", "## Provenance", "", f"- file: `{where}`"]
-    out += [f"- {k}: {escape_markdown(v)}" for k, v in ds.attrs.items()]
+    out += [f"- {k}: {escape_markdown(v)}" for k, v in ds.attrs.items()
+            if k not in cube.FORMAT_ATTRIBUTES]  # fmt: skip
     out += ["", "## Caution", "", cube.CAUTION, ""]
     return "\n".join(out)
 
@@ -461,7 +463,8 @@ def _wiki_html(ds, images, tables, audit, provenance, where):
     ]
     out.append("</ul><h2>Provenance</h2><dl>")
     out.append(f"<dt>file</dt><dd><code>{e(where)}</code></dd>")
-    out += [f"<dt>{e(k)}</dt><dd>{e(str(v))}</dd>" for k, v in ds.attrs.items()]
+    out += [f"<dt>{e(k)}</dt><dd>{e(str(v))}</dd>" for k, v in ds.attrs.items()
+            if k not in cube.FORMAT_ATTRIBUTES]  # fmt: skip
     out.append("</dl>")
     out.append(f'<h2>Caution</h2><p class="caution">{e(cube.CAUTION)}</p>')
     out += ["</body>", "</html>", ""]

@@ -1,21 +1,26 @@
 """Atlas files on disk: the schema every reader checks, and the one fast reader.
 
 An atlas file is NetCDF4 (HDF5) in the layout that :func:`atlas.cube.save_atlas` writes, of
-schema version ``SCHEMA_VERSION``: dimensions ``method``, ``n`` and ``p``, the coordinate
-variables of the same names, the data variables ``DATA_VARIABLES`` over (method, n, p) and the
-global attribute ``atlas_schema``. The method names are stored as fixed-width characters
-(dimensions ``method`` and ``method_strlen``); files of earlier versions store them as
-variable-length strings, and both are read as Python str.
+schema version ``SCHEMA_VERSION``: dimensions ``approximation``, ``n`` and ``p``, the coordinate
+variables of the same names, the data variables ``DATA_VARIABLES`` over (approximation, n, p)
+and the global attribute ``atlas_schema``. Every index coordinate is strictly increasing: the
+approximation names in code-point (alphabetical) order, n and p numerically, so that xarray's
+``.sel(..., method="nearest")`` works on n and p. The names are stored as fixed-width
+characters (dimensions ``approximation`` and ``approximation_strlen``); variable-length strings
+are read too, both as Python str.
+
+Schema "1" called the first dimension ``method``, which is also the keyword of xarray's
+``.sel()``; such files are refused with the command that rebuilds them (:func:`rebuild_command`).
 
 Everything here reads the file with netCDF4 directly and imports neither xarray nor pandas nor
-dask (xarray imports dask while it decodes the method names whenever dask is installed), so
+dask (xarray imports dask while it decodes the name strings whenever dask is installed), so
 that a command-line query starts fast. :func:`open_netcdf` refuses what is not an atlas of this
 schema; :func:`atlas.cube.load_dataset` builds its ``xarray.Dataset`` on the handle it returns
 (:func:`to_dataset`), and :func:`atlas.open_atlas` keeps one :class:`AtlasFile` per file.
 
 One open file per process. :func:`share` opens each file once and hands the same
 :class:`AtlasFile` to every Atlas of that file; it is closed when the last of them is closed or
-garbage collected. With netCDF4 1.7.5, reading variable-length method names through a second
+garbage collected. With netCDF4 1.7.5, reading variable-length name strings through a second
 handle on an open file, closing that handle and opening the file again is a segmentation fault.
 Fixed-width names (what :func:`atlas.cube.save_atlas` writes) do not crash; sharing the handle
 keeps files of earlier versions safe too.
@@ -30,15 +35,20 @@ from pathlib import Path
 import numpy as np
 
 __all__ = [
+    "APPROXIMATION",
+    "APPROXIMATION_STRLEN",
+    "CHECKSUM_RECIPE",
+    "CHECKSUM_VARIABLES",
     "DATA_VARIABLES",
     "DIMENSIONS",
-    "METHOD_STRLEN",
     "SCHEMA_VERSION",
     "AtlasFile",
+    "approximation_names",
+    "check_axes",
     "checksum",
     "default_path",
-    "method_names",
     "open_netcdf",
+    "rebuild_command",
     "release",
     "share",
     "to_dataset",
@@ -47,11 +57,29 @@ __all__ = [
     "verify_file",
 ]
 
-SCHEMA_VERSION = "1"
+SCHEMA_VERSION = "2"
 DATA_VARIABLES = ("interval_error", "cdf_error", "interval_lo", "interval_hi")
-DIMENSIONS = ("method", "n", "p")
-#: The character dimension of the fixed-width method names.
-METHOD_STRLEN = "method_strlen"
+#: The dimension (and coordinate) of the approximation names.
+APPROXIMATION = "approximation"
+DIMENSIONS = (APPROXIMATION, "n", "p")
+#: The character dimension of the fixed-width approximation names.
+APPROXIMATION_STRLEN = "approximation_strlen"
+#: The variables whose values enter the checksum, in order (the attribute ``checksum_variables``).
+CHECKSUM_VARIABLES = ("n", "p", *DATA_VARIABLES)
+#: How the checksum is computed, in words a reader in any language can follow (the attribute
+#: ``checksum_recipe``; the README states it too).
+CHECKSUM_RECIPE = (
+    "SHA-256 over these bytes, in this order: first the approximation names, in the order of "
+    "the approximation dimension, each encoded in UTF-8 without padding and followed by one "
+    "line feed byte (0x0A); then, for each variable named in checksum_variables, in that "
+    "order, all its values as the raw little-endian bytes of the type stored in this file "
+    "(int64 for n, interval_lo and interval_hi; float64 for p; float64, or float32 where "
+    "error_precision says so, for interval_error and cdf_error), in C (row-major) order: the "
+    "variable's last dimension varies fastest (Fortran, R and Julia readers, which list the "
+    "dimensions reversed, take their arrays in native column-major order). Nothing else enters "
+    "the digest: no variable names, separators, shapes or attributes. The checksum attribute "
+    "is 'sha256:' followed by the digest in 64 lower-case hexadecimal digits."
+)
 
 
 def default_path():
@@ -78,7 +106,9 @@ def open_netcdf(path):
         If there is no file at ``path``.
     ValueError
         If the file is not readable NetCDF, is of another schema version, lacks a variable, or
-        has a data variable over other dimensions than (method, n, p).
+        has a data variable over other dimensions than (approximation, n, p), an index
+        coordinate that is not strictly increasing, or is of schema "1" (the message gives the
+        command that rebuilds it).
     """
     path = Path(path)
     if not path.is_file():
@@ -92,8 +122,8 @@ def open_netcdf(path):
             f"`path` is not a readable atlas file: {str(path)!r} ({type(err).__name__}: {err})."
         ) from None
     try:
-        _check_layout(nc, path)
         nc.set_auto_mask(False)  # plain arrays: the atlas has no fill values
+        _check_layout(nc, path)
     except Exception:
         nc.close()
         raise
@@ -108,6 +138,12 @@ def _check_layout(nc, path):
             f"`path` is NetCDF but not an atlas file (it has no 'atlas_schema' attribute): "
             f"{str(path)!r}."
         )
+    if schema == "1":
+        raise ValueError(
+            f"`path` {str(path)!r} is an atlas of schema version '1' (dimension 'method'), which "
+            f"this version of approx-atlas no longer reads (it reads schema {SCHEMA_VERSION!r}, "
+            f"dimension 'approximation'); rebuild it with: {rebuild_command(nc, path)}"
+        )
     if schema != SCHEMA_VERSION:
         raise ValueError(
             f"`path` holds an atlas of schema version {schema!r}; this version of approx-atlas "
@@ -119,19 +155,93 @@ def _check_layout(nc, path):
     odd = [v for v in DATA_VARIABLES if nc.variables[v].dimensions != DIMENSIONS]
     if odd:
         raise ValueError(
-            f"`path` has atlas variables without the dimensions (method, n, p): "
+            f"`path` has atlas variables without the dimensions ({', '.join(DIMENSIONS)}): "
             f"{', '.join(odd)}: {str(path)!r}."
         )
+    check_axes(
+        {
+            APPROXIMATION: approximation_names(nc),
+            "n": np.asarray(nc.variables["n"][:]),
+            "p": np.asarray(nc.variables["p"][:]),
+        },
+        f"`path` {str(path)!r}",
+    )
 
 
-def method_names(nc):
-    """The method names of an open atlas file, as a tuple of str.
+def check_axes(axes, where):
+    """Refuse index coordinates that are not strictly increasing.
 
-    Fixed-width characters (method, method_strlen) are joined and decoded here, whatever
-    netCDF4's automatic conversion is set to (xarray turns it off on the handles it reads);
-    variable-length strings (files of earlier versions) arrive as str already.
+    Parameters
+    ----------
+    axes : dict
+        ``{"approximation": names, "n": values, "p": values}``; names must be in strictly
+        increasing code-point (alphabetical) order, which also rules out repeats.
+    where : str
+        What holds them, for the message (such as "`path` 'a.nc'" or "`ds`").
+
+    Raises
+    ------
+    ValueError
+        Naming the first coordinate that is empty or out of order.
     """
-    var = nc.variables["method"]
+    for name, values in axes.items():
+        if name == APPROXIMATION:
+            ordered = all(a < b for a, b in zip(values[:-1], values[1:], strict=True))
+            rule = "in strictly increasing (alphabetical) order, without repeats"
+        else:
+            values = np.asarray(values)
+            ordered = values.ndim == 1 and bool(np.all(values[1:] > values[:-1]))
+            rule = "strictly increasing"
+        if len(values) == 0 or not ordered:
+            raise ValueError(f"{where} is not an atlas of this schema: its {name} coordinate "
+                             f"must be non-empty and {rule}.")  # fmt: skip
+
+
+def _quote(text):
+    """``text`` in single quotes for a POSIX shell (a quote inside closed, escaped, reopened)."""
+    return "'" + str(text).replace("'", "'\\''") + "'"
+
+
+def rebuild_command(nc, path):
+    """The ``approx-atlas build`` command that rebuilds an open atlas file of an older schema.
+
+    Built from the file's own attributes (``n_spec``, ``p_spec``, ``error_precision``) and
+    names; ``-o`` names ``path`` itself with ``--force``, which replaces the old file (atomically,
+    only when the new one is complete).
+    """
+
+    def spec(attribute, variable):  # the stored spec, else the values themselves
+        if attribute in nc.ncattrs():
+            return str(nc.getncattr(attribute))
+        return ",".join(repr(v.item()) for v in np.asarray(nc.variables[variable][:]))
+
+    names = _names(nc, APPROXIMATION if APPROXIMATION in nc.variables else "method")
+    precision = nc.getncattr("error_precision") if "error_precision" in nc.ncattrs() else ""
+    words = [
+        "approx-atlas build",
+        f"--n {_quote(spec('n_spec', 'n'))}",
+        f"--p {_quote(spec('p_spec', 'p'))}",
+        f"--methods {_quote(','.join(names))}",
+        f"-o {_quote(path)} --force",
+    ]
+    if str(precision).startswith("float32"):
+        words.append("--float32")
+    return " ".join(words)
+
+
+def approximation_names(nc):
+    """The approximation names of an open atlas file, as a tuple of str.
+
+    Fixed-width characters (approximation, approximation_strlen) are joined and decoded here,
+    whatever netCDF4's automatic conversion is set to (xarray turns it off on the handles it
+    reads); variable-length strings arrive as str already.
+    """
+    return _names(nc, APPROXIMATION)
+
+
+def _names(nc, name):
+    """The strings of variable ``name``: fixed-width characters or variable-length strings."""
+    var = nc.variables[name]
     var.set_auto_chartostring(False)
     values = np.asarray(var[:])
     if values.dtype.kind == "S":
@@ -155,29 +265,43 @@ def to_dataset(nc):
 # ---- the checksum ------------------------------------------------------------------------------
 
 
-def checksum(methods, read):
-    """SHA-256 over an atlas's method names, coordinates and data variables.
+def checksum(names, read):
+    """SHA-256 over an atlas's approximation names, coordinates and data variables.
 
     Parameters
     ----------
-    methods : sequence of str
-        The method names, in the order of the method axis.
+    names : sequence of str
+        The approximation names, in the order of the approximation axis.
     read : callable
-        ``read(name)`` returns the array of ``name``, for ``n``, ``p`` and each of
-        ``DATA_VARIABLES`` in turn.
+        ``read(name)`` returns the array of ``name``, for each of ``CHECKSUM_VARIABLES`` in
+        turn (one at a time: only one is held in memory).
 
     Returns
     -------
     str
-        ``"sha256:<hex digest>"`` of the method names (UTF-8, one per line), then each array's
-        name, dtype, shape and C-ordered bytes.
+        ``"sha256:<hex digest>"``, computed as :data:`CHECKSUM_RECIPE` says: each name in UTF-8
+        followed by a line feed, then each variable's values as raw little-endian bytes of
+        their type, in C order. No Python-specific text (dtype strings, printed shapes) enters,
+        so a reader in any language can recompute it.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> arrays = {"n": np.array([10]), "p": np.array([0.5])}
+    >>> arrays.update({v: np.zeros((1, 1, 1)) for v in DATA_VARIABLES})
+    >>> import hashlib, struct
+    >>> raw = b"normal_cc\\n" + struct.pack("<qd", 10, 0.5) + bytes(4 * 8)  # then four 0.0
+    >>> checksum(["normal_cc"], arrays.__getitem__) == "sha256:" + hashlib.sha256(raw).hexdigest()
+    True
     """
     digest = hashlib.sha256()
-    digest.update("\n".join(str(m) for m in methods).encode())
-    for name in ("n", "p", *DATA_VARIABLES):
-        values = np.ascontiguousarray(read(name))
-        digest.update(f"|{name}|{values.dtype.str}|{values.shape}|".encode())
-        digest.update(values.tobytes())
+    for name in names:
+        digest.update(str(name).encode("utf-8") + b"\n")
+    for name in CHECKSUM_VARIABLES:
+        values = np.asarray(read(name))
+        # Little-endian whatever the machine: the recipe fixes the byte order.
+        values = np.ascontiguousarray(values, dtype=values.dtype.newbyteorder("<"))
+        digest.update(memoryview(values).cast("B"))
     return "sha256:" + digest.hexdigest()
 
 
@@ -190,17 +314,30 @@ def unreadable(err, path=None):
     return ValueError(f"{_where(path)} is corrupt: its data cannot be read ({err}).")
 
 
-def verify_digest(stored, actual, path=None):
+_CHECKSUM_LIST = " ".join(CHECKSUM_VARIABLES)  # the checksum_variables attribute of this schema
+
+
+def verify_digest(stored, actual, path=None, variables=_CHECKSUM_LIST):
     """Return ``actual`` if it equals the ``stored`` checksum, else raise ValueError.
+
+    ``variables`` is the file's ``checksum_variables`` attribute: the checksum is verified only
+    over the variables this schema puts in it (a shorter list would leave values unchecked).
 
     Raises
     ------
     ValueError
-        If ``stored`` is None (no checksum attribute) or differs from ``actual``.
+        If ``stored`` is None (no checksum attribute), ``variables`` is not the schema's list,
+        or ``stored`` differs from ``actual``.
     """
     where = _where(path)
     if stored is None:
         raise ValueError(f"{where} has no checksum attribute to verify.")
+    expected = _CHECKSUM_LIST
+    if variables != expected:
+        raise ValueError(
+            f"{where} is corrupt: its checksum_variables attribute must be {expected!r}; "
+            f"got {variables!r}."
+        )
     if actual != stored:
         raise ValueError(
             f"{where} is corrupt: its checksum does not match (stored {stored}, data {actual})."
@@ -216,11 +353,12 @@ def verify_file(nc, path=None):
     """
     try:
         # One variable in memory at a time: the digest is fed as each is read.
-        actual = checksum(method_names(nc), lambda name: nc.variables[name][:])
+        actual = checksum(approximation_names(nc), lambda name: nc.variables[name][:])
     except Exception as err:  # netCDF4 raises RuntimeError (HDF error) for a damaged chunk
         raise unreadable(err, path) from None
-    stored = nc.getncattr("checksum") if "checksum" in nc.ncattrs() else None
-    return verify_digest(stored, actual, path)
+    attrs = {name: nc.getncattr(name) for name in ("checksum", "checksum_variables")
+             if name in nc.ncattrs()}  # fmt: skip
+    return verify_digest(attrs.get("checksum"), actual, path, attrs.get("checksum_variables"))
 
 
 # ---- one open file per process -----------------------------------------------------------------
@@ -260,9 +398,9 @@ class AtlasFile:
             self._handles["ds"] = self.ds
         return self.ds
 
-    def methods(self):
-        """The method names, a tuple of str."""
-        return method_names(self.nc)
+    def approximations(self):
+        """The approximation names, a tuple of str, in the file's (alphabetical) order."""
+        return approximation_names(self.nc)
 
     def attrs(self):
         """The global attributes, a dict."""
@@ -273,7 +411,7 @@ class AtlasFile:
         return self.nc.variables["n"][:], self.nc.variables["p"][:]
 
     def read(self, name, index):
-        """The (n, p) slice of variable ``name`` for the method at ``index``."""
+        """The (n, p) slice of variable ``name`` for the approximation at ``index``."""
         return np.asarray(self.nc.variables[name][index])
 
     def verify(self):

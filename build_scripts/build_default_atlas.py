@@ -141,11 +141,11 @@ def main(argv=None):
     if size is None:
         return 1
     total = time.perf_counter() - started
-    cells = ds.sizes["method"] * ds.sizes["n"] * ds.sizes["p"]
+    cells = ds.sizes["approximation"] * ds.sizes["n"] * ds.sizes["p"]
     points = ds.sizes["n"] * ds.sizes["p"]
     own, child = _peak_mb()
     checksum = ds.attrs["checksum"]
-    print(f"cells: {cells} ({ds.sizes['method']} methods x {points} (n, p) points)")
+    print(f"cells: {cells} ({ds.sizes['approximation']} methods x {points} (n, p) points)")
     print(f"compute time: {computed:.1f} s; {cells / computed:.0f} cells/s, "
           f"{points / computed:.0f} (n, p) points/s")  # fmt: skip
     print(f"total time (compute, compact, write): {total:.1f} s")
@@ -159,7 +159,9 @@ def main(argv=None):
           f"at most {own + args.workers * child:.0f} MB together")  # fmt: skip
     print(f"file: {args.output} ({size / 1e6:.2f} MB, {size} bytes)")
     print(f"checksum: {checksum}")
-    if previous is not None:
+    if previous == "unreadable":
+        print("the previous file could not be read (damaged, or of an older schema)")
+    elif previous is not None:
         same = "the same as" if previous == checksum else "DIFFERENT from"
         print(f"checksum is {same} the previous file's ({previous})")
     print(f"load average at end: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")

@@ -33,7 +33,7 @@ def _same_bits(a, b):
     for name in (*store.DATA_VARIABLES, "n", "p"):
         assert a[name].dtype == b[name].dtype, name
         assert np.array_equal(a[name].values, b[name].values), name
-    assert list(a["method"].values) == list(b["method"].values)
+    assert list(a["approximation"].values) == list(b["approximation"].values)
     assert a.attrs["checksum"] == b.attrs["checksum"]
 
 
@@ -54,11 +54,12 @@ def test_build_specs_and_values(serial):
     assert ds.attrs["n_spec"] == N_SPEC and ds.attrs["p_spec"] == P_SPEC
     np.testing.assert_array_equal(ds["n"], grid.parse_n(N_SPEC))
     np.testing.assert_array_equal(ds["p"], grid.parse_p(P_SPEC))
-    assert tuple(ds["method"].values) == ("normal_cc", "poisson", "camp_paulson")
+    # Asked for as "normal_cc,poisson,camp_paulson": stored in alphabetical order.
+    assert tuple(ds["approximation"].values) == ("camp_paulson", "normal_cc", "poisson")
     assert ds.attrs["checksum"] == cube.data_checksum(ds)
     # Every cell is evaluate's value at that n over the whole p axis, bit for bit.
     for n in (1, 25, int(ds["n"][-1])):
-        ev = evaluate(n, ds["p"].values, methods=("normal_cc", "poisson", "camp_paulson"))
+        ev = evaluate(n, ds["p"].values, methods=("camp_paulson", "normal_cc", "poisson"))
         cells = ds.sel(n=n)
         assert np.array_equal(cells["interval_error"].values, ev.interval)
         assert np.array_equal(cells["cdf_error"].values, ev.cdf)
@@ -75,7 +76,7 @@ def test_build_from_values():
 
 def test_default_methods_are_all():
     ds = atlas.build_atlas("5", "0.5", progress=False)
-    assert tuple(ds["method"].values) == atlas.METHODS
+    assert tuple(ds["approximation"].values) == tuple(sorted(atlas.METHODS))
 
 
 def test_history_line(serial):
@@ -316,8 +317,13 @@ def test_cli_build_and_inspect(tmp_path, capsys, serial):
     assert main(["inspect", str(target)]) == 0
     out = capsys.readouterr().out.splitlines()
     assert out[0].startswith(f"file: {target} (")
-    assert f"n_spec: {N_SPEC}" in out and f"p_spec: {P_SPEC}" in out
-    assert "methods (3): normal_cc, poisson, camp_paulson" in out
+    assert f"  n_spec: {N_SPEC}" in out and f"  p_spec: {P_SPEC}" in out
+    names = out.index(
+        "approximations (3; the names --method takes; dimension 'approximation', in "
+        "alphabetical order):"
+    )
+    assert [line.split(":")[0] for line in out[names + 1 : names + 4]] == [
+        "  camp_paulson", "  normal_cc", "  poisson"]  # fmt: skip
     assert out[-1] == f"checksum: ok ({serial.attrs['checksum']})"
 
 
@@ -422,7 +428,7 @@ def test_cli_inspect_default_atlas(capsys):
     assert main(["inspect"]) == 0
     out = capsys.readouterr().out.splitlines()
     assert out[0].startswith(f"file: {store.default_path()} (")
-    assert f"n_spec: {grid.DEFAULT_N_SPEC}" in out
+    assert f"  n_spec: {grid.DEFAULT_N_SPEC}" in out
     assert out[-1].startswith("checksum: ok (sha256:")
 
 

@@ -68,7 +68,7 @@ def test_error_map_contents(chart_atlas):
     assert "Metric interval: max over 0 ≤ a ≤ b ≤ n" in texts["subtitle"]
     footer = " ".join(texts["footer"].split())
     ds = chart_atlas.dataset
-    assert ds.attrs["source"] in footer and "schema 1" in footer
+    assert ds.attrs["source"] in footer and "schema 2" in footer
     assert f"built {ds.attrs['history'][:10]}" in footer  # the build date of the atlas
     assert ds.attrs["checksum"][:19] in footer
     assert " ".join(("Caution: " + cube.CAUTION).split()) in footer
@@ -169,7 +169,7 @@ def test_compare_map_shares_one_colour_scale(chart_atlas):
                         np.log10(sorted(charts.LEVELS)), rtol=1e-12)  # fmt: skip
     # Both panels' error ranges lie inside the shared levels (or below, in the extended end).
     for method in ("normal_cc", "edgeworth_cc"):
-        top = np.log10(chart_atlas.dataset["interval_error"].sel({"method": method}).max())
+        top = np.log10(chart_atlas.dataset["interval_error"].sel(approximation=method).max())
         assert top <= fill_left.levels[-1] + 1e-12
     assert "normal_cc and edgeworth_cc" in _texts(fig)["title"]
     with pytest.raises(ValueError, match=r"^`method2` must differ from `method`; got "
@@ -193,8 +193,8 @@ def test_gain_map(chart_atlas):
                                     "that of normal_cc")  # fmt: skip
     # The reach of the colour scale covers the largest ratio in the atlas (up to 10^6).
     ds = chart_atlas.dataset["interval_error"]
-    ratio = np.maximum(ds.sel({"method": "normal_cc"}).values, charts.RESOLUTION) / np.maximum(
-        ds.sel({"method": "edgeworth_cc"}).values, charts.RESOLUTION
+    ratio = np.maximum(ds.sel(approximation="normal_cc").values, charts.RESOLUTION) / np.maximum(
+        ds.sel(approximation="edgeworth_cc").values, charts.RESOLUTION
     )
     assert fill.levels[-1] >= min(np.abs(np.log10(ratio)).max(), 6.0) - 1e-12
 
@@ -209,7 +209,7 @@ def test_best_method_map_against_numpy(chart_atlas):
     ax = fig.axes[0]
     (mesh,) = [c for c in ax.collections if isinstance(c, QuadMesh)]
     ds = chart_atlas.dataset
-    errors = np.stack([ds["interval_error"].sel({"method": m}).values
+    errors = np.stack([ds["interval_error"].sel(approximation=m).values
                        for m in ("normal_cc", "edgeworth_cc", "poisson")])  # fmt: skip
     expected = np.argmin(errors, axis=0)  # the chart atlas is not pooled (see above)
     expected[(errors <= charts.RESOLUTION).sum(axis=0) >= 2] = 3  # the tie category

@@ -36,7 +36,7 @@ def _flipped(ds, path, variables):
                "chunksizes": ds[name].shape, "_FillValue": None}
         for name in store.DATA_VARIABLES
     }  # fmt: skip
-    encoding["method"] = {"dtype": "S1", "char_dim_name": store.METHOD_STRLEN}
+    encoding["approximation"] = {"dtype": "S1", "char_dim_name": store.APPROXIMATION_STRLEN}
     ds.to_netcdf(path, engine="netcdf4", encoding=encoding)
     data = bytearray(path.read_bytes())
     for name in variables:
@@ -392,7 +392,7 @@ def test_p_is_printed_so_that_it_reads_back(capsys, tiny_path):
 
 def test_float32_errors_are_printed_with_the_digits_the_file_holds(tiny_ds, tmp_path, capsys):
     path = str(atlas.save_atlas(atlas.cube.compact(tiny_ds), tmp_path / "tiny32.nc"))
-    stored = float(tiny_ds["interval_error"].sel({"method": "normal_cc", "n": 50, "p": 0.1}))
+    stored = float(tiny_ds["interval_error"].sel(approximation="normal_cc", n=50, p=0.1))
     digits7 = float(f"{np.float32(stored):.7g}")
     record = _json(capsys, ["query", "--n", "50", "--p", "0.1", "--tol", "0.01", "--atlas", path])
     assert (record["error"], record["error_digits"]) == (digits7, 7)

@@ -6,6 +6,10 @@ computes, so the comparisons are exact for float64 storage and to float32 roundi
 """
 
 import os
+import pathlib
+import re
+import subprocess
+import sys
 
 import netCDF4
 import numpy as np
@@ -32,13 +36,13 @@ SAMPLE_CELLS = [
 
 
 def _cell(ds, name, n, p, method):
-    return ds[name].sel({"method": method, "n": n, "p": p}).values.item()
+    return ds[name].sel(approximation=method, n=n, p=p).values.item()
 
 
 @pytest.fixture
 def tiny():
-    """A tiny float64 atlas built here: 2 methods x 5 n x 3 p."""
-    return atlas.build_atlas(n="1:3,100,1000", p="0.1,0.5,0.8", methods="normal_cc,poisson",
+    """A tiny float64 atlas built here: 2 methods x 5 n x 3 p (asked for out of order)."""
+    return atlas.build_atlas(n="1:3,100,1000", p="0.1,0.5,0.8", methods="poisson,normal_cc",
                              progress=False)  # fmt: skip
 
 
@@ -47,8 +51,8 @@ def tiny():
 
 def test_layout(small_atlas):
     ds = small_atlas["dataset"]
-    assert ds["interval_error"].dims == ("method", "n", "p")
-    assert tuple(ds["method"].values) == atlas.METHODS
+    assert ds["interval_error"].dims == ("approximation", "n", "p")
+    assert tuple(ds["approximation"].values) == tuple(sorted(atlas.METHODS))
     assert ds["n"].dtype == np.int64 and ds["p"].dtype == np.float64
     for name in ("interval_error", "cdf_error"):
         assert ds[name].dtype == np.float64
@@ -60,8 +64,11 @@ def test_layout(small_atlas):
         assert attrs["units"] == "1"
     assert "max D - min D" in ds["interval_error"].attrs["description"]
     keys = ["title", "Conventions", "source", "history", "references", "comment", "n_spec",
-            "p_spec", "atlas_schema", "tail_tolerance", "error_precision", "checksum"]  # fmt: skip
-    assert set(keys) <= set(ds.attrs)
+            "p_spec", "atlas_schema", "tail_tolerance", "error_precision", "checksum",
+            "checksum_variables", "checksum_recipe", "attribute_notes"]  # fmt: skip
+    assert list(ds.attrs) == keys
+    assert ds.attrs["checksum_variables"] == "n p interval_error cdf_error interval_lo interval_hi"
+    assert ds.attrs["checksum_recipe"] == store.CHECKSUM_RECIPE
     assert ds.attrs["Conventions"].startswith("CF-")
     assert ds.attrs["source"] == f"approx-atlas {atlas.__version__}"
     assert ds.attrs["atlas_schema"] == store.SCHEMA_VERSION
@@ -159,13 +166,13 @@ def test_plain_netcdf4(small_atlas):
     ds = small_atlas["dataset"]
     with netCDF4.Dataset(small_atlas["float64"]) as f:
         assert {name: len(dim) for name, dim in f.dimensions.items()} == {
-            "method": ds.sizes["method"],
+            "approximation": ds.sizes["approximation"],
             "n": ds.sizes["n"],
             "p": ds.sizes["p"],
-            "method_strlen": max(len(m) for m in ds["method"].values),
+            "approximation_strlen": max(len(m) for m in ds["approximation"].values),
         }
         var = f.variables["interval_error"]
-        assert var.dimensions == ("method", "n", "p")
+        assert var.dimensions == ("approximation", "n", "p")
         assert var.dtype == np.float64
         assert var.units == "1"
         assert var.long_name == "worst-case error of interval probabilities"
@@ -173,7 +180,7 @@ def test_plain_netcdf4(small_atlas):
         assert f.variables["interval_lo"].dtype == np.int64
         assert f.getncattr("atlas_schema") == store.SCHEMA_VERSION
         assert f.getncattr("Conventions").startswith("CF-")
-        methods = list(f.variables["method"][:])
+        methods = list(f.variables["approximation"][:])
         n = f.variables["n"][:]
         p = f.variables["p"][:]
         i, j, k = methods.index("edgeworth_cc"), int(np.flatnonzero(n == 50)[0]), 2
@@ -195,7 +202,7 @@ def test_checksum_changes_with_one_value(tiny):
         values = changed[name].values
         values[1, 2, 0] = values[1, 2, 0] + (1 if values.dtype.kind == "i" else 1e-15)
         assert cube.data_checksum(changed) != base, name
-    relabelled = tiny.assign_coords(method=["poisson", "normal_cc"])
+    relabelled = tiny.assign_coords(approximation=["poisson", "normal_cc"])
     assert cube.data_checksum(relabelled) != base
 
 
@@ -274,7 +281,7 @@ def test_wrong_schema_version(tmp_path, tiny):
     other.attrs = dict(tiny.attrs, atlas_schema="999")
     path = cube.save_atlas(other, tmp_path / "future.nc")
     with pytest.raises(ValueError, match=r"atlas of schema version '999'; this version of "
-                                         r"approx-atlas reads schema '1'"):  # fmt: skip
+                                         r"approx-atlas reads schema '2'"):  # fmt: skip
         cube.load_dataset(path)
 
 
@@ -371,27 +378,183 @@ def test_describe_dataset(small_atlas):
     path = small_atlas["float32"]
     with cube.load_dataset(path) as ds:
         lines = cube.describe_dataset(ds, path)
+        notes = cube.attribute_notes(ds)
     text = "\n".join(lines)
     assert lines[0] == f"file: {path} ({os.path.getsize(path) / 1e6:.2f} MB, " \
                        f"{os.path.getsize(path)} bytes)"  # fmt: skip
     # 40 + 8 n values (1:40 and log:50:5000:8) and 7 p values: the conftest grid.
     assert "grid: n: 48 values from 1 to 5000; p: 7 values from 0.01 to 0.9; 336 (n, p) points" \
         in lines  # fmt: skip
-    assert f"methods (7): {', '.join(atlas.METHODS)}" in lines
-    assert "  interval_error(method, n, p) float32, units '1': worst-case error of interval " \
-           "probabilities" in lines  # fmt: skip
-    assert (
-        "  interval_lo(method, n, p) int64, units '1': lower end a of the worst interval" in lines
-    )
-    for key in ("source", "history", "Conventions", "atlas_schema", "error_precision"):
-        assert f"\n{key}: " in text, key
-    assert "error_precision: float32 (7 significant digits)" in lines
+    head = lines.index("approximations (7; the names --method takes; dimension 'approximation', "
+                       "in alphabetical order):")  # fmt: skip
+    assert lines[head + 1 : head + 8] == [
+        f"  {m}: {cube.METHOD_DESCRIPTIONS[m]}" for m in sorted(atlas.METHODS)
+    ]
+    assert "  interval_error(approximation, n, p) float32, units '1': worst-case error of " \
+           "interval probabilities" in lines  # fmt: skip
+    at = lines.index("  cdf_error(approximation, n, p) float32, units '1': worst-case error of the "
+                     "cumulative distribution")  # fmt: skip
+    assert lines[at + 1] == "    function"
+    assert "  interval_lo(approximation, n, p) int64, units '1': lower end a of the worst " \
+           "interval" in lines  # fmt: skip
+    # Every attribute but the notes themselves: its value, then "= what it means".
+    for key in ds.attrs:
+        if key != "attribute_notes":
+            assert f"\n  {key}: " in text, key
+    assert "\n  attribute_notes: " not in text
+    at = lines.index("  error_precision: float32 (7 significant digits)")
+    assert lines[at + 1] == "    = " + notes["error_precision"][:94].rsplit(" ", 1)[0]
+    at = lines.index("  tail_tolerance: 1e-17")
+    assert lines[at + 1].startswith("    = The bound, checked in every cell, on |F(k) - G(k)|")
     # The compact copy's second history line is indented under the first.
-    second = lines[[line.startswith("history: ") for line in lines].index(True) + 1]
-    assert second.startswith(" " * len("history: ")) and " compact: " in second
+    at = [line.startswith("  history: ") for line in lines].index(True)
+    assert any(line.startswith("    2") and " compact: " in line for line in lines[at + 1 : at + 4])
+    assert all(len(line) <= 100 for line in lines if "_spec: " not in line), "wrapped"
 
 
 def test_evaluate_is_the_engine_behind_worst_error():
     # The sampled-cell checks above use worst_error; it and evaluate agree (one n, many p).
     ev = evaluate(50, [0.1, 0.3], methods=("camp_paulson",))
     assert ev.interval[0, 1] == atlas.worst_error(50, 0.3, method="camp_paulson")
+
+
+# ---- schema 2: the approximation dimension, ordered indexes, the one-liners ------------------
+
+
+def test_approximations_sorted_whatever_the_order_asked(tiny):
+    # Asked for as "poisson,normal_cc": stored alphabetically, each row under its own label.
+    assert tuple(tiny["approximation"].values) == ("normal_cc", "poisson")
+    for method in ("normal_cc", "poisson"):
+        assert _cell(tiny, "interval_error", 100, 0.1, method) == atlas.worst_error(
+            100, 0.1, method=method
+        )
+    same = atlas.build_atlas(n="1:3,100,1000", p="0.1,0.5,0.8", methods="normal_cc,poisson",
+                             progress=False)  # fmt: skip
+    assert same.attrs["checksum"] == tiny.attrs["checksum"]
+
+
+def test_round_trip_identical_out_of_order_request(tmp_path, tiny):
+    path = cube.save_atlas(tiny, tmp_path / "tiny.nc")
+    with xr.open_dataset(path) as back:  # plain xarray, no atlas reader
+        xr.testing.assert_identical(back, tiny)
+
+
+def test_index_coordinates_are_monotonic(small_atlas):
+    with xr.open_dataset(small_atlas["float32"]) as ds:
+        for name in ("approximation", "n", "p"):
+            index = ds.indexes[name]
+            assert index.is_monotonic_increasing and index.is_unique, name
+
+
+def test_one_liner_as_typed(small_atlas):
+    # The README's line, typed with keywords: `method` is no longer a dimension, so nothing
+    # collides with the `method=` keyword of .sel().
+    with xr.open_dataset(small_atlas["float64"]) as ds:
+        cell = ds.interval_error.sel(approximation="normal_cc", n=50, p=0.1)
+        assert cell.item() == atlas.worst_error(50, 0.1, method="normal_cc")
+
+
+def test_nearest_lookups(small_atlas):
+    # n = 55 lies between the grid's 50 and 97 (log:50:5000:8), p = 0.11 between 0.1 and 0.3:
+    # the nearest cell is (50, 0.1).
+    with xr.open_dataset(small_atlas["float64"]) as ds:
+        assert ds.indexes["n"][40:42].tolist() == [50, 97]
+        want = atlas.worst_error(50, 0.1, method="normal_cc")
+        near = ds.interval_error.sel(approximation="normal_cc").sel(n=55, p=0.11, method="nearest")
+        assert (int(near.n), float(near.p), near.item()) == (50, 0.1, want)
+        # The names first or last, in two calls: both work.
+        other = ds.interval_error.sel(n=55, p=0.11, method="nearest").sel(approximation="normal_cc")
+        assert other.item() == want
+        # In one call, pandas tries "nearest" on the names too and fails: the README says so.
+        with pytest.raises(
+            TypeError, match=r"unsupported operand type\(s\) for -: 'str' and 'str'"
+        ):
+            ds.interval_error.sel(approximation="normal_cc", n=55, p=0.11, method="nearest")
+
+
+def test_unordered_axes_are_refused(tmp_path, tiny):
+    backwards = tiny.isel(n=slice(None, None, -1))
+    message = (r"^`ds` is not an atlas of this schema: its n coordinate must be non-empty and "
+               r"strictly increasing\.$")  # fmt: skip
+    with pytest.raises(ValueError, match=message):
+        cube.save_atlas(backwards, tmp_path / "backwards.nc")
+    assert _leftovers(tmp_path) == []
+    with pytest.raises(ValueError, match=r"its p coordinate must be non-empty and strictly"):
+        cube.make_dataset([1], [0.5, 0.5], ["normal"], {v: np.zeros((1, 1, 2)) for v in
+                          store.DATA_VARIABLES}, n_spec="1", p_spec="0.5,0.5", history="",
+                          tail_tolerance=TAIL_TOL)  # fmt: skip
+    with pytest.raises(ValueError, match=r"its approximation coordinate must be non-empty and in "
+                                         r"strictly increasing \(alphabetical\) order, without "
+                                         r"repeats\.$"):  # fmt: skip
+        cube.make_dataset([1], [0.5], ["normal", "normal"], {v: np.zeros((2, 1, 1)) for v in
+                          store.DATA_VARIABLES}, n_spec="1", p_spec="0.5", history="",
+                          tail_tolerance=TAIL_TOL)  # fmt: skip
+    # A file written around save_atlas is refused on opening.
+    path = tmp_path / "backwards.nc"
+    backwards.to_netcdf(path, engine="netcdf4")
+    with pytest.raises(ValueError, match=r"^`path` '.*backwards\.nc' is not an atlas of this "
+                                         r"schema: its n coordinate must be"):  # fmt: skip
+        cube.load_dataset(path)
+    relabelled = tiny.assign_coords(approximation=["poisson", "normal_cc"])
+    relabelled.to_netcdf(tmp_path / "names.nc", engine="netcdf4")
+    with pytest.raises(ValueError, match=r"its approximation coordinate must be non-empty and in"):
+        atlas.open_atlas(tmp_path / "names.nc")
+
+
+# ---- every attribute explains itself -----------------------------------------------------------
+
+
+def _notes(text):
+    return dict(line.split(": ", 1) for line in text.splitlines())
+
+
+def test_every_global_attribute_is_explained(tmp_path, tiny):
+    path = cube.save_atlas(cube.compact(tiny), tmp_path / "t.nc")
+    with netCDF4.Dataset(path) as f:  # as a reader of the raw file (ncdump -h) sees it
+        names = f.ncattrs()
+        notes = _notes(f.getncattr("attribute_notes"))
+    assert list(notes) == names  # one line for each attribute, in the file's order
+    assert notes == cube.ATTRIBUTE_NOTES
+    for name in ("tail_tolerance", "n_spec", "p_spec", "error_precision", "atlas_schema",
+                 "checksum", "checksum_variables"):  # fmt: skip
+        assert len(notes[name]) > 40 and notes[name].endswith("."), name
+    assert "the omitted k change no stored error by more than this" in notes["tail_tolerance"]
+    assert "`approx-atlas build --n`" in notes["n_spec"]
+    assert "float32 (7 significant digits)" in notes["error_precision"]
+    assert "checksum_recipe" in notes["checksum"]
+
+
+def test_approximation_description_lists_only_the_stored(tmp_path, tiny):
+    path = cube.save_atlas(tiny, tmp_path / "t.nc")
+    with netCDF4.Dataset(path) as f:
+        var = f.variables["approximation"]
+        description = var.getncattr("description")
+        assert var.getncattr("long_name") == "approximation to the binomial distribution function"
+    lines = description.splitlines()
+    assert lines[0].endswith("one line per name, in the stored (alphabetical) order:")
+    assert lines[1:] == [f"normal_cc: {cube.METHOD_DESCRIPTIONS['normal_cc']}",
+                         f"poisson: {cube.METHOD_DESCRIPTIONS['poisson']}"]  # fmt: skip
+    for other in set(atlas.METHODS) - {"normal_cc", "poisson"}:
+        assert f"{other}:" not in description, other
+
+
+# ---- the README's code, as typed -----------------------------------------------------------------
+
+
+def _readme_blocks():
+    """The fenced blocks of the README's section on the cube, as (language, text) pairs."""
+    text = (pathlib.Path(atlas.__file__).parent.parent / "README.md").read_text()
+    section = text.split("## The cube, from xarray and from other languages", 1)[1]
+    section = section.split("\n## ", 1)[0]
+    return re.findall(r"```(\w*)\n(.*?)```", section, flags=re.S)
+
+
+def test_readme_xarray_lines_run_as_typed(tmp_path):
+    # The README's block runs as printed, in a fresh interpreter, and prints what it shows.
+    blocks = _readme_blocks()
+    (language, code), (_, shown) = blocks[0], blocks[1]
+    assert language == "python" and 'sel(approximation="normal_cc", n=50, p=0.1)' in code
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          timeout=120, cwd=tmp_path)  # fmt: skip
+    assert done.returncode == 0, done.stderr[-2000:]
+    assert done.stdout == shown

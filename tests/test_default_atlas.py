@@ -62,7 +62,7 @@ def test_grid_is_the_default(default):
     assert default.attrs["p_spec"] == grid.DEFAULT_P_SPEC
     assert_array_equal(default["n"].values, grid.default_n())
     assert_array_equal(default["p"].values, grid.default_p())
-    assert tuple(default["method"].values) == atlas.METHODS
+    assert tuple(default["approximation"].values) == tuple(sorted(atlas.METHODS))
 
 
 def test_round_p_exactly_on_the_grid(default):
@@ -70,7 +70,7 @@ def test_round_p_exactly_on_the_grid(default):
     for x in ROUND_P:
         assert np.count_nonzero(p == x) == 1, x
     # ... so that label lookups find them without a tolerance.
-    assert default["interval_error"].sel({"method": "normal_cc", "n": 100, "p": 0.05}).size == 1
+    assert default["interval_error"].sel(approximation="normal_cc", n=100, p=0.05).size == 1
 
 
 def test_every_integer_n_to_2000(default):
@@ -78,14 +78,15 @@ def test_every_integer_n_to_2000(default):
     assert int(default["n"].values[-1]) == 10**8
 
 
-def test_method_names_are_fixed_width():
-    # Resaved by build_scripts/build_default_atlas.py --resave: variable-length names crash
-    # netCDF4 1.7.5 when a second handle is closed and the file reopened (tests/test_store.py).
+def test_approximation_names_are_fixed_width():
+    # Variable-length names crash netCDF4 1.7.5 when a second handle is closed and the file
+    # reopened (tests/test_store.py).
     import netCDF4
 
     with netCDF4.Dataset(store.default_path()) as f:
-        assert f.variables["method"].dimensions == ("method", store.METHOD_STRLEN)
-        assert f.variables["method"].dtype == np.dtype("S1")
+        var = f.variables["approximation"]
+        assert var.dimensions == ("approximation", store.APPROXIMATION_STRLEN)
+        assert var.dtype == np.dtype("S1")
 
 
 def test_checksum_verifies():
@@ -99,7 +100,8 @@ def test_sampled_cells_match_the_engine(default):
     n_axis, p_axis = default["n"].values, default["p"].values
     for i, j in cells:
         n, p = int(n_axis[i]), float(p_axis[j])
-        ev = evaluate(n, [p], methods=atlas.METHODS)  # the atlas's methods: the same windows
+        names = tuple(str(m) for m in default["approximation"].values)  # alphabetical
+        ev = evaluate(n, [p], methods=names)  # the atlas's methods: the same windows
         stored = default.isel(n=i, p=j)
         # float32 storage (RTOL) plus the engine's accuracy contract, 1e-12 absolute against the
         # mpmath references: values at rounding level (large n, accurate methods) may differ
@@ -110,7 +112,7 @@ def test_sampled_cells_match_the_engine(default):
                         err_msg=f"n={n}, p={p}")  # fmt: skip
         # The stored worst interval [a, b] must attain the error: |D(b) - D(a-1)| = W. (Its
         # ends are not unique where one extreme of D sits at rounding level in a flat tail.)
-        for m, method in enumerate(atlas.METHODS):
+        for m, method in enumerate(names):
             a, b = int(stored["interval_lo"].values[m]), int(stored["interval_hi"].values[m])
             assert 0 <= a <= b <= n
             d = stats.binom.cdf([a - 1, b], n, p) - approximate_cdf(np.array([a - 1, b]), n, p,
@@ -122,7 +124,7 @@ def test_sampled_cells_match_the_engine(default):
 def test_known_cell(default):
     # W(10, 1/2) = 0.005372 and W(20, 1/2) = 0.002782 for normal_cc (REFERENCES.md fact 1,
     # computed values, 4 significant digits).
-    cells = default["interval_error"].sel({"method": "normal_cc", "p": 0.5})
+    cells = default["interval_error"].sel(approximation="normal_cc", p=0.5)
     assert_allclose(cells.sel(n=10), 0.005372, atol=5e-7)
     assert_allclose(cells.sel(n=20), 0.002782, atol=5e-7)
 
@@ -133,6 +135,6 @@ def test_symmetry_in_p(default):
     # computed at p and at 1 - p separately.
     p = default["p"].values
     assert_allclose(p + p[::-1], 1.0, rtol=0, atol=1e-15)
-    rows = default["interval_error"].sel({"method": "normal_cc"}).isel(n=slice(0, 2000, 97))
+    rows = default["interval_error"].sel(approximation="normal_cc").isel(n=slice(0, 2000, 97))
     values = rows.values.astype(np.float64)
     assert_allclose(values, values[:, ::-1], rtol=1e-5, atol=1e-12)

@@ -6,6 +6,8 @@ Dataset's own (a round trip), so they need no outside source.
 
 import json
 import pathlib
+import re
+import shlex
 import subprocess
 import sys
 
@@ -15,6 +17,7 @@ import pytest
 
 import atlas
 from atlas import cube, store
+from atlas.cli import main
 from atlas.query import open_atlas
 
 ROOT = pathlib.Path(atlas.__file__).parent.parent
@@ -30,15 +33,15 @@ def _run(script, *args):
     return done.stdout
 
 
-def test_method_names_are_fixed_width_characters(small_atlas):
+def test_approximation_names_are_fixed_width_characters(small_atlas):
     with netCDF4.Dataset(small_atlas["float32"]) as f:
-        var = f.variables["method"]
+        var = f.variables["approximation"]
         assert var.dtype == np.dtype("S1")
-        assert var.dimensions == ("method", store.METHOD_STRLEN)
+        assert var.dimensions == ("approximation", store.APPROXIMATION_STRLEN)
         assert var.getncattr("_Encoding") == "utf-8"
     nc = store.open_netcdf(small_atlas["float32"])
     try:
-        assert store.method_names(nc) == atlas.METHODS
+        assert store.approximation_names(nc) == tuple(sorted(atlas.METHODS))
     finally:
         nc.close()
 
@@ -52,30 +55,31 @@ def test_reopening_after_a_second_handle_is_closed_does_not_crash(small_atlas):
         "from atlas import cube, store\n"
         "path = sys.argv[1]\n"
         "held = netCDF4.Dataset(path)\n"
-        "second = netCDF4.Dataset(path); second.variables['method'][:]; second.close()\n"
-        "again = netCDF4.Dataset(path); raw = [str(m) for m in again.variables['method'][:]]\n"
-        "ds = cube.load_dataset(path); ds['method'].values; ds.close()\n"
+        "second = netCDF4.Dataset(path); second.variables['approximation'][:]; second.close()\n"
+        "again = netCDF4.Dataset(path)\n"
+        "raw = [str(m) for m in again.variables['approximation'][:]]\n"
+        "ds = cube.load_dataset(path); ds['approximation'].values; ds.close()\n"
         "ds = cube.load_dataset(path, verify=True)\n"
-        "print(json.dumps({'raw': raw, 'xarray': [str(m) for m in ds['method'].values],\n"
+        "print(json.dumps({'raw': raw, 'xarray': [str(m) for m in ds['approximation'].values],\n"
         "                  'checksum': cube.data_checksum(ds)}))\n"
     )
     out = json.loads(_run(script, small_atlas["float64"]))
-    assert out["raw"] == out["xarray"] == list(atlas.METHODS)
+    assert out["raw"] == out["xarray"] == sorted(atlas.METHODS)
     assert out["checksum"] == small_atlas["dataset"].attrs["checksum"]
 
 
-def test_variable_length_names_of_earlier_files_still_read(tmp_path, small_atlas):
-    # Files written before the names were fixed-width hold variable-length strings: both
-    # readers decode them to the same str, and the checksum (which joins the names) verifies.
+def test_variable_length_names_still_read(tmp_path, small_atlas):
+    # A file written by another program may hold variable-length strings: both readers decode
+    # them to the same str, and the checksum (which takes the names) verifies.
     ds = small_atlas["dataset"]
     path = tmp_path / "vlen.nc"
     ds.to_netcdf(path, engine="netcdf4")  # xarray's default for str: variable length
     with netCDF4.Dataset(path) as f:
-        assert f.variables["method"].dtype is str
+        assert f.variables["approximation"].dtype is str
     with cube.load_dataset(path, verify=True) as back:
-        assert [str(m) for m in back["method"].values] == list(atlas.METHODS)
+        assert [str(m) for m in back["approximation"].values] == sorted(atlas.METHODS)
     with open_atlas(path, verify=True) as opened:
-        assert opened.methods == atlas.METHODS
+        assert opened.methods == tuple(sorted(atlas.METHODS))
 
 
 def test_file_and_dataset_checksums_agree(small_atlas):
@@ -89,10 +93,13 @@ def test_file_and_dataset_checksums_agree(small_atlas):
 
 def test_refuses_data_variables_over_other_dimensions(tmp_path, small_atlas):
     ds = small_atlas["dataset"]
-    odd = ds.assign(interval_lo=ds["interval_lo"].transpose("n", "method", "p"))
+    odd = ds.assign(interval_lo=ds["interval_lo"].transpose("n", "approximation", "p"))
     path = tmp_path / "odd.nc"
     odd.to_netcdf(path, engine="netcdf4")
-    message = r"^`path` has atlas variables without the dimensions \(method, n, p\): interval_lo: "
+    message = (
+        r"^`path` has atlas variables without the dimensions \(approximation, n, p\): "
+        r"interval_lo: "
+    )
     with pytest.raises(ValueError, match=message + r"'.*odd\.nc'\.$"):
         store.open_netcdf(path)
 
@@ -105,3 +112,179 @@ def test_an_atlas_of_a_closed_file_says_so(tmp_path, small_atlas):
     opened.close()
     with pytest.raises(ValueError, match=r"^the atlas file is closed: '.*closed\.nc'\.$"):
         opened.error(10, 0.5, method="peizer_pratt")
+
+
+# ---- files of schema 1 are refused with the command that rebuilds them -------------------------
+
+
+def _write_schema_1(path, *, n, p, methods, n_spec, p_spec, float32):
+    """A file in the layout schema 1 had, written with netCDF4 directly: the dimension `method`,
+    fixed-width names over `method_strlen` in the order the build was asked for, the data over
+    (method, n, p), `atlas_schema` "1" and the attributes of that version."""
+    width = max(len(m) for m in methods)
+    with netCDF4.Dataset(path, "w", format="NETCDF4") as f:
+        f.createDimension("method", len(methods))
+        f.createDimension("n", len(n))
+        f.createDimension("p", len(p))
+        f.createDimension("method_strlen", width)
+        names = f.createVariable("method", "S1", ("method", "method_strlen"))
+        names.set_auto_chartostring(False)
+        names[:] = netCDF4.stringtochar(np.array(methods, dtype=f"S{width}"))
+        names.setncatts({"_Encoding": "utf-8", "long_name": "approximation method"})
+        f.createVariable("n", "i8", ("n",))[:] = n
+        f.createVariable("p", "f8", ("p",))[:] = p
+        for name in store.DATA_VARIABLES:
+            kind = ("f4" if float32 else "f8") if name.endswith("_error") else "i8"
+            f.createVariable(name, kind, ("method", "n", "p"), zlib=True)[:] = 0
+        f.setncatts({
+            "title": "approx-atlas: worst-case errors of approximations to the binomial "
+                     "distribution",
+            "atlas_schema": "1", "n_spec": n_spec, "p_spec": p_spec, "tail_tolerance": 1e-17,
+            "error_precision": "float32 (7 significant digits)" if float32 else "float64",
+            "checksum": "sha256:" + "0" * 64,
+        })  # fmt: skip
+    return path
+
+
+def test_schema_1_is_refused_with_the_rebuild_command(tmp_path, capsys):
+    path = _write_schema_1(tmp_path / "lot's atlas.nc", n=[1, 2, 3, 10], p=[0.1, 0.5],
+                           methods=["poisson", "normal_cc"], n_spec="1:3,10", p_spec="0.1,0.5",
+                           float32=True)  # fmt: skip
+    quoted = "'" + str(path).replace("'", "'\\''") + "'"  # the POSIX shell's single quotes
+    command = (f"approx-atlas build --n '1:3,10' --p '0.1,0.5' --methods 'poisson,normal_cc' "
+               f"-o {quoted} --force --float32")  # fmt: skip
+    message = (
+        f"`path` {str(path)!r} is an atlas of schema version '1' (dimension 'method'), which "
+        f"this version of approx-atlas no longer reads (it reads schema '2', dimension "
+        f"'approximation'); rebuild it with: {command}"
+    )
+    for opener in (store.open_netcdf, cube.load_dataset, open_atlas):
+        with pytest.raises(ValueError, match="^" + re.escape(message) + "$"):
+            opener(path)
+    # On the command line: the one-line error, exit status 2.
+    assert main(["query", "--atlas", str(path), "--n", "10", "--p", "0.5", "--tol", "0.01"]) == 2
+    err = capsys.readouterr().err  # the command line names its option, not the parameter
+    assert err == f"approx-atlas: error: {message.replace('`path`', '`--atlas`', 1)}\n"
+    # The command works as printed (the shell's quoting undone by shlex) and makes a schema-2
+    # atlas of the same grid, methods and precision in place of the old file.
+    argv = shlex.split(command)
+    assert argv[0] == "approx-atlas" and argv[argv.index("-o") + 1] == str(path)
+    assert main(argv[1:]) == 0
+    capsys.readouterr()
+    with cube.load_dataset(path, verify=True) as ds:
+        assert ds.attrs["atlas_schema"] == "2"
+        assert (ds.attrs["n_spec"], ds.attrs["p_spec"]) == ("1:3,10", "0.1,0.5")
+        assert [str(m) for m in ds["approximation"].values] == ["normal_cc", "poisson"]
+        assert ds["interval_error"].dtype == np.float32
+
+
+def test_schema_1_without_specs_and_in_float64(tmp_path):
+    # A file without n_spec/p_spec (hand-made or trimmed): the axes' values stand in for them.
+    path = _write_schema_1(tmp_path / "plain.nc", n=[5, 7], p=[0.25], methods=["normal"],
+                           n_spec="", p_spec="", float32=False)  # fmt: skip
+    with netCDF4.Dataset(path, "a") as f:
+        f.delncattr("n_spec")
+        f.delncattr("p_spec")
+    nc = netCDF4.Dataset(path)
+    try:
+        assert store.rebuild_command(nc, path) == (
+            f"approx-atlas build --n '5,7' --p '0.25' --methods 'normal' -o '{path}' --force"
+        )
+    finally:
+        nc.close()
+
+
+# ---- the checksum, recomputed by a reader that knows only the recipe ---------------------------
+
+# A reader in the spirit of one in C, Fortran, R or Julia: netCDF4, numpy and hashlib only,
+# following the words of the file's checksum_recipe. It runs in a fresh interpreter and reports
+# whether anything of atlas was imported.
+INDEPENDENT_READER = r"""
+import hashlib, json, sys
+import netCDF4, numpy as np
+
+with netCDF4.Dataset(sys.argv[1]) as f:
+    f.set_auto_mask(False)
+    names = f.variables["approximation"]
+    names.set_auto_chartostring(False)            # the raw characters
+    digest = hashlib.sha256()
+    for row in np.asarray(names[:]):              # one name per row, NUL-padded
+        digest.update(b"".join(row).rstrip(b"\0") + b"\n")
+    for name in f.getncattr("checksum_variables").split(" "):
+        values = np.asarray(f.variables[name][:])  # the type stored in the file
+        little = values.astype(values.dtype.newbyteorder("<"))
+        digest.update(little.tobytes(order="C"))
+    stored = f.getncattr("checksum")
+    kinds = {name: f.variables[name].dtype.str[1:] for name in ("n", "p", "cdf_error")}
+atlas_imported = any(m == "atlas" or m.startswith("atlas.") for m in sys.modules)
+print(json.dumps({"computed": "sha256:" + digest.hexdigest(), "stored": stored,
+                  "kinds": kinds, "atlas_imported": atlas_imported}))
+"""
+
+
+def _independent_checksum(path, cwd):
+    done = subprocess.run([sys.executable, "-I", "-c", INDEPENDENT_READER, str(path)],
+                          capture_output=True, text=True, timeout=120, cwd=cwd)  # fmt: skip
+    assert done.returncode == 0, done.stderr[-2000:]
+    out = json.loads(done.stdout)
+    assert out["atlas_imported"] is False
+    return out
+
+
+@pytest.mark.parametrize(("copy", "kind"), [("float64", "f8"), ("float32", "f4")])
+def test_independent_reader_recomputes_the_checksum(tmp_path, small_atlas, copy, kind):
+    out = _independent_checksum(small_atlas[copy], tmp_path)
+    assert out["kinds"] == {"n": "i8", "p": "f8", "cdf_error": kind}
+    assert out["computed"] == out["stored"]
+    assert out["stored"].startswith("sha256:") and len(out["stored"]) == 7 + 64
+
+
+def test_independent_reader_detects_one_flipped_byte(tmp_path, small_atlas):
+    path = tmp_path / "altered.nc"
+    path.write_bytes(small_atlas["float32"].read_bytes())
+    with netCDF4.Dataset(path, "a") as f:  # a valid file (HDF5 rewrites its chunk checksums)
+        var = f.variables["cdf_error"]
+        raw = bytearray(np.asarray(var[2, 10, 3]).astype("<f4").tobytes())
+        raw[0] ^= 0x01  # the lowest byte of the mantissa: the value moves by one unit
+        var[2, 10, 3] = np.frombuffer(bytes(raw), dtype="<f4")[0]
+    out = _independent_checksum(path, tmp_path)
+    assert out["computed"] != out["stored"]
+    with pytest.raises(ValueError, match=r"is corrupt: its checksum does not match"):
+        cube.load_dataset(path, verify=True)
+
+
+def test_checksum_variables_must_be_the_schemas(tmp_path, small_atlas):
+    # A shortened list would leave values unchecked: refused, not trusted.
+    path = tmp_path / "short.nc"
+    path.write_bytes(small_atlas["float64"].read_bytes())
+    with netCDF4.Dataset(path, "a") as f:
+        f.setncattr("checksum_variables", "n p")
+    message = (r"is corrupt: its checksum_variables attribute must be 'n p interval_error "
+               r"cdf_error interval_lo interval_hi'; got 'n p'\.$")  # fmt: skip
+    with pytest.raises(ValueError, match=message):
+        cube.load_dataset(path, verify=True)
+    with pytest.raises(ValueError, match=message):
+        open_atlas(path, verify=True)
+
+
+def test_readme_checksum_reader(tmp_path, small_atlas):
+    # The README's reader (netCDF4, numpy and hashlib only) prints True for an intact file and
+    # False once one value has changed.
+    text = (ROOT / "README.md").read_text()
+    (code,) = [b for b in re.findall(r"```python\n(.*?)```", text, flags=re.S)
+               if "checksum_variables" in b]  # fmt: skip
+    script = tmp_path / "reader.py"
+    script.write_text(code)
+    path = tmp_path / "atlas.nc"
+    path.write_bytes(small_atlas["float32"].read_bytes())
+
+    def run():
+        argv = [sys.executable, "-I", str(script), str(path)]
+        done = subprocess.run(argv, capture_output=True, text=True, timeout=120, cwd=tmp_path)
+        assert done.returncode == 0, done.stderr[-2000:]
+        return done.stdout
+
+    assert run() == "True\n"
+    with netCDF4.Dataset(path, "a") as f:
+        f.variables["interval_lo"][0, 0, 0] += 1
+    assert run() == "False\n"

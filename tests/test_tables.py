@@ -38,7 +38,7 @@ def test_table_against_the_cube(chart_atlas, method):
     ds = chart_atlas.dataset
     n = ds["n"].values
     for p, row in zip(PS, table.min_n, strict=True):
-        column = ds["interval_error"].sel({"method": method, "p": p}).values
+        column = ds["interval_error"].sel(approximation=method, p=p).values
         for tol, value in zip(TOLS, row, strict=True):
             if value is None:
                 assert column[-1] > tol
@@ -158,7 +158,7 @@ def test_audit_against_brute_force(chart_atlas):
     assert audit.grid_cells == n.size * p.size
     for row in audit.rows:
         mask = np.broadcast_to(masks[row.rule], (n.size, p.size))
-        values = ds[f"{row.metric}_error"].sel({"method": row.method}).values
+        values = ds[f"{row.metric}_error"].sel(approximation=row.method).values
         inside = values[mask]
         assert row.cells == inside.size > 0
         assert row.worst_error == inside.max()
