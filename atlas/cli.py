@@ -445,9 +445,12 @@ def _cmd_rules(args):
 
 def _cmd_sheet(args):
     """Write the printable PDF reference sheet."""
-    from atlas.sheets import write_sheet
+    from atlas.sheets import PAPERS, write_sheet
 
-    print(write_sheet(_open_atlas(args), args.output, methods=args.method))
+    if args.paper is not None and args.paper not in PAPERS:
+        valid = ", ".join(repr(name) for name in PAPERS)
+        raise ValueError(f"`--paper` must be one of {valid}; got {args.paper!r}.")
+    print(write_sheet(_open_atlas(args), args.output, methods=args.method, paper=args.paper))
     return 0
 
 
@@ -511,6 +514,8 @@ def _add_output_commands(commands):
     page_methods(sheet)
     atlas_option(sheet)
     sheet.add_argument("-o", "--output", required=True, metavar="FILE.pdf", help="the PDF file")
+    sheet.add_argument("--paper", help="a4 or letter, landscape (default: letter where the "
+                       "locale's territory prints on it, as US, CA, MX; else a4)")  # fmt: skip
     sheet.set_defaults(handler=_cmd_sheet)
 
     wiki = commands.add_parser("wiki", help="write a static wiki page with SVG charts")

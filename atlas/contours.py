@@ -108,9 +108,11 @@ def simplify_level(z, level, *, min_cells=MIN_CELLS):
         extent = _extents(parts, count)
         for k in np.flatnonzero(extent < min_cells) + 1:
             cells = np.argwhere(parts == k)
-            islands.append(cells)
             rows, cols = cells[:, 0], cells[:, 1]
             lines[rows, cols] = np.minimum(z[rows, cols], level - _RAISE)
+            unsafe = z[rows, cols] > level  # not the cells raised in (1) to (3)
+            if unsafe.any():
+                islands.append(cells[unsafe])
     return lines, islands
 
 
@@ -339,15 +341,21 @@ def _closest(points, tree):
     return float(tree.query(points, k=1)[0].min())
 
 
-def _straight(window, height):
-    """Whether the curve under a label stays within a third of the text height of its chord."""
+def _straight(window, height, bend=10.0):
+    """Whether the curve under a label is straight enough to carry it: it stays within a third
+    of the text's height of its chord, and its two halves turn by less than ``bend`` degrees."""
     start, end = window[0], window[-1]
     chord = end - start
     length = math.hypot(*chord)
     if length <= 0:
         return False
     normal = np.array([-chord[1], chord[0]]) / length
-    return float(np.abs((window - start) @ normal).max()) <= height / 3
+    if float(np.abs((window - start) @ normal).max()) > height / 3:
+        return False
+    middle = window[len(window) // 2]
+    a, b = middle - start, end - middle
+    turn = math.degrees(abs(math.atan2(a[0] * b[1] - a[1] * b[0], a @ b)))
+    return turn < bend
 
 
 def text_size(text, fontsize, *, pad=0.12):
