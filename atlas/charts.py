@@ -236,8 +236,9 @@ def draw_rules(ax, n, p, p_scale):
         curves.append((label, np.column_stack([xs[keep], ys[keep]]),
                        _RULE_ANCHORS[p_scale][label]))  # fmt: skip
     handles = [
-        mpl.lines.Line2D([], [], color="black", linewidth=width, linestyle=dashes,
-                         label=", ".join(labels))  # fmt: skip
+        mpl.lines.Line2D(
+            [], [], color="black", linewidth=width, linestyle=dashes, label=", ".join(labels)
+        )  # fmt: skip
         for (dashes, width), labels in styles.items()
     ]
     return handles, curves
@@ -678,7 +679,6 @@ def _factor(log_ratio):
     if abs(log_ratio) < 1e-9:
         return "equal"
     return f"{10.0 ** abs(log_ratio):,.0f}×"
-
 
 
 def method_colours(methods):

@@ -65,7 +65,10 @@ def _html_table(header, rows, *, numeric_from=1, caption=None):
         cells = []
         for k, cell in enumerate(row):
             cls = ' class="num"' if k >= numeric_from else ""
-            cells.append(f"<td{cls}>{html.escape(str(cell))}</td>")
+            # A comparison stays on one line ("np >= 10"); edgeworth_cc may break after "_".
+            text = re.sub(r" (>=|<=|==|!=|>|<|=) ", "\u00a0\\1\u00a0", str(cell))
+            text = html.escape(text).replace("_", "_<wbr>")
+            cells.append(f"<td{cls}>{text}</td>")
         out.append("<tr>" + "".join(cells) + "</tr>")
     out.append("</tbody></table>")
     return "\n".join(out)
@@ -352,8 +355,8 @@ body { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; margin: 
 h1 { font-size: 1.7em; } h2 { margin-top: 2em; border-bottom: 1px solid #999; }
 figure { margin: 1.5em 0; } figure img { width: 100%; height: auto; border: 1px solid #ccc; }
 figcaption { font-size: 0.9em; color: #333; }
-p, li, dd, dt, td, th, caption, code { overflow-wrap: anywhere; }
-table { max-width: 100%; }
+p, li, dd, dt, caption, code { overflow-wrap: anywhere; }
+table { max-width: 100%; } td.num { white-space: nowrap; }
 table { border-collapse: collapse; margin: 0.8em 0 0.4em; font-size: 0.92em; }
 caption { text-align: left; font-weight: bold; padding-bottom: 0.3em; }
 th, td { border: 1px solid #999; padding: 0.25em 0.6em; }
@@ -362,6 +365,8 @@ th { background: #e6e6e6; } td.num { text-align: right; font-variant-numeric: ta
 .notes { font-size: 0.9em; color: #333; } code { font-size: 0.95em; }
 dl dt { font-weight: bold; margin-top: 0.5em; }
 @media print { figure { page-break-inside: avoid; } }
+/* last, so that it overrides the rules above on a narrow window */
+@media (max-width: 900px) { table { font-size: 0.74em; } th, td { padding: 0.15em 0.3em; } }
 """
 
 

@@ -225,8 +225,9 @@ def test_gain_map_colours_do_not_depend_on_the_order(chart_atlas):
     # positive (purple, the upper end of PuOr) in both figures.
     assert charts.gain_order("edgeworth_cc", "normal_cc") == ("normal_cc", "edgeworth_cc")
     assert charts.gain_order("normal_cc", "edgeworth_cc") == ("normal_cc", "edgeworth_cc")
-    normal, edgeworth = (chart_atlas.error(100000, 0.1, method=m) for m in ("normal_cc",
-                                                                            "edgeworth_cc"))
+    normal, edgeworth = (
+        chart_atlas.error(100000, 0.1, method=m) for m in ("normal_cc", "edgeworth_cc")
+    )
     assert normal > 10 * edgeworth  # so the map's purple side is edgeworth_cc winning
     texts = [{t.get_text() for t in f.axes[0].texts} for f in (one, two)]
     assert texts[0] == texts[1]
@@ -456,8 +457,9 @@ def test_labels_along_lines_upright_and_apart(chart_atlas, kind):
     make = {
         "map": lambda: charts.error_map(chart_atlas, method="edgeworth_cc"),
         "gain": lambda: charts.gain_map(chart_atlas, method="normal_cc", method2="edgeworth_cc"),
-        "compare": lambda: charts.compare_map(chart_atlas, method="normal_cc",
-                                              method2="edgeworth_cc", stacked=True),
+        "compare": lambda: charts.compare_map(
+            chart_atlas, method="normal_cc", method2="edgeworth_cc", stacked=True
+        ),
         "best": lambda: charts.best_method_map(chart_atlas),
     }[kind]
     placed = _check_labels(make())
