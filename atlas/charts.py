@@ -784,7 +784,7 @@ def chart(atlas, *, kind="map", method="normal_cc", method2=None, metric="interv
           p_scale="logit"):  # fmt: skip
     """Draw one chart by kind: ``"map"``, ``"compare"``, ``"gain"`` or ``"best"``.
 
-    ``method2`` is the second method of ``compare`` and the reference of ``gain`` (default
+    ``method2`` is the second method of ``compare`` and of ``gain`` (default
     ``"normal_cc"``, or ``"edgeworth_cc"`` when ``method`` is ``"normal_cc"``); it is refused for
     ``map`` and ``best``.
     """
