@@ -312,14 +312,14 @@ def _draw_error_panel(ax, n, p, values, *, levels, p_scale, cmap=ERROR_CMAP):
     filled.set_rasterized(True)  # a vector file keeps its text and lines, the fill as an image
     filled.set_gid("error-fill")
     log_levels = np.log10(np.asarray(levels))
-    lines, segments, _ = _line_set(ax, n, p, z, log_levels, gid="tolerance-contours",
+    lines, segments, spots = _line_set(ax, n, p, z, log_levels, gid="tolerance-contours",
                                    mark_islands=True, colors="black", linewidths=1.6,
                                    linestyles="solid")  # fmt: skip
     handles, curves = draw_rules(ax, n, p, p_scale)
     _axes_setup(ax, n, p, p_scale)
     texts = [figures.format_power(v) for v in levels]
     panel = {"ax": ax, "p": p, "lines": list(zip(log_levels, segments, texts, strict=True)),
-             "rules": curves}  # fmt: skip
+             "rules": curves, "dots": [xy for at in spots for xy in at]}  # fmt: skip
     return filled, lines, handles, panel
 
 
@@ -351,6 +351,8 @@ def _finish(fig, panels):
                 placer.add_obstacle(seg, ("line", float(level)))
         for label, curve, _ in panel.get("rules", ()):
             placer.add_obstacle(curve, ("rule", label))
+        for x, y in panel.get("dots", ()):  # the island dots, 4.5 points across
+            placer.add_box(x, y, 0.09, 0.09)
         ymin, ymax = ax.get_ylim()
         for label, curve, p_anchor in panel.get("rules", ()):
             width, height = contours.text_size(label, RULE_LABEL_SIZE)

@@ -443,6 +443,13 @@ def _check_labels(fig):
             assert min(turn, 180 - turn) < 15, (text.get_text(), angle, direction)  # along it
             assert np.all(box[:, 1] > spike) or np.all(box[:, 1] < spike), text.get_text()
             boxes.append((text.get_text(), box))
+        from matplotlib.path import Path as Outline
+
+        dots = [ax.transData.transform(np.column_stack(line.get_data()).astype(float))
+                for line in ax.get_lines() if line.get_gid() == "tolerance-islands"]  # fmt: skip
+        for name, box in boxes:  # no label hides an island's dot
+            for points in dots:
+                assert not Outline(box).contains_points(points).any(), name
         for i, (name_a, a) in enumerate(boxes):
             for name_b, b in boxes[i + 1 :]:
                 assert not _overlap(a, b), (name_a, name_b)
