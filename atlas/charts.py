@@ -11,12 +11,17 @@ sheets (the footer, the words for methods and metrics) is in :mod:`atlas.figures
 Reading a map
 -------------
 - x: n on a log axis; y: p on a logit axis (or linear).
-- Colour: log10 of the worst-case error in half-decade bands, in the perceptually uniform
-  ``viridis`` colour map, which stays readable with the common colour-vision deficiencies and
-  in grey print.
-- Solid lines: the tolerance contours, labelled with their tolerance.
-- Dashed lines: the boundaries of the rules of thumb np = 5, nq = 5, np = 10, nq = 10 and
-  npq = 9.
+- Colour: log10 of the worst-case error in half-decade bands on one fixed scale,
+  ``FILL_RANGE`` = 10⁻⁹ to 10⁰, for every map (two printed maps compare by colour), in the
+  perceptually uniform ``viridis`` colour map, which stays readable with the common
+  colour-vision deficiencies and in grey print.
+- Solid lines: the tolerance contours, labelled along the line with their tolerance in the
+  notation of the colour bar (10⁻², 5×10⁻³). Specks of line work smaller than
+  ``contours.MIN_CELLS`` grid cells are left out (:func:`atlas.contours.simplify_level`):
+  small safe holes in an unsafe region read as unsafe, and small unsafe islands are marked with
+  a dot instead of a tiny closed line.
+- Broken lines: the boundaries of the rules of thumb np = 5, nq = 5 (dashed), np = 10,
+  nq = 10 (dash-dot) and npq = 9 (dotted), each labelled on the curve.
 - Where the atlas's n axis is denser than a map can show (every integer up to 2000 in the
   default atlas), the n axis is pooled into bins of 1/``N_PER_DECADE`` decade and each bin is
   drawn with the *largest* error of the grid n it holds, at its smallest n: a map never shows a
@@ -38,26 +43,34 @@ N_PER_DECADE = 120  # pooled n columns per decade of n
 ERROR_CMAP = "viridis"  # perceptually uniform, readable with colour-vision deficiency, in grey
 GAIN_CMAP = "PuOr"  # diverging, colour-blind safe (ColorBrewer)
 RESOLUTION = 1e-12  # the exact side's accuracy (REFERENCES.md): smaller errors are not told apart
+#: log10 of the errors the colour scale spans, the same on every map: 10^-9 to 10^0. Smaller
+#: errors take the colour of the scale's pointed lower end.
+FILL_RANGE = (-9.0, 0.0)
+#: log10 of the largest ratio the gain map's colour scale spans, each way: 10^6.
+GAIN_REACH = 6.0
 TIE_COLOUR = "#BBBBBB"  # neutral grey: several methods below RESOLUTION
 # Okabe & Ito (2008), "Color Universal Design": eight colours told apart under the common
 # colour-vision deficiencies; black is kept for the overlays.
 OKABE_ITO = ("#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7",
              "#000000")  # fmt: skip
 # The rule-of-thumb boundaries: (label, kind, constant, dashes); kind "np": n p = c, "nq": n q = c,
-# "npq": n p q = c. Dash patterns tell the constants apart without colour.
+# "npq": n p q = c. The three line styles (dashed, dash-dot, dotted) tell the constants apart in
+# black-and-white print; each curve is also labelled where it is drawn.
 RULE_CURVES = (
-    ("np = 5", "np", 5.0, (0, (5, 3))),
-    ("nq = 5", "nq", 5.0, (0, (5, 3))),
-    ("np = 10", "np", 10.0, (0, (11, 4))),
-    ("nq = 10", "nq", 10.0, (0, (11, 4))),
-    ("npq = 9", "npq", 9.0, (0, (2, 2))),
+    ("np = 5", "np", 5.0, (0, (6, 3))),
+    ("nq = 5", "nq", 5.0, (0, (6, 3))),
+    ("np = 10", "np", 10.0, (0, (9, 2.5, 1.5, 2.5))),
+    ("nq = 10", "nq", 10.0, (0, (9, 2.5, 1.5, 2.5))),
+    ("npq = 9", "npq", 9.0, (0, (1.2, 1.8))),
 )
-# Where each rule's label sits, as the p of its anchor on the curve, per p scale.
+# The preferred height of each rule's label on its curve, as a p, per p scale.
 _RULE_ANCHORS = {
-    "logit": {"np = 5": 0.004, "nq = 5": 0.996, "np = 10": 0.04, "nq = 10": 0.96,
-              "npq = 9": 0.62},
+    "logit": {"np = 5": 0.002, "nq = 5": 0.998, "np = 10": 0.03, "nq = 10": 0.97,
+              "npq = 9": 0.75},
     "linear": {"np = 5": 0.06, "nq = 5": 0.94, "np = 10": 0.2, "nq = 10": 0.8, "npq = 9": 0.6},
 }  # fmt: skip
+LABEL_SIZE = 9  # points: the labels of the tolerance and ratio lines
+RULE_LABEL_SIZE = 8.5  # points: the labels of the rule curves
 
 
 def _check_levels(levels):
@@ -120,9 +133,12 @@ def _pooled(ds, method, metric):
 
 
 def _titles(fig, title, subtitle):
-    fig.text(0.012, 0.985, title, ha="left", va="top", fontsize=15, weight="bold", gid="title")
-    fig.text(0.012, 0.945, subtitle, ha="left", va="top", fontsize=9.5, color="#222222",
-             linespacing=1.4, gid="subtitle")  # fmt: skip
+    """The title 0.11 in and the subtitle 0.4 in below the figure's top edge."""
+    height = fig.get_figheight()
+    fig.text(0.012, 1 - 0.11 / height, title, ha="left", va="top", fontsize=15, weight="bold",
+             gid="title")  # fmt: skip
+    fig.text(0.012, 1 - 0.4 / height, subtitle, ha="left", va="top", fontsize=9.5,
+             color="#222222", linespacing=1.4, gid="subtitle")  # fmt: skip
 
 
 def _figure(width, height, *, top, bottom):
@@ -162,7 +178,7 @@ def _axes_setup(ax, n, p, p_scale):
                  if p[0] <= t <= p[-1]]  # fmt: skip
         ax.yaxis.set_major_locator(mpl.ticker.FixedLocator(ticks))
         ax.yaxis.set_minor_locator(mpl.ticker.NullLocator())
-        ax.yaxis.set_major_formatter(mpl.ticker.FuncFormatter(lambda v, _: f"{v:g}"))
+        ax.yaxis.set_major_formatter(mpl.ticker.FuncFormatter(lambda v, _: f"{v:.10f}".rstrip("0")))
     else:
         ax.yaxis.set_major_locator(mpl.ticker.MultipleLocator(0.1))
         ax.yaxis.set_major_formatter(mpl.ticker.FuncFormatter(lambda v, _: f"{v:.1f}"))
@@ -173,12 +189,13 @@ def _axes_setup(ax, n, p, p_scale):
 
 
 def _n_tick(value, _pos):
+    """Every n tick as a power of ten, 10⁰ to 10⁸: one notation on the axis."""
     if value <= 0:
         return ""
     exponent = round(math.log10(value))
     if abs(value - 10.0**exponent) > 1e-9 * value:
         return ""
-    return f"{int(round(value)):,}" if exponent <= 4 else f"$10^{{{exponent}}}$"
+    return figures.power_of_ten(exponent)
 
 
 def _rule_points(kind, constant, p):
@@ -193,43 +210,38 @@ def _logit(x):
     return math.log(x / (1.0 - x))
 
 
-def _rule_anchor(kind, constant, p_anchor):
-    q_anchor = 1.0 - p_anchor
-    n_anchor = constant / {"np": p_anchor, "nq": q_anchor, "npq": p_anchor * q_anchor}[kind]
-    return n_anchor, p_anchor
-
-
 def draw_rules(ax, n, p, p_scale):
-    """Draw the dashed rule-of-thumb boundaries with their labels on ``ax``.
+    """Draw the rule-of-thumb boundaries on ``ax`` (their labels come with :func:`_finish`).
 
     Returns
     -------
-    list of matplotlib.lines.Line2D
-        Legend handles, one per dash pattern (``"np = 5, nq = 5"``, ...).
+    handles : list of matplotlib.lines.Line2D
+        Legend handles, one per line style (``"np = 5, nq = 5"``, ...).
+    curves : list of (str, numpy.ndarray, float)
+        Each drawn rule's label, its (n, p) points and the p its label prefers.
     """
     mpl = figures.mpl()
     styles = {}
+    curves = []
     for label, kind, constant, dashes in RULE_CURVES:
         xs, ys = _rule_points(kind, constant, p)
         keep = (xs >= n[0]) & (xs <= n[-1])
         if keep.sum() < 2:
             continue
-        ax.plot(xs[keep], ys[keep], color="black", linewidth=1.1, linestyle=dashes,
-                path_effects=_halo(2.6), label=label, gid=f"rule:{label}", zorder=4)  # fmt: skip
-        styles.setdefault(dashes, []).append(label)
-        x0, y0 = _rule_anchor(kind, constant, _RULE_ANCHORS[p_scale][label])
-        if n[0] <= x0 <= n[-1] and p[0] <= y0 <= p[-1]:
-            ax.annotate(label, (x0, y0), xytext=(5, 0), textcoords="offset points", ha="left",
-                        va="center", fontsize=8.5, style="italic", zorder=6,
-                        gid=f"rule-label:{label}", annotation_clip=True,
-                        bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none",
-                              "alpha": 0.85})  # fmt: skip
-    return [
+        width = 1.5 if kind == "npq" else 1.2
+        ax.plot(xs[keep], ys[keep], color="black", linewidth=width, linestyle=dashes,
+                path_effects=_halo(width + 1.6), label=label, gid=f"rule:{label}",
+                zorder=4)  # fmt: skip
+        styles.setdefault((dashes, width), []).append(label)
+        curves.append((label, np.column_stack([xs[keep], ys[keep]]),
+                       _RULE_ANCHORS[p_scale][label]))  # fmt: skip
+    handles = [
         mpl.lines.Line2D(
-            [], [], color="black", linewidth=1.1, linestyle=dashes, label=", ".join(labels)
-        )
-        for dashes, labels in styles.items()
+            [], [], color="black", linewidth=width, linestyle=dashes, label=", ".join(labels)
+        )  # fmt: skip
+        for (dashes, width), labels in styles.items()
     ]
+    return handles, curves
 
 
 _LEGEND_STYLE = {"fontsize": 8.5, "frameon": False, "handlelength": 4.0, "columnspacing": 1.6,
@@ -249,81 +261,143 @@ def _log_error(values):
         return np.log10(np.maximum(values, 1e-300))
 
 
-def _fill_levels(*arrays):
-    """Half-decade fill levels from the 1st percentile of the errors of ``arrays`` to their
-    maximum; smaller errors take the lowest colour (the colour bar's pointed end)."""
-    finite = np.concatenate([a[np.isfinite(a) & (a > 0)].ravel() for a in arrays])
-    if finite.size == 0:
-        return np.array([-3.0, -2.5, -2.0]), "neither"
-    floor = np.percentile(np.log10(finite), 1.0)
-    lo = max(math.floor(2 * floor) / 2, -12.0)
-    hi = min(math.ceil(2 * math.log10(finite.max())) / 2, 0.0)
-    if hi <= lo:
-        hi = lo + 0.5
-    extend = "min" if math.log10(finite.min()) < lo else "neither"
-    return np.arange(lo, hi + 0.25, 0.5), extend
+def fill_levels():
+    """The colour bands of every error map: half decades over ``FILL_RANGE`` (log10)."""
+    lo, hi = FILL_RANGE
+    return np.arange(lo, hi + 0.25, 0.5)
 
 
-def _label_positions(n, p, field, level, p_scale):
-    """Where to label one contour level: where it last crosses p = 0.15 and 0.85 (0.25 and
-    0.75 on a linear axis) along n, so that labels sit apart from the rules' labels and from
-    one another (one contour per n)."""
-    targets = (0.15, 0.85) if p_scale == "logit" else (0.25, 0.75)
-    spots = []
-    for target in targets:
-        j = int(np.argmin(np.abs(p - target)))
-        with np.errstate(invalid="ignore"):
-            side = np.sign(field[:, j] - level)
-        crossings = np.flatnonzero(side[:-1] * side[1:] < 0)
-        if crossings.size:
-            i = crossings[-1]
-            spots.append((float(np.sqrt(n[i] * n[i + 1])), float(p[j])))
-    return spots
+def _line_set(ax, n, p, z, log_levels, *, gid, mark_islands, **style):
+    """Contour lines of ``z`` (shape (len(n), len(p))) at ``log_levels``, each level drawn from
+    its own simplified field (:func:`atlas.contours.simplify_level`).
+
+    Returns the ContourSet and, per level, the (n, p) points of the islands left out of the
+    line work (marked with dots when ``mark_islands``).
+    """
+    import contourpy
+    from matplotlib.contour import ContourSet
+
+    from atlas import contours
+
+    segments, spots = [], []
+    x = np.asarray(n, dtype=np.float64)
+    for level in log_levels:
+        field, islands = contours.simplify_level(z, level)
+        gen = contourpy.contour_generator(x, p, np.ma.masked_invalid(field.T),
+                                          line_type="Separate")  # fmt: skip
+        segments.append([np.asarray(s) for s in gen.lines(level)])
+        at = []
+        for cells in islands:
+            i, j = cells[np.argmax(z[cells[:, 0], cells[:, 1]])]  # the island's worst cell
+            at.append((x[i], p[j]))
+        spots.append(at)
+    lines = ContourSet(ax, list(log_levels), segments, zorder=5, **style)
+    lines.set_gid(gid)
+    lines.set(path_effects=_halo(3.5))
+    dots = [xy for at in spots for xy in at]
+    if mark_islands and dots:
+        xs, ys = zip(*dots, strict=True)
+        ax.plot(xs, ys, linestyle="none", marker="o", markersize=4.5, markerfacecolor="black",
+                markeredgecolor="white", markeredgewidth=1.0, zorder=6,
+                gid="tolerance-islands")  # fmt: skip
+    return lines, segments, spots
 
 
-def _label_contours(ax, lines, n, p, field, labels, p_scale):
-    """Label each level of ``lines`` (keys of ``labels``, in the units of ``field``) at the
-    spots of `_label_positions`, or where matplotlib chooses when it has none there."""
-    drawn = [lv for lv in labels if np.any(np.isclose(lines.levels, lv))]
-    placed = {lv: _label_positions(n, p, field, lv, p_scale) for lv in drawn}
-    manual = [xy for spots in placed.values() for xy in spots]
-    texts = []
-    if manual:
-        texts += ax.clabel(lines, levels=[lv for lv in drawn if placed[lv]], fmt=labels,
-                           inline=True, fontsize=9, inline_spacing=6, manual=manual)  # fmt: skip
-    rest = [lv for lv in drawn if not placed[lv]]
-    if rest:
-        texts += ax.clabel(lines, levels=rest, fmt=labels, inline=True, fontsize=9)
-    for text in texts:
-        text.set(path_effects=_halo(2.5), weight="bold")
-    return texts
-
-
-def _draw_error_panel(ax, n, p, values, *, levels, fill, extend, p_scale, cmap=ERROR_CMAP):
-    """Filled log10 contours, tolerance contours with labels, and the rules."""
-    z = _log_error(values).T  # contourf wants (len(p), len(n))
-    filled = ax.contourf(n, p, z, levels=fill, cmap=cmap, extend=extend)
+def _draw_error_panel(ax, n, p, values, *, levels, p_scale, cmap=ERROR_CMAP):
+    """Filled log10 bands on the fixed scale, the tolerance contours and the rules; the labels
+    are placed by :func:`_finish` once the figure's layout is known."""
+    z = _log_error(values)  # (len(n), len(p))
+    shown = np.minimum(z, FILL_RANGE[1])  # errors above 1 (none in practice) take the top band
+    filled = ax.contourf(n, p, shown.T, levels=fill_levels(), cmap=cmap, extend="min")
     filled.set_rasterized(True)  # a vector file keeps its text and lines, the fill as an image
     filled.set_gid("error-fill")
     log_levels = np.log10(np.asarray(levels))
-    lines = ax.contour(n, p, z, levels=log_levels, colors="black", linewidths=1.6,
-                       linestyles="solid", zorder=5)  # fmt: skip
-    lines.set_gid("tolerance-contours")
-    lines.set(path_effects=_halo(3.5))
-    labels = {lv: figures.format_level(v) for lv, v in zip(log_levels, levels, strict=True)}
-    _label_contours(ax, lines, n, p, z.T, labels, p_scale)
-    handles = draw_rules(ax, n, p, p_scale)
+    lines, segments, spots = _line_set(ax, n, p, z, log_levels, gid="tolerance-contours",
+                                   mark_islands=True, colors="black", linewidths=1.6,
+                                   linestyles="solid")  # fmt: skip
+    handles, curves = draw_rules(ax, n, p, p_scale)
     _axes_setup(ax, n, p, p_scale)
-    return filled, lines, handles
+    texts = [figures.format_power(v) for v in levels]
+    panel = {"ax": ax, "p": p, "lines": list(zip(log_levels, segments, texts, strict=True)),
+             "rules": curves, "dots": [xy for at in spots for xy in at]}  # fmt: skip
+    return filled, lines, handles, panel
+
+
+def _halves(curve, p_mid=0.5):
+    """The parts of a curve below and above p = 1/2."""
+    from atlas.contours import runs
+
+    return runs(curve, curve[:, 1] < p_mid), runs(curve, curve[:, 1] > p_mid)
+
+
+def _finish(fig, panels):
+    """Place the labels of the rule curves and of the contour lines of each panel.
+
+    Called once the figure is complete: the layout is computed first, so that the labels'
+    room on the page is known. Rule labels go first, near their preferred p; then each
+    contour level gets a label in each half of the p axis (below and above 1/2), on its
+    longest stretch there that is straight enough, nearest to the heights 1/4 and 3/4 of the
+    axes, never on another label, another line, the edges or the p = 1/2 line.
+    """
+    from atlas import contours
+
+    fig.draw_without_rendering()
+    for panel in panels:
+        ax, p = panel["ax"], panel["p"]
+        spike = 0.5 if p[0] < 0.5 < p[-1] else None
+        placer = contours.LabelPlacer(ax, spike=spike)
+        for level, segments, _text in panel.get("lines", ()):
+            for seg in segments:
+                placer.add_obstacle(seg, ("line", float(level)))
+        for label, curve, _ in panel.get("rules", ()):
+            placer.add_obstacle(curve, ("rule", label))
+        for x, y in panel.get("dots", ()):  # the island dots, 4.5 points across
+            placer.add_box(x, y, 0.09, 0.09)
+        ymin, ymax = ax.get_ylim()
+        for label, curve, p_anchor in panel.get("rules", ()):
+            width, height = contours.text_size(label, RULE_LABEL_SIZE)
+            spot = placer.place([curve], width, height, target_y=_fraction_y(ax, p_anchor),
+                                owner=("rule", label))  # fmt: skip
+            if spot:
+                contours.add_label(ax, label, *spot, fontsize=RULE_LABEL_SIZE, style="italic",
+                                   zorder=7, gid=f"rule-label:{label}",
+                                   bbox=_LABEL_BOX)  # fmt: skip
+        for level, segments, text in panel.get("lines", ()):
+            width, height = contours.text_size(text, LABEL_SIZE)
+            halves = [[], []]
+            for seg in segments:
+                below, above = _halves(seg)
+                halves[0] += below
+                halves[1] += above
+            for target, curves in ((0.25, halves[0]), (0.75, halves[1])):
+                if not curves:
+                    continue
+                spot = placer.place(curves, width, height, target_y=target,
+                                    owner=("line", float(level)))  # fmt: skip
+                if spot:
+                    contours.add_label(ax, text, *spot, fontsize=LABEL_SIZE, weight="bold",
+                                       zorder=7, gid="contour-label", bbox=_LABEL_BOX)  # fmt: skip
+
+
+_LABEL_BOX = {"boxstyle": "round,pad=0.12", "fc": "white", "ec": "none", "alpha": 0.9}
+
+
+def _fraction_y(ax, p_value):
+    """The height of p on the axes, as a fraction of the axes."""
+    y = ax.transAxes.inverted().transform(ax.transData.transform((ax.get_xlim()[0], p_value)))
+    return float(y[1])
 
 
 def _error_colorbar(fig, filled, lines, ax, metric):
     mpl = figures.mpl()
     cbar = fig.colorbar(filled, ax=ax, pad=0.015, fraction=0.05, aspect=30)
-    cbar.set_label(f"worst-case {metric} error (colour: log10, half-decade bands)", fontsize=10)
-    lo, hi = filled.levels[0], filled.levels[-1]
+    lo, hi = FILL_RANGE
+    cbar.set_label(f"worst-case {metric} error (fixed scale {figures.power_of_ten(lo)} to "
+                   f"{figures.power_of_ten(hi)})", fontsize=10)  # fmt: skip
     cbar.set_ticks(np.arange(math.ceil(lo), math.floor(hi) + 1))
-    cbar.ax.yaxis.set_major_formatter(mpl.ticker.FuncFormatter(lambda v, _: f"$10^{{{v:.0f}}}$"))
+    cbar.ax.yaxis.set_major_formatter(
+        mpl.ticker.FuncFormatter(lambda v, _: figures.power_of_ten(round(v)))
+    )
     cbar.ax.tick_params(labelsize=9)
     if lines is not None and len(lines.levels):
         cbar.add_lines(lines)
@@ -331,10 +405,17 @@ def _error_colorbar(fig, filled, lines, ax, metric):
 
 
 _MAP_NOTE = (
-    "Solid lines: tolerance contours. Dashed: rule-of-thumb boundaries. Each drawn column holds "
-    "the largest error of the grid n it stands for (bins of 1/{per} decade), so a cell never "
-    "looks safer than the grid says."
+    "Solid lines: tolerance contours; dots: spots of fewer than {cells} grid cells above a "
+    "tolerance, too small for a line. Broken lines: rules of thumb (np, nq = 5 dashed; np, "
+    "nq = 10 dash-dot; npq = 9 dotted). Each drawn column holds the largest error of the grid n "
+    "it stands for (bins of 1/{per} decade), so a cell never looks safer than the grid says."
 )
+
+
+def _map_note():
+    from atlas.contours import MIN_CELLS
+
+    return _MAP_NOTE.format(cells=MIN_CELLS, per=N_PER_DECADE)
 
 
 def error_map(atlas, *, method, metric="interval", levels=LEVELS, p_scale="logit",
@@ -359,9 +440,12 @@ def error_map(atlas, *, method, metric="interval", levels=LEVELS, p_scale="logit
     Returns
     -------
     matplotlib.figure.Figure
-        With a title and subtitle naming the method and metric, a colour bar, the tolerance
-        contours (gid ``"tolerance-contours"``), the rule-of-thumb curves (lines labelled
-        ``"np = 5"`` etc.) and a footer with the provenance and the caution.
+        With a title and subtitle naming the method and metric, a colour bar on the fixed scale
+        ``FILL_RANGE`` (10⁻⁹ to 10⁰, the same for every map), the tolerance contours (gid
+        ``"tolerance-contours"``) labelled along the lines (gid ``"contour-label"``), dots for
+        unsafe spots too small for a line (gid ``"tolerance-islands"``), the rule-of-thumb
+        curves (lines labelled ``"np = 5"`` etc., with labels on the curves) and a footer with
+        the provenance and the caution.
 
     Raises
     ------
@@ -381,35 +465,40 @@ def error_map(atlas, *, method, metric="interval", levels=LEVELS, p_scale="logit
     levels = _check_levels(levels)
     figures.check_choice(p_scale, "p_scale", P_SCALES)
     n, p, values = _pooled(ds, method, metric)
-    fill, extend = _fill_levels(values)
     fig = _figure(width, height, top=0.895, bottom=0.095)
     ax = fig.add_subplot()
-    filled, lines, handles = _draw_error_panel(ax, n, p, values, levels=levels, fill=fill,
-                                               extend=extend, p_scale=p_scale)  # fmt: skip
+    filled, lines, handles, panel = _draw_error_panel(ax, n, p, values, levels=levels,
+                                                      p_scale=p_scale)  # fmt: skip
     _rules_legend_above(ax, handles)
     _error_colorbar(fig, filled, lines, ax, metric)
     _titles(fig, f"Worst-case error of {METRIC_LABELS[metric]}: {method}",
             _subtitle(method, metric))  # fmt: skip
-    figures.footer(fig, ds, _MAP_NOTE.format(per=N_PER_DECADE))
+    figures.footer(fig, ds, _map_note())
+    _finish(fig, [panel])
     return fig
 
 
 def compare_map(atlas, *, method, method2, metric="interval", levels=LEVELS, p_scale="logit",
-                width=15.0, height=7.4):  # fmt: skip
-    """Two methods' error maps side by side on one colour scale.
+                stacked=False, width=None, height=None):  # fmt: skip
+    """Two methods' error maps on one colour scale, side by side or one above the other.
 
     Parameters
     ----------
     atlas : Atlas or xarray.Dataset
     method, method2 : str
-        Two different methods the atlas holds: left and right panel.
-    metric, levels, p_scale, width, height
+        Two different methods the atlas holds: left and right (or upper and lower) panel.
+    metric, levels, p_scale
         As for :func:`error_map`.
+    stacked : bool, optional
+        One panel above the other (for a narrow page such as a web page) instead of side by
+        side; default False.
+    width, height : float, optional
+        Figure size in inches; default 15 x 7.4 side by side, 10 x 12.5 stacked.
 
     Returns
     -------
     matplotlib.figure.Figure
-        Two axes sharing one colour bar.
+        Two axes sharing one colour bar on the fixed scale of :func:`error_map`.
 
     Raises
     ------
@@ -423,34 +512,35 @@ def compare_map(atlas, *, method, method2, metric="interval", levels=LEVELS, p_s
     check_metric(metric)
     levels = _check_levels(levels)
     figures.check_choice(p_scale, "p_scale", P_SCALES)
-    n, p, left = _pooled(ds, method, metric)
-    _, _, right = _pooled(ds, method2, metric)
-    fill, extend = _fill_levels(left, right)
-    fig = _figure(width, height, top=0.895, bottom=0.095)
-    axes = fig.subplots(1, 2, sharey=True)
-    drawn = []
-    for ax, name, values in ((axes[0], method, left), (axes[1], method2, right)):
-        drawn.append(_draw_error_panel(ax, n, p, values, levels=levels, fill=fill,
-                                       extend=extend, p_scale=p_scale))  # fmt: skip
+    if width is None:
+        width = 10.0 if stacked else 15.0
+    if height is None:
+        height = 12.5 if stacked else 7.4
+    n, p, first = _pooled(ds, method, metric)
+    _, _, second = _pooled(ds, method2, metric)
+    fig = _figure(width, height, top=1.0 - 0.98 / height, bottom=0.7 / height)
+    axes = fig.subplots(2, 1, sharex=True) if stacked else fig.subplots(1, 2, sharey=True)
+    drawn, panels = [], []
+    for ax, name, values in ((axes[0], method, first), (axes[1], method2, second)):
+        filled, lines, handles, panel = _draw_error_panel(ax, n, p, values, levels=levels,
+                                                          p_scale=p_scale)  # fmt: skip
+        drawn.append((filled, lines, handles))
+        panels.append(panel)
         ax.set_title(_method_text(name), fontsize=11, loc="left")
-    axes[1].set_ylabel("")
+    if stacked:
+        axes[0].set_xlabel("")
+    else:
+        axes[1].set_ylabel("")
     _error_colorbar(fig, drawn[0][0], drawn[0][1], list(axes), metric)
-    if drawn[0][2]:  # in the title band, at the right: outside legends ignore the layout rect
-        box = fig.legend(
-            handles=drawn[0][2],
-            loc="upper right",
-            bbox_to_anchor=(0.995, 0.99),
-            ncols=len(drawn[0][2]),
-            title="rules of thumb",
-            **_LEGEND_STYLE,
-        )
-        box.set_gid("rules-legend")
+    _rules_legend_above(axes[0] if stacked else axes[1], drawn[0][2])
+    where = ("Upper", "lower") if stacked else ("Left", "right")
     _titles(fig, f"Worst-case error of {METRIC_LABELS[metric]}: {method} and {method2}",
-            f"Left G(k) = {cube.METHOD_DESCRIPTIONS.get(method, method)}; right G(k) = "
-            f"{cube.METHOD_DESCRIPTIONS.get(method2, method2)}\n"
+            f"{where[0]} G(k) = {cube.METHOD_DESCRIPTIONS.get(method, method)}\n{where[1]} "
+            f"G(k) = {cube.METHOD_DESCRIPTIONS.get(method2, method2)}\n"
             f"Metric {metric}: {METRIC_FORMULAS[metric]}, X ~ Bin(n, p); one colour scale for "
             "both panels")  # fmt: skip
-    figures.footer(fig, ds, _MAP_NOTE.format(per=N_PER_DECADE))
+    figures.footer(fig, ds, _map_note())
+    _finish(fig, panels)
     return fig
 
 
@@ -459,25 +549,49 @@ def _check_distinct(method, method2):
         raise ValueError(f"`method2` must differ from `method`; got {method2!r} for both.")
 
 
+def gain_order(method, method2):
+    """The two methods of a gain map in a fixed order, whichever way they are given.
+
+    The method listed first in :data:`atlas.METHODS` (then alphabetically, for methods it does
+    not list) comes first; the gain map colours the cells where the first one errs less
+    orange and those where the second errs less purple.
+
+    Examples
+    --------
+    >>> gain_order("edgeworth_cc", "normal_cc")
+    ('normal_cc', 'edgeworth_cc')
+    """
+    from atlas.approximations import METHODS
+
+    def rank(m):
+        return (list(METHODS).index(m), m) if m in METHODS else (len(METHODS), m)
+
+    first, second = sorted((method, method2), key=rank)
+    return first, second
+
+
 def gain_map(atlas, *, method, method2="normal_cc", metric="interval", p_scale="logit",
              width=10.0, height=7.4):  # fmt: skip
-    """How many times smaller the error of ``method`` is than that of ``method2``.
+    """Which of two methods errs less at each cell, and by how many times.
 
     Parameters
     ----------
     atlas : Atlas or xarray.Dataset
-    method : str
-        The method judged.
-    method2 : str, optional
-        The method it is judged against; default ``"normal_cc"``.
+    method, method2 : str
+        Two different methods the atlas holds (default ``method2``: ``"normal_cc"``). The
+        chart is the same whichever is given first, apart from the order of the names in the
+        title: each method keeps its colour (see :func:`gain_order`).
     metric, p_scale, width, height
         As for :func:`error_map`.
 
     Returns
     -------
     matplotlib.figure.Figure
-        Colour: log10 of the ratio, on a diverging colour-blind-safe map centred on 1; contour
-        lines at the ratios 1/100, 1/10, 1, 10, 100 (those that occur) labelled ``"1×"`` etc.
+        Colour: log10 of the ratio of the two errors on a fixed diverging colour-blind-safe
+        scale (``GAIN_REACH``: up to 1,000,000 times each way), orange where the first method
+        of :func:`gain_order` errs less and purple where the second does; contour lines at the
+        ratios 1, 10 and 100 each way, labelled positively (``"edgeworth_cc better by 10×"``,
+        ``"equal"``).
 
     Raises
     ------
@@ -486,8 +600,9 @@ def gain_map(atlas, *, method, method2="normal_cc", metric="interval", p_scale="
 
     Notes
     -----
-    gain(n, p) = E2(n, p) / E1(n, p), with E1 the error of ``method`` and E2 that of
-    ``method2`` (each the worst over a pooled n bin); errors below ``RESOLUTION`` = 1e-12, the
+    With (A, B) = ``gain_order(method, method2)`` and E the worst-case error of a method over a
+    pooled n bin, the colour is log10(E_A / E_B): B is better by E_A / E_B times where it is
+    positive, A by E_B / E_A where it is negative. Errors below ``RESOLUTION`` = 1e-12, the
     accuracy of the exact side, count as 1e-12.
     """
     mpl = figures.mpl()
@@ -497,54 +612,75 @@ def gain_map(atlas, *, method, method2="normal_cc", metric="interval", p_scale="
     _check_distinct(method, method2)
     check_metric(metric)
     figures.check_choice(p_scale, "p_scale", P_SCALES)
-    n, p, mine = _pooled(ds, method, metric)
-    _, _, theirs = _pooled(ds, method2, metric)
+    first, second = gain_order(method, method2)
+    n, p, e_first = _pooled(ds, first, metric)
+    _, _, e_second = _pooled(ds, second, metric)
     with np.errstate(invalid="ignore"):
-        ratio = np.log10(np.maximum(theirs, RESOLUTION) / np.maximum(mine, RESOLUTION)).T
-    finite = ratio[np.isfinite(ratio)]
-    reach = float(np.abs(finite).max()) if finite.size else 1.0
-    reach = min(max(math.ceil(reach * 2) / 2, 0.5), 6.0)
-    step = 0.25 if reach <= 2 else 0.5
-    fill = np.arange(-reach, reach + step / 2, step)
+        ratio = np.log10(np.maximum(e_first, RESOLUTION) / np.maximum(e_second, RESOLUTION))
+    fill = gain_levels()
     fig = _figure(width, height, top=0.895, bottom=0.095)
     ax = fig.add_subplot()
-    filled = ax.contourf(n, p, ratio, levels=fill, cmap=GAIN_CMAP, extend="both")
+    shown = np.clip(ratio, -GAIN_REACH - 0.25, GAIN_REACH + 0.25)
+    filled = ax.contourf(n, p, shown.T, levels=fill, cmap=GAIN_CMAP, extend="both")
     filled.set_rasterized(True)
     filled.set_gid("gain-fill")
-    marks = [v for v in (-2.0, -1.0, 0.0, 1.0, 2.0) if -reach <= v <= reach]
-    lines = ax.contour(n, p, ratio, levels=marks, colors="black", linewidths=1.4,
-                       linestyles="solid", zorder=5)  # fmt: skip
-    lines.set_gid("gain-contours")
-    lines.set(path_effects=_halo(3.5))
-    _label_contours(ax, lines, n, p, ratio.T, {v: _factor(v) for v in marks}, p_scale)
-    _rules_legend_above(ax, draw_rules(ax, n, p, p_scale))
+    marks = np.array([-2.0, -1.0, 0.0, 1.0, 2.0])
+    lines, segments, _ = _line_set(ax, n, p, ratio, marks, gid="gain-contours",
+                                   mark_islands=False, colors="black", linewidths=1.4,
+                                   linestyles="solid")  # fmt: skip
+    handles, curves = draw_rules(ax, n, p, p_scale)
+    _rules_legend_above(ax, handles)
     _axes_setup(ax, n, p, p_scale)
     cbar = fig.colorbar(filled, ax=ax, pad=0.015, fraction=0.05, aspect=30)
-    cbar.set_label(f"{method2} error ÷ {method} error (log scale)", fontsize=10)
-    cbar.set_ticks([v for v in np.arange(-math.floor(reach), math.floor(reach) + 1)])
+    cbar.set_label(f"how many times smaller the better method's {metric} error is",
+                   fontsize=10)  # fmt: skip
+    cbar.set_ticks(np.arange(-GAIN_REACH, GAIN_REACH + 1))
     cbar.ax.yaxis.set_major_formatter(mpl.ticker.FuncFormatter(lambda v, _: _factor(v)))
     cbar.ax.tick_params(labelsize=9)
-    if len(lines.levels):
-        cbar.add_lines(lines)
-    _titles(fig, f"How many times smaller the error of {method} is than that of {method2}",
-            f"Ratio of worst-case errors of {METRIC_LABELS[metric]} ({metric} metric: "
-            f"{METRIC_FORMULAS[metric]})\nPurple: {method} errs less; orange: {method2} errs "
-            f"less; line 1×: equal")  # fmt: skip
-    figures.footer(fig, ds, "Dashed: rule-of-thumb boundaries. Each drawn column compares the "
-                   f"largest errors of the grid n it stands for (bins of 1/{N_PER_DECADE} "
-                   f"decade); errors below {RESOLUTION:g} count as {RESOLUTION:g}.")  # fmt: skip
+    for y, name, va in ((1.0, second, "bottom"), (0.0, first, "top")):
+        cbar.ax.text(0.5, y + (0.045 if y else -0.045), f"{name}\nbetter", ha="center", va=va,
+                     fontsize=8.5, weight="bold", transform=cbar.ax.transAxes,
+                     gid=f"gain-end:{name}")  # fmt: skip
+    cbar.add_lines(lines)
+    _titles(fig, f"{method} or {method2}: which is better, and by how many times",
+            f"Worst-case error of {METRIC_LABELS[metric]} ({metric} metric: "
+            f"{METRIC_FORMULAS[metric]})\nPurple: {second} better; orange: {first} better; "
+            "the number: how many times smaller the better method's error is")  # fmt: skip
+    figures.footer(fig, ds, "Broken lines: rules of thumb (np, nq = 5 dashed; np, nq = 10 "
+                   "dash-dot; npq = 9 dotted). Each drawn column compares the largest errors of "
+                   f"the grid n it stands for (bins of 1/{N_PER_DECADE} decade); errors below "
+                   f"{RESOLUTION:g} count as {RESOLUTION:g}. Specks of line work under a few "
+                   "grid cells are left to the colour.")  # fmt: skip
+    texts = [gain_text(v, first, second) for v in marks]
+    _finish(fig, [{"ax": ax, "p": p, "rules": curves,
+                   "lines": list(zip(marks, segments, texts, strict=True))}])  # fmt: skip
     return fig
 
 
-def _factor(log_ratio):
-    """A ratio for people: 1×, 10×, 1/10×."""
-    value = 10.0**log_ratio
+def gain_levels():
+    """The colour bands of every gain map: quarter decades over +-``GAIN_REACH`` (log10)."""
+    return np.arange(-GAIN_REACH, GAIN_REACH + 0.125, 0.25)
+
+
+def gain_text(log_ratio, first, second):
+    """The label of a ratio line: ``"equal"`` or which method is better and by how much.
+
+    Examples
+    --------
+    >>> gain_text(1.0, "normal_cc", "edgeworth_cc"), gain_text(-2.0, "normal_cc", "edgeworth_cc")
+    ('edgeworth_cc better by 10×', 'normal_cc better by 100×')
+    """
     if abs(log_ratio) < 1e-9:
-        return "1×"
-    if value >= 1:
-        return f"{value:,.0f}×" if value < 1e4 else f"$10^{{{log_ratio:.0f}}}$×"
-    inverse = 1 / value
-    return f"1/{inverse:,.0f}×" if inverse < 1e4 else f"$10^{{{log_ratio:.0f}}}$×"
+        return "equal"
+    return f"{second if log_ratio > 0 else first} better by {_factor(log_ratio)}"
+
+
+def _factor(log_ratio):
+    """A ratio for people, always more than 1: 10×, 1,000×, 1,000,000× (the better method's
+    error is that many times smaller), or "equal"."""
+    if abs(log_ratio) < 1e-9:
+        return "equal"
+    return f"{10.0 ** abs(log_ratio):,.0f}×"
 
 
 def method_colours(methods):
@@ -611,7 +747,8 @@ def best_method_map(atlas, *, metric="interval", methods=None, p_scale="logit", 
     mesh = ax.pcolormesh(n, p, winner, cmap=cmap, norm=norm, shading="nearest")
     mesh.set_rasterized(True)
     mesh.set_gid("best-method")
-    _rules_legend_above(ax, draw_rules(ax, n, p, p_scale))
+    handles, curves = draw_rules(ax, n, p, p_scale)
+    _rules_legend_above(ax, handles)
     _axes_setup(ax, n, p, p_scale)
     present = [m for i, m in enumerate(methods) if (winner == i).any()]
     handles = [mpl.patches.Patch(facecolor=colours[m], edgecolor="black", linewidth=0.5,
@@ -635,11 +772,13 @@ def best_method_map(atlas, *, metric="interval", methods=None, p_scale="logit", 
     figures.footer(
         fig,
         ds,
-        "Dashed: rule-of-thumb boundaries. Each drawn column goes to the method "
+        "Broken lines: rules of thumb (np, nq = 5 dashed; np, nq = 10 dash-dot; npq = 9 "
+        "dotted). Each drawn column goes to the method "
         "whose largest error over the grid n it stands for (bins of 1/"
         f"{N_PER_DECADE} decade) is smallest; grey: two or more methods below "
         f"{RESOLUTION:g}, the accuracy of the exact side, which cannot be ranked.",
     )
+    _finish(fig, [{"ax": ax, "p": p, "rules": curves}])
     return fig
 
 
@@ -647,7 +786,7 @@ def chart(atlas, *, kind="map", method="normal_cc", method2=None, metric="interv
           p_scale="logit"):  # fmt: skip
     """Draw one chart by kind: ``"map"``, ``"compare"``, ``"gain"`` or ``"best"``.
 
-    ``method2`` is the second method of ``compare`` and the reference of ``gain`` (default
+    ``method2`` is the second method of ``compare`` and of ``gain`` (default
     ``"normal_cc"``, or ``"edgeworth_cc"`` when ``method`` is ``"normal_cc"``); it is refused for
     ``map`` and ``best``.
     """

@@ -592,12 +592,15 @@ def _cmd_sheet(args):
     """Write the printable PDF reference sheet."""
     from pathlib import Path
 
-    from atlas.sheets import write_sheet
+    from atlas.sheets import PAPERS, write_sheet
 
     if Path(args.output).suffix.lower() != ".pdf":
         raise ValueError(f"`-o` must end in '.pdf'; got {args.output!r}.")
+    if args.paper is not None and args.paper not in PAPERS:
+        valid = ", ".join(repr(name) for name in PAPERS)
+        raise ValueError(f"`--paper` must be one of {valid}; got {args.paper!r}.")
     _check_output(args)
-    print(write_sheet(_open_atlas(args), args.output, methods=args.method))
+    print(write_sheet(_open_atlas(args), args.output, methods=args.method, paper=args.paper))
     return 0
 
 
@@ -690,6 +693,8 @@ def _add_output_commands(commands):
     atlas_option(sheet)
     sheet.add_argument("-o", "--output", required=True, metavar="FILE.pdf", help="the PDF file")
     force_option(sheet)
+    sheet.add_argument("--paper", help="a4 or letter, landscape (default: letter where the "
+                       "locale's territory prints on it, as US, CA, MX; else a4)")  # fmt: skip
     sheet.set_defaults(handler=_cmd_sheet, names={"methods": "--method", "path": "-o"})
 
     wiki = commands.add_parser("wiki", help="write a static wiki page with SVG charts")

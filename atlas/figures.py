@@ -27,6 +27,7 @@ __all__ = [
     "METRIC_FORMULAS",
     "METRIC_LABELS",
     "MIN_PNG_WIDTH",
+    "MIN_TEXT_SIZE",
     "PNG_DPI",
     "TEXT_COLOUR",
     "VECTOR_RASTER_DPI",
@@ -39,7 +40,9 @@ __all__ = [
     "footer",
     "footer_lines",
     "format_level",
+    "format_power",
     "mpl",
+    "power_of_ten",
     "provenance_line",
     "save_figure",
 ]
@@ -50,7 +53,9 @@ PNG_DPI = 200
 VECTOR_RASTER_DPI = {"svg": 150, "pdf": 200}  # the fills of a vector file: screen, print
 TEXT_COLOUR = "#333333"  # dark grey: footers, page numbers, notes
 #: The text of every footer: the provenance line and the caution (points, colour, line spacing).
-FOOTER_STYLE = {"fontsize": 7.5, "color": TEXT_COLOUR, "linespacing": 1.35}
+FOOTER_STYLE = {"fontsize": 8.0, "color": TEXT_COLOUR, "linespacing": 1.35}
+#: The smallest text on any chart or page, in points: what stays legible in print.
+MIN_TEXT_SIZE = 8.0
 METHOD_LABELS = {
     "normal_cc": "normal, continuity-corrected",
     "edgeworth_cc": "one-term Edgeworth, continuity-corrected",
@@ -158,6 +163,34 @@ def format_level(value):
     return f"{mantissa.rstrip('0').rstrip('.')}e{int(exponent)}"
 
 
+_SUPERSCRIPT = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
+
+
+def power_of_ten(exponent):
+    """10 to an integer power as printed on the charts' axes and colour bars: 10⁻³, 10⁰, 10⁸.
+
+    Examples
+    --------
+    >>> power_of_ten(-3), power_of_ten(0), power_of_ten(8)
+    ('10⁻³', '10⁰', '10⁸')
+    """
+    return "10" + str(int(exponent)).translate(_SUPERSCRIPT)
+
+
+def format_power(value):
+    """A tolerance in the charts' notation, that of their colour bars: 10⁻², 5×10⁻³, 2.5×10⁻⁵.
+
+    Examples
+    --------
+    >>> [format_power(v) for v in (0.01, 0.005, 1e-4, 2.5e-5)]
+    ['10⁻²', '5×10⁻³', '10⁻⁴', '2.5×10⁻⁵']
+    """
+    mantissa, exponent = f"{float(value):.6e}".split("e")
+    mantissa = mantissa.rstrip("0").rstrip(".")
+    power = power_of_ten(int(exponent))
+    return power if mantissa == "1" else f"{mantissa}×{power}"
+
+
 def _build_date(ds):
     """The date (YYYY-MM-DD) the atlas was built, from the first line of its history."""
     match = re.search(r"\d{4}-\d{2}-\d{2}", str(ds.attrs.get("history", "")))
@@ -165,24 +198,24 @@ def _build_date(ds):
 
 
 def _axis_text(values, show):
-    """The range and count of an axis, such as "1…10 (10 values)" or "5 (1 value)"."""
+    """The range and count of an axis, such as "from 1 to 10 (10 values)" or "5 (1 value)"."""
     if values.size == 1:
         return f"{show(values[0])} (1 value)"
-    return f"{show(values[0])}…{show(values[-1])} ({values.size} values)"
+    return f"from {show(values[0])} to {show(values[-1])} ({values.size:,} values)"
 
 
 def provenance_line(atlas):
-    """One line on where the atlas came from: version, schema, build date, grid and checksum."""
+    """One line on where the atlas came from: version, schema, build date, grid and the whole
+    checksum (a line that is too long is wrapped where it is set, never cut short)."""
     ds = as_dataset(atlas)
     n, p = ds["n"].values, ds["p"].values
-    checksum = str(ds.attrs.get("checksum", ""))
-    short = checksum[: len("sha256:") + 12] + "…" if checksum else "no checksum"
+    checksum = str(ds.attrs.get("checksum", "")) or "no checksum"
     return (
         f"Atlas: {ds.attrs.get('source', 'approx-atlas')}, schema {ds.attrs.get('atlas_schema')}, "
-        f"built {_build_date(ds)}; grid n = {_axis_text(n, lambda x: f'{x:,}')}, "
-        f"p = {_axis_text(p, format_p)}; "
+        f"built {_build_date(ds)}; grid n {_axis_text(n, lambda x: f'{x:,}')}, "
+        f"p {_axis_text(p, format_p)}; "
         f"{str(ds.attrs.get('error_precision', '')).split(' ')[0]}; "
-        f"{short}"
+        f"checksum {checksum}"
     )
 
 
@@ -198,7 +231,7 @@ def footer(fig, ds, note=None):
     """The provenance, a note and the caution at the foot of a figure with a constrained layout;
     the layout's lower edge is set above it, however many lines it takes."""
     size = FOOTER_STYLE["fontsize"]
-    width = int(0.975 * fig.get_figwidth() * 72 / (size * 0.55))  # characters per line
+    width = int(0.96 * fig.get_figwidth() * 72 / (size * 0.6))  # characters per line
     lines = footer_lines(ds, width, note)
     fig.text(0.012, 0.012, "\n".join(lines), ha="left", va="bottom", gid="footer",
              **FOOTER_STYLE)  # fmt: skip

@@ -1,6 +1,8 @@
 """Printable reference sheets and wiki pages: the charts, tables and audits set for people.
 
-- :func:`write_sheet`: a multi-page PDF: maps, tables, audit, definitions, provenance, caution.
+- :func:`write_sheet`: a multi-page PDF: maps, tables, audit, definitions, provenance, caution,
+  on A4 or US Letter (landscape; :func:`default_paper` follows the locale), no text under
+  8 points.
 - :func:`write_wiki`: ``index.html`` and ``index.md`` with SVG charts beside them; the page
   opens offline (no scripts, no external addresses).
 
@@ -10,6 +12,8 @@ file is written to a temporary name in its directory and renamed when complete.
 
 import html
 import math
+import os
+import re
 import textwrap
 from pathlib import Path
 
@@ -61,7 +65,10 @@ def _html_table(header, rows, *, numeric_from=1, caption=None):
         cells = []
         for k, cell in enumerate(row):
             cls = ' class="num"' if k >= numeric_from else ""
-            cells.append(f"<td{cls}>{html.escape(str(cell))}</td>")
+            # A comparison stays on one line ("np >= 10"); edgeworth_cc may break after "_".
+            text = re.sub(r" (>=|<=|==|!=|>|<|=) ", "\u00a0\\1\u00a0", str(cell))
+            text = html.escape(text).replace("_", "_<wbr>")
+            cells.append(f"<td{cls}>{text}</td>")
         out.append("<tr>" + "".join(cells) + "</tr>")
     out.append("</tbody></table>")
     return "\n".join(out)
@@ -81,14 +88,51 @@ def _headline(ds, methods):
     return tuple(chosen)
 
 
-PAGE_SIZE = (10.0, 7.4)  # inches, landscape; the maps use the same size
+#: Paper sizes in inches, landscape (width, height): ISO A4 (297 x 210 mm) and US Letter.
+PAPERS = {"a4": (297 / 25.4, 210 / 25.4), "letter": (11.0, 8.5)}
+#: Territories whose locales print on US Letter (glibc's LC_PAPER): every other prints on A4.
+LETTER_TERRITORIES = frozenset(
+    {"US", "CA", "MX", "PH", "BO", "CL", "CO", "CR", "GT", "NI", "PA", "PR", "SV", "VE"}
+)
 _CHAR_WIDTH = 0.55  # DejaVu Sans: mean advance of a character, in em (monospace: 0.6)
-_TOP, _BOTTOM = 0.89, 0.11  # the body of a text page, as fractions of its height
+_TOP, _BOTTOM = 0.89, 0.13  # the body of a text page, as fractions of its height
 
 
-def _text_page(title):
+def default_paper(environ=None):
+    """The paper of the locale: ``"letter"`` for a territory in ``LETTER_TERRITORIES``, else
+    ``"a4"``.
+
+    The locale is the first of ``LC_ALL``, ``LC_PAPER`` and ``LANG`` that is set and not
+    empty (the POSIX order); its territory is the two letters after the underscore
+    (``en_US.UTF-8`` -> US). No locale, or ``C`` / ``POSIX``, gives ``"a4"``.
+
+    Examples
+    --------
+    >>> default_paper({"LANG": "en_US.UTF-8"}), default_paper({"LANG": "de_DE.UTF-8"})
+    ('letter', 'a4')
+    >>> default_paper({"LC_ALL": "fr_CA.UTF-8", "LANG": "en_GB.UTF-8"}), default_paper({})
+    ('letter', 'a4')
+    """
+    env = os.environ if environ is None else environ
+    for key in ("LC_ALL", "LC_PAPER", "LANG"):
+        value = env.get(key)
+        if value:
+            match = re.match(r"^[A-Za-z]+_([A-Za-z]{2})\b", value)
+            territory = match.group(1).upper() if match else ""
+            return "letter" if territory in LETTER_TERRITORIES else "a4"
+    return "a4"
+
+
+def check_paper(paper):
+    """The paper's name (``None``: :func:`default_paper`); ValueError for another name."""
+    if paper is None:
+        return default_paper()
+    return figures.check_choice(paper, "paper", tuple(PAPERS))
+
+
+def _text_page(title, size):
     mpl = figures.mpl()
-    fig = mpl.figure.Figure(figsize=PAGE_SIZE, dpi=100)
+    fig = mpl.figure.Figure(figsize=size, dpi=100)
     fig.text(0.04, 0.955, title, fontsize=15, weight="bold", va="top", gid="title")
     return fig
 
@@ -96,24 +140,25 @@ def _text_page(title):
 class _Flow:
     """Paragraphs set from the top of a text page down, a new page when one is full."""
 
-    def __init__(self, title):
+    def __init__(self, title, size):
         self.title = title
+        self.size = size
         self.pages = []
         self._new_page()
 
     def _new_page(self):
         suffix = " (continued)" if self.pages else ""
-        self.fig = _text_page(self.title + suffix)
+        self.fig = _text_page(self.title + suffix, self.size)
         self.pages.append(self.fig)
         self.y = _TOP
 
     def para(self, text, *, left=0.04, right=0.96, size=9.5, mono=False, term=None, gap=0.012,
              **style):  # fmt: skip
-        width_pt = (right - left) * PAGE_SIZE[0] * 72
+        width_pt = (right - left) * self.size[0] * 72
         chars = max(20, int(width_pt / (size * (0.63 if mono else _CHAR_WIDTH))))
         body = "\n".join(textwrap.fill(part, chars) if part else "" for part in text.split("\n"))
         lines = body.count("\n") + 1
-        height = lines * size * 1.35 / (72 * PAGE_SIZE[1])
+        height = lines * size * 1.35 / (72 * self.size[1])
         if self.y - height < _BOTTOM and self.y < _TOP:
             self._new_page()
         if term is not None:
@@ -154,24 +199,25 @@ def _page_number(fig, page, pages):
 
 def _page_marks(fig, ds, page, pages):
     """The provenance and caution at the foot of a page, its number at the top right."""
-    fig.text(0.04, 0.02, "\n".join(figures.footer_lines(ds, 165)), va="bottom", gid="footer",
+    chars = int(0.92 * fig.get_figwidth() * 72 / (figures.FOOTER_STYLE["fontsize"] * 0.6))
+    fig.text(0.04, 0.02, "\n".join(figures.footer_lines(ds, chars)), va="bottom", gid="footer",
              **figures.FOOTER_STYLE)  # fmt: skip
     _page_number(fig, page, pages)
 
 
-def _wrap(text, size, width=0.92):
-    return textwrap.fill(text, int(width * PAGE_SIZE[0] * 72 / (size * _CHAR_WIDTH)))
+def _wrap(text, fontsize, page_width, width=0.92):
+    return textwrap.fill(text, int(width * page_width * 72 / (fontsize * _CHAR_WIDTH)))
 
 
-def _tables_page(tables):
-    fig = _text_page("Minimum n for each tolerance")
+def _tables_page(tables, size):
+    fig = _text_page("Minimum n for each tolerance", size)
     note = (
         "The smallest grid n at which the worst-case error is within the tolerance and stays "
         "within it at every larger grid n. "
         f"'> N': not reached on the grid (n up to {tables[0].n_max:,}); †: beyond "
         f"n = {tables[0].dense_n:,} only the grid's n are checked, not every integer."
     )
-    fig.text(0.04, 0.905, _wrap(note, 9), fontsize=9, va="top", linespacing=1.35)
+    fig.text(0.04, 0.905, _wrap(note, 9, size[0]), fontsize=9, va="top", linespacing=1.35)
     cols = 2 if len(tables) > 1 else 1
     per_col = math.ceil(len(tables) / cols)
     width = (0.92 - 0.04 * (cols - 1)) / cols
@@ -187,7 +233,7 @@ def _tables_page(tables):
     return fig
 
 
-def _audit_pages(audit, per_page=22):
+def _audit_pages(audit, size, per_page=22):
     header = audit.header()
     rows = audit.to_rows()
     shares = len(audit.tols)
@@ -196,8 +242,8 @@ def _audit_pages(audit, per_page=22):
     for start in range(0, max(len(rows), 1), per_page):
         chunk = rows[start : start + per_page]
         fig = _text_page("Rules of thumb: the worst error each admits"
-                         + (" (continued)" if start else ""))  # fmt: skip
-        fig.text(0.04, 0.905, _wrap(" ".join(audit.notes()), 9), fontsize=9, va="top",
+                         + (" (continued)" if start else ""), size)  # fmt: skip
+        fig.text(0.04, 0.905, _wrap(" ".join(audit.notes()), 9, size[0]), fontsize=9, va="top",
                  linespacing=1.35)  # fmt: skip
         height = min(0.70, 0.03 * (len(chunk) + 1))
         _draw_table(fig, (0.04, 0.80 - height, 0.92, height), header, chunk, col_widths=widths,
@@ -206,8 +252,8 @@ def _audit_pages(audit, per_page=22):
     return pages
 
 
-def _definitions_pages(ds, where):
-    flow = _Flow("Definitions")
+def _definitions_pages(ds, where, size):
+    flow = _Flow("Definitions", size)
     for term, text in DEFINITIONS:
         flow.para(text, left=0.2, term=term)
     flow.y -= 0.01
@@ -217,13 +263,11 @@ def _definitions_pages(ds, where):
         formula = cube.METHOD_DESCRIPTIONS.get(method, "")
         flow.para(f"{label}; G(k) = {formula}", left=0.2, term=method, size=9, gap=0.006)
     pages = flow.pages
-    flow = _Flow("Provenance and caution")
+    flow = _Flow("Provenance and caution", size)
     flow.para("The atlas these pages were drawn from (its NetCDF global attributes):", size=9.5)
     entries = [("file", where)] + [(k, str(v)) for k, v in ds.attrs.items()
                                    if k not in ("comment", *cube.FORMAT_ATTRIBUTES)]  # fmt: skip
-    for key, value in entries:
-        if key in ("n_spec", "p_spec") and len(value) > 150:
-            value = value[:150] + " …"
+    for key, value in entries:  # every value whole, wrapped: none is cut short
         flow.para(value, left=0.2, term=key, size=8, mono=True, gap=0.008)
     flow.y -= 0.02
     flow.para(cube.CAUTION, left=0.2, term="Caution", size=10, color="#8B0000", gid="caution")
@@ -231,17 +275,19 @@ def _definitions_pages(ds, where):
 
 
 def sheet_figures(atlas, *, methods=None, metric="interval", tols=TABLE_TOLS, ps=TABLE_PS,
-                  audit_tols=AUDIT_TOLS):  # fmt: skip
+                  audit_tols=AUDIT_TOLS, paper=None):  # fmt: skip
     """The pages of the reference sheet, as a list of Figures (see :func:`write_sheet`)."""
     ds = figures.as_dataset(atlas)
     check_metric(metric)
+    size = PAPERS[check_paper(paper)]
     chosen = _headline(ds, methods)
-    pages = [charts.error_map(ds, method=m, metric=metric) for m in chosen]
+    pages = [charts.error_map(ds, method=m, metric=metric, width=size[0], height=size[1])
+             for m in chosen]  # fmt: skip
     tables = [threshold_table(atlas, tols, ps, method=m, metric=x) for m in chosen
               for x in METRICS]  # fmt: skip
-    pages.append(_tables_page(tables))
-    pages += _audit_pages(rule_audit(ds, methods=chosen, tols=audit_tols))
-    pages += _definitions_pages(ds, _where(atlas))
+    pages.append(_tables_page(tables, size))
+    pages += _audit_pages(rule_audit(ds, methods=chosen, tols=audit_tols), size)
+    pages += _definitions_pages(ds, _where(atlas), size)
     for k, fig in enumerate(pages, start=1):
         if k > len(chosen):  # the maps carry their own footer
             _page_marks(fig, ds, k, len(pages))
@@ -250,12 +296,15 @@ def sheet_figures(atlas, *, methods=None, metric="interval", tols=TABLE_TOLS, ps
     return pages
 
 
-def write_sheet(atlas, path, *, methods=None, metric="interval", tols=TABLE_TOLS, ps=TABLE_PS):
+def write_sheet(atlas, path, *, methods=None, metric="interval", tols=TABLE_TOLS, ps=TABLE_PS,
+                paper=None):  # fmt: skip
     """Write the printable multi-page PDF reference sheet, atomically.
 
     Pages: an error map for each headline method (normal_cc and edgeworth_cc when the atlas
     holds them), the threshold tables (both metrics), the rule audit, then the definitions,
-    the provenance (the atlas's attributes) and the caution.
+    the provenance (the atlas's attributes) and the caution. Every page is the paper's size
+    (landscape) and prints at 100 %; no text is smaller than 8 points and no line is cut short
+    (long ones wrap).
 
     Parameters
     ----------
@@ -268,6 +317,9 @@ def write_sheet(atlas, path, *, methods=None, metric="interval", tols=TABLE_TOLS
         The metric of the maps.
     tols, ps : sequence of float, optional
         For the threshold tables.
+    paper : {"a4", "letter"}, optional
+        The paper; default :func:`default_paper`, from the locale (US Letter for the
+        territories of ``LETTER_TERRITORIES``, else A4).
 
     Returns
     -------
@@ -276,7 +328,7 @@ def write_sheet(atlas, path, *, methods=None, metric="interval", tols=TABLE_TOLS
     Raises
     ------
     ValueError
-        If ``path`` does not end in ``.pdf``, or for bad methods, metric, tols or ps.
+        If ``path`` does not end in ``.pdf``, or for bad methods, metric, tols, ps or paper.
     FileNotFoundError
         If the target's directory does not exist.
     """
@@ -286,8 +338,10 @@ def write_sheet(atlas, path, *, methods=None, metric="interval", tols=TABLE_TOLS
     path = Path(path)
     if path.suffix.lower() != ".pdf":
         raise ValueError(f"`path` must end in '.pdf'; got {str(path)!r}.")
+    paper = check_paper(paper)
     with replacing(path) as tmp:  # refuses a missing directory before any drawing
-        pages = sheet_figures(atlas, methods=methods, metric=metric, tols=tols, ps=ps)
+        pages = sheet_figures(atlas, methods=methods, metric=metric, tols=tols, ps=ps,
+                              paper=paper)  # fmt: skip
         metadata = {"Title": "approx-atlas reference sheet", "CreationDate": None}
         with mpl.rc_context({"pdf.fonttype": 42}), PdfPages(tmp, metadata=metadata) as pdf:
             for fig in pages:
@@ -303,6 +357,8 @@ body { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; margin: 
 h1 { font-size: 1.7em; } h2 { margin-top: 2em; border-bottom: 1px solid #999; }
 figure { margin: 1.5em 0; } figure img { width: 100%; height: auto; border: 1px solid #ccc; }
 figcaption { font-size: 0.9em; color: #333; }
+p, li, dd, dt, caption, code { overflow-wrap: anywhere; }
+table { max-width: 100%; } td.num { white-space: nowrap; }
 table { border-collapse: collapse; margin: 0.8em 0 0.4em; font-size: 0.92em; }
 caption { text-align: left; font-weight: bold; padding-bottom: 0.3em; }
 th, td { border: 1px solid #999; padding: 0.25em 0.6em; }
@@ -311,6 +367,8 @@ th { background: #e6e6e6; } td.num { text-align: right; font-variant-numeric: ta
 .notes { font-size: 0.9em; color: #333; } code { font-size: 0.95em; }
 dl dt { font-weight: bold; margin-top: 0.5em; }
 @media print { figure { page-break-inside: avoid; } }
+/* last, so that it overrides the rules above on a narrow window */
+@media (max-width: 900px) { table { font-size: 0.74em; } th, td { padding: 0.15em 0.3em; } }
 """
 
 
@@ -326,14 +384,14 @@ def _wiki_charts(ds, chosen, metric):
         items.append(
             (
                 f"compare_{a}_{b}_{metric}.svg",
-                f"{a} and {b} on one colour scale",
-                lambda: charts.compare_map(ds, method=a, method2=b, metric=metric),
+                f"{a} and {b} on one colour scale, one above the other",
+                lambda: charts.compare_map(ds, method=a, method2=b, metric=metric, stacked=True),
             )
         )
         items.append(
             (
                 f"gain_{b}_over_{a}_{metric}.svg",
-                f"How many times smaller the error of {b} is than that of {a}",
+                f"Which of {a} and {b} is better, and by how many times",
                 lambda: charts.gain_map(ds, method=b, method2=a, metric=metric),
             )
         )
@@ -474,6 +532,10 @@ def _wiki_html(ds, images, tables, audit, provenance, where):
 __all__ = [
     "DEFINITIONS",
     "HEADLINE_METHODS",
+    "LETTER_TERRITORIES",
+    "PAPERS",
+    "check_paper",
+    "default_paper",
     "sheet_figures",
     "write_sheet",
     "write_wiki",

@@ -5,7 +5,8 @@ Everything is drawn from the embedded default atlas (``atlas/data/default_atlas.
 and ``index.md`` link the SVG charts beside them by relative names, so the directory can be
 published or opened as it is. Beside them:
 
-- ``*.png``: the same charts as PNG, 2000 pixels wide (10 in at 200 dpi; the comparison 3000);
+- ``*.png``: the same charts as PNG, 2000 pixels wide (10 in at 200 dpi; the comparison's two
+  panels one above the other, as on the wiki page);
 - ``min_n_<method>_<metric>.csv`` and ``.md``: the minimum n for each tolerance and p;
 - ``rules_audit.md`` and ``.json``: the rules of thumb audited for every method and metric;
 - ``reference_sheet.pdf``: the printable multi-page sheet.
@@ -49,7 +50,7 @@ def _charts(atlas):
         (f"map_{a}_interval_linear",
          lambda: charts.error_map(atlas, method=a, p_scale="linear")),
         (f"compare_{a}_{b}_interval",
-         lambda: charts.compare_map(atlas, method=a, method2=b)),
+         lambda: charts.compare_map(atlas, method=a, method2=b, stacked=True)),
         (f"gain_{b}_over_{a}_interval", lambda: charts.gain_map(atlas, method=b, method2=a)),
         ("best_interval", lambda: charts.best_method_map(atlas)),
         ("best_cdf", lambda: charts.best_method_map(atlas, metric="cdf")),

@@ -133,6 +133,7 @@ def test_wiki_html_opens_offline(wiki):
         assert all(r.startswith(("data:", "#")) for r in refs)  # embedded or internal only
     assert " ".join(cube.CAUTION.split()) in " ".join(page.split())
     assert "Minimum n for normal_cc, interval error" in page
+    page = page.replace("\u00a0", " ")  # comparisons are held together by no-break spaces
     assert "np &gt;= 5 and nq &gt;= 5" in page and "npq &gt; 9" in page
 
 
@@ -257,3 +258,162 @@ def test_cli_sheet_and_wiki(chart_atlas, capsys, tmp_path):
     assert sorted(os.listdir(folder)) == ["best_interval.svg", "index.html", "index.md",
                                           "map_poisson_interval.svg"]  # fmt: skip
     assert Path(folder / "index.html").read_text().count("<img ") == 2
+
+
+# ---- paper, type sizes, whole lines ----
+
+
+@pytest.mark.parametrize(
+    ("environ", "paper"),
+    [
+        ({"LANG": "en_US.UTF-8"}, "letter"),
+        ({"LANG": "es_MX.UTF-8"}, "letter"),
+        ({"LANG": "fr_CA"}, "letter"),
+        ({"LANG": "en_PH.UTF-8"}, "letter"),
+        ({"LANG": "en_GB.UTF-8"}, "a4"),
+        ({"LANG": "de_DE.UTF-8"}, "a4"),
+        ({"LANG": "C.UTF-8"}, "a4"),
+        ({"LANG": "POSIX"}, "a4"),
+        ({}, "a4"),
+        ({"LC_PAPER": "en_US.UTF-8", "LANG": "en_GB.UTF-8"}, "letter"),
+        ({"LC_ALL": "en_GB.UTF-8", "LC_PAPER": "en_US.UTF-8"}, "a4"),  # LC_ALL wins (POSIX)
+        ({"LC_ALL": "", "LANG": "en_CA.UTF-8"}, "letter"),  # an empty variable is unset
+    ],
+)  # fmt: skip
+def test_default_paper_follows_the_locale(environ, paper):
+    assert sheets.default_paper(environ) == paper
+
+
+def test_sheet_paper_is_checked(chart_atlas, tmp_path):
+    with pytest.raises(ValueError, match=r"^`paper` must be one of 'a4', 'letter'; got 'b5'\.$"):
+        sheets.write_sheet(chart_atlas, tmp_path / "sheet.pdf", paper="b5")
+    assert os.listdir(tmp_path) == []
+
+
+@pytest.mark.parametrize("paper", ["a4", "letter"])
+def test_sheet_prints_on_the_paper_with_no_small_or_cut_text(chart_atlas, paper):
+    """Every page has the paper's size; no text is under 8 points; no line is cut with an
+    ellipsis or runs off the page (long ones wrap)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.text import Text
+
+    size = {"a4": (297 / 25.4, 210 / 25.4), "letter": (11.0, 8.5)}[paper]  # ISO 216; ANSI
+    pages = sheets.sheet_figures(chart_atlas, paper=paper)
+    seen = []
+    for fig in pages:
+        assert tuple(fig.get_size_inches()) == pytest.approx(size)
+        canvas = FigureCanvasAgg(fig)
+        canvas.draw()
+        renderer = canvas.get_renderer()
+        page = fig.bbox
+        for text in fig.findobj(Text):
+            content = text.get_text()
+            if not text.get_visible() or not content.strip():
+                continue
+            assert text.get_fontsize() >= 8.0, (content[:40], text.get_fontsize())
+            assert "…" not in content and "..." not in content, content[:80]
+            box = text.get_window_extent(renderer)
+            if box.x1 < page.x0 or box.x0 > page.x1:
+                continue  # a tick label beyond the axis limits, which is not drawn
+            assert box.x0 >= page.x0 - 1 and box.x1 <= page.x1 + 1, content[:60]
+            seen.append(content)
+    joined = " ".join(" ".join(seen).split())
+    ds = chart_atlas.dataset
+    assert ds.attrs["checksum"] in joined  # the whole checksum, in the footers
+    assert sum(" ".join(s.split()).count(ds.attrs["checksum"]) for s in seen) >= len(pages) - 2
+    spec = ds.attrs["p_spec"]
+    assert spec.replace(",", "") in joined.replace(",", "").replace(" ", "")  # whole, wrapped
+
+
+def test_cli_sheet_paper(chart_atlas, capsys, tmp_path, monkeypatch):
+    # PDF page sizes in points: A4 841.89 x 595.28 (ISO 216), Letter 792 x 612, landscape.
+    monkeypatch.setenv("LC_ALL", "en_US.UTF-8")  # a Letter locale: --paper a4 overrides it
+    pdf = tmp_path / "a4.pdf"
+    assert main(["sheet", "--atlas", str(chart_atlas.path), "--method", "poisson", "--paper",
+                 "a4", "-o", str(pdf)]) == 0  # fmt: skip
+    assert re.search(rb"/MediaBox \[ *0 0 841\.8897\d* 595\.2755", pdf.read_bytes())
+    pdf = tmp_path / "locale.pdf"
+    assert main(["sheet", "--atlas", str(chart_atlas.path), "--method", "poisson", "-o",
+                 str(pdf)]) == 0  # fmt: skip
+    assert re.search(rb"/MediaBox \[ *0 0 792 612", pdf.read_bytes())
+    capsys.readouterr()
+    assert main(["sheet", "--atlas", str(chart_atlas.path), "--paper", "b5", "-o",
+                 str(tmp_path / "b5.pdf")]) == 2  # fmt: skip
+    assert capsys.readouterr().err == (
+        "approx-atlas: error: `--paper` must be one of 'a4', 'letter'; got 'b5'.\n"
+    )
+
+
+# ---- the wiki page at page width ----
+
+# A test-only page that frames the wiki at two widths and reports whether either scrolls
+# sideways; a third frame holds a page that does (the check can fail).
+_WIDTHS = """<!DOCTYPE html><html><head><meta charset="utf-8"></head><body>
+<iframe id="w1280" src="{page}" style="width:1280px;height:900px;border:0"></iframe>
+<iframe id="w800" src="{page}" style="width:800px;height:900px;border:0"></iframe>
+<iframe id="wide" src="{wide}" style="width:800px;height:300px;border:0"></iframe>
+<pre id="report">pending</pre>
+<script>
+window.addEventListener("load", function () {{
+  var report = {{}};
+  ["w1280", "w800", "wide"].forEach(function (id) {{
+    var doc = document.getElementById(id).contentDocument;
+    var root = doc.documentElement;
+    var widest = 0;
+    Array.prototype.forEach.call(doc.querySelectorAll("body *"), function (el) {{
+      widest = Math.max(widest, el.getBoundingClientRect().right);
+    }});
+    var broken = 0;
+    Array.prototype.forEach.call(doc.querySelectorAll("td.num"), function (td) {{
+      var range = doc.createRange();
+      range.selectNodeContents(td);
+      if (range.getClientRects().length > 1) {{ broken += 1; }}
+    }});
+    report[id] = {{scroll: root.scrollWidth, client: root.clientWidth, widest: widest,
+                   broken: broken,
+                   images: Array.prototype.map.call(doc.images, function (img) {{
+                     return img.getBoundingClientRect().width; }})}};
+  }});
+  document.getElementById("report").textContent = JSON.stringify(report);
+}});
+</script></body></html>
+"""
+
+
+def test_wiki_has_no_sideways_scrolling_at_1280_and_800_pixels(wiki, tmp_path):
+    """Chromium lays the page out 1280 and 800 pixels wide: nothing is wider than the window
+    (long attribute lines wrap), and every chart fits the width."""
+    browser = _chromium()
+    folder, _ = wiki
+    wide = tmp_path / "wide.html"
+    wide.write_text("<!DOCTYPE html><html><body><p>" + "x" * 400 + "</p></body></html>")
+    harness = tmp_path / "widths.html"
+    harness.write_text(_WIDTHS.format(page=(folder / "index.html").as_uri(),
+                                      wide=wide.as_uri()))  # fmt: skip
+    result = subprocess.run(
+        [browser, *_FLAGS, f"--user-data-dir={tmp_path / 'profile'}",
+         "--allow-file-access-from-files", "--virtual-time-budget=15000", "--dump-dom",
+         harness.as_uri()],
+        capture_output=True, text=True, timeout=120,
+    )  # fmt: skip
+    match = re.search(r'<pre id="report">(.*?)</pre>', result.stdout, re.DOTALL)
+    assert match, result.stdout[-2000:] + result.stderr[-2000:]
+    report = json.loads(html.unescape(match.group(1)))
+    assert report["wide"]["scroll"] > report["wide"]["client"]  # the check sees overflow
+    for width in ("w1280", "w800"):
+        state = report[width]
+        assert state["client"] <= int(width[1:]), state
+        assert state["scroll"] <= state["client"], (width, state)
+        assert state["widest"] <= state["client"] + 0.5, (width, state)
+        assert state["broken"] == 0, (width, state)  # no number is split over two lines
+        assert len(state["images"]) == 5
+        assert all(0 < w <= state["client"] for w in state["images"]), (width, state)
+
+
+def test_wiki_comparison_is_stacked(wiki):
+    """The two-panel comparison is one panel above the other, so that it keeps its type size
+    at page width."""
+    folder, _ = wiki
+    root = ET.parse(folder / "compare_normal_cc_edgeworth_cc_interval.svg").getroot()
+    width, height = (float(root.get(k).removesuffix("pt")) for k in ("width", "height"))
+    assert height > width
