@@ -20,6 +20,7 @@ __all__ = [
     "error_digits",
     "format_n",
     "format_p",
+    "format_p_brief",
     "parse_probability",
     "plural",
     "read_probability",
@@ -46,6 +47,25 @@ def format_p(p):
         sign = "-" if exponent.startswith("-") else ""
         text = f"{mantissa}e{sign}{exponent.lstrip('+-').lstrip('0') or '0'}"
     return text
+
+
+def format_p_brief(p, digits=4):
+    """A p for a narrow table cell: whole when it has at most ``digits`` significant digits,
+    else rounded to ``digits`` and marked with "≈" so that nobody takes it for the exact value.
+
+    Machine-readable outputs (csv, JSON) use :func:`format_p`, which always reads back.
+
+    Examples
+    --------
+    >>> [format_p_brief(x) for x in (0.1, 0.0005, 0.004987164074638706, 0.99999994)]
+    ['0.1', '0.0005', '≈0.004987', '≈0.9999999']
+    """
+    whole = format_p(p)
+    short = f"{float(p):.{digits}g}"
+    while float(short) in (0.0, 1.0) and float(p) not in (0.0, 1.0):  # never "≈1" for p < 1
+        digits += 1
+        short = f"{float(p):.{digits}g}"
+    return whole if float(short) == float(p) else f"≈{short}"
 
 
 def format_n(n):

@@ -499,8 +499,10 @@ def _wiki_html(ds, images, tables, audit, provenance, where):
            f'<p class="caution"><strong>Caution.</strong> {e(cube.CAUTION)}</p>',
            f'<p class="notes">{e(provenance)}</p>', "<h2>Charts</h2>"]  # fmt: skip
     for name, caption in images:
-        out.append(f'<figure><img src="{e(name)}" alt="{e(caption)}">'
-                   f"<figcaption>{e(caption)}.</figcaption></figure>")  # fmt: skip
+        # The image links to itself: at a narrow page width a reader opens it full size.
+        out.append(f'<figure><a href="{e(name)}"><img src="{e(name)}" alt="{e(caption)}"></a>'
+                   f"<figcaption>{e(caption)} (select the chart to open it full size)."
+                   "</figcaption></figure>")  # fmt: skip
     out.append("<h2>Minimum n for each tolerance</h2>")
     for table in tables:
         header, rows = table.to_rows()

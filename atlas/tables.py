@@ -20,7 +20,7 @@ import numpy as np
 from atlas import figures
 from atlas.engine import METRICS, check_metric
 from atlas.figures import METRIC_FORMULAS, format_level, provenance_line
-from atlas.notation import FLOAT64_DIGITS, error_digits, format_p, rounded
+from atlas.notation import FLOAT64_DIGITS, error_digits, format_p, format_p_brief, rounded
 from atlas.rules import CLASSIC_RULES, parse_rule, rule_name
 
 TABLE_TOLS = (0.01, 0.005, 0.001, 0.0001)
@@ -358,7 +358,8 @@ class RuleAudit:
                     f"{row.cells:,}",
                     _fmt_error(row.worst_error),
                     "—" if row.worst_n is None else f"{row.worst_n:,}",
-                    "—" if row.worst_p is None else format_p(row.worst_p),
+                    # a grid p such as 0.004987164074638706 would not fit the column
+                    "—" if row.worst_p is None else format_p_brief(row.worst_p),
                 ]
                 + [_fmt_share(s) for s in row.shares]
             )
@@ -367,7 +368,7 @@ class RuleAudit:
     def notes(self):
         return [
             "worst error: the largest error over the grid cells (n, p) the rule admits; "
-            "at n, at p: where it occurs.",
+            "at n, at p: where it occurs (≈: p rounded to 4 digits; the JSON holds it whole).",
             "≤ tol: the share of the rule's grid cells whose error is within tol "
             f"(of {self.grid_cells:,} grid cells in all; shares count cells, so they follow the "
             "grid's density).",

@@ -89,13 +89,15 @@ def wiki(chart_atlas, tmp_path_factory):
 class _Links(html.parser.HTMLParser):
     def __init__(self):
         super().__init__()
-        self.tags, self.images, self.links = [], [], []
+        self.tags, self.images, self.links, self.anchors = [], [], [], []
 
     def handle_starttag(self, tag, attrs):
         attrs = dict(attrs)
         self.tags.append(tag)
         if tag == "img":
             self.images.append(attrs.get("src"))
+        if tag == "a":
+            self.anchors.append(attrs.get("href"))
         for key in ("href", "src", "srcset", "action", "data"):
             if key in attrs:
                 self.links.append(attrs[key])
@@ -123,6 +125,7 @@ def test_wiki_html_opens_offline(wiki):
     assert "script" not in parser.tags and "iframe" not in parser.tags
     assert "http://" not in page and "https://" not in page and "url(" not in page
     assert len(parser.images) == 5
+    assert parser.anchors == parser.images  # each chart opens full size from the page
     for link in parser.links:
         assert _is_local(link), link
         assert (folder / link).is_file(), link

@@ -278,3 +278,13 @@ def test_cli_rules(chart_atlas, capsys):
         tols=[0.01],
     )
     assert record == json.loads(expected.to_json())
+
+
+def test_audit_cells_keep_a_long_grid_p_short_and_marked():
+    # A logit-spaced grid p has 16 digits; the printed column shows 4 and says it is rounded.
+    from atlas.notation import format_p_brief
+
+    assert format_p_brief(0.004987164074638706) == "≈0.004987"
+    assert format_p_brief(0.0005) == "0.0005"  # a round p is shown whole, unmarked
+    assert format_p_brief(0.99999994) == "≈0.9999999"  # never "≈1" for a p below 1
+    assert format_p_brief(1e-7) == "1e-7"
