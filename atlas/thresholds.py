@@ -1,0 +1,629 @@
+"""From which n on is the error within a tolerance: at every integer n, not only at grid n.
+
+:meth:`atlas.Atlas.min_n` asks for the smallest N such that the worst-case error W(n, p) of a
+method is within ``tol`` at *every integer* n >= N. The grid (the cube) says where to look; this
+module proves the rest, with three tools.
+
+1. **A one-step bound** (:func:`step_bound`). For X_n ~ Bin(n, p), F_{n+1}(k) = q F_n(k) +
+   p F_n(k - 1) (one more trial), so with D_n = F_n - G_n,
+
+       D_{n+1}(k) = q D_n(k) + p D_n(k - 1) + R_n(k),
+       R_n(k) = q G_n(k) + p G_n(k - 1) - G_{n+1}(k),
+
+   and R_n involves G only. A mixture of two values of D_n lies between min D_n and max D_n, so
+   after m steps, for the interval metric,
+
+       W(n + m) <= W(n) + 2 E_n + 2 (rho_n + ... + rho_{n+m-1}),   rho_j >= sup_k |R_j(k)|,
+
+   and for the CDF metric max|D_{n+m}| <= max(C(n), E_n) + rho_n + ... + rho_{n+m-1}. E_n bounds
+   |D_n| at the integers outside [-1, n] that the recursion reaches (the tails of G_n); the
+   proof that the extension costs at most 2 E_n is in :func:`_extension_bound`. Known values
+   of W therefore certify the integers after them as far as this growth allowance stays within
+   ``tol``; where it does not, the engine evaluates more integers (bisection), so every integer
+   is either evaluated or certified.
+
+   rho_n: G_n(x) = Phi(z) + sum_j c_j(n) Phi^(j)(z), z = (x + s - n p) / sigma_n, for the normal
+   forms (``normal``: s = 0; ``normal_cc``: s = 1/2; the Edgeworth forms add Hermite terms, as
+   in :mod:`atlas.approximations`). Let B ~ Bernoulli(p) and Y ~ N(p, pq), which share their
+   first two moments. Taylor's theorem with the Lagrange remainder about k - p gives
+
+       |E G_n(k - B) - E G_n(k - Y)| <= sup|G_n'''| / 6 (E|B - p|^3 + E|Y - p|^3)
+                                      = sup|G_n'''| / 6 (pq (p^2 + q^2) + 2 sqrt(2/pi) (pq)^1.5),
+
+   and smoothing by Y is exact for these forms: E Phi^(j)(z_n(x - Y)) =
+   (sigma_n / sigma_{n+1})^j Phi^(j)(z_{n+1}(x)) (the normal family is closed under
+   convolution), which leaves only the mismatch of the coefficients,
+   |c_j(n) (sigma_n/sigma_{n+1})^j - c_j(n + 1)| sup|Phi^(j)|. With c_j(n) = kappa_j
+   sigma_n^-e_j and d_j = j - e_j >= 0 that is at most |kappa_j| d_j / (n sigma_n^e_j). The
+   sum of both parts, :func:`step_bound`, is non-increasing in n, so rho_n bounds every step
+   after n too. For ``poisson``, R_n(k) is a difference of the laws of Y_n + B and Y_n + Z,
+   Z ~ Poisson(p), so |R_n| <= d_TV(Bernoulli(p), Poisson(p)) = p (1 - e^-p) (with q for
+   p > 1/2, where the method counts failures). Where sigma is small (at most
+   ``NUMERIC_SIGMA``) rho_n is also computed directly as max_k |R_n(k)| over every integer k
+   that matters, for every n of a gap (:func:`_numeric_steps`), and the smaller bound is used;
+   this is the only bound for ``camp_paulson`` and ``peizer_pratt``.
+
+2. **A bound for large n** (:func:`tail_bound`), non-increasing in n, so that once it is within
+   ``tol`` every larger n is. For the normal forms, Berry-Esseen with Shevtsova's constant,
+   sup_x |F(x) - Phi((x - np)/sigma)| <= 0.4748 (p^2 + q^2) / sigma, plus |Phi(z_s) - Phi(z_0)|
+   <= s phi(0) / sigma and the Hermite terms sum_j |c_j| sup|Phi^(j)|; twice that for the
+   interval metric. For ``poisson``, d_TV(Bin(n, p), Poisson(np)) <= p (1 - e^-np) <= p
+   (Barbour and Hall 1984), which is within ``tol`` for every n when p <= tol.
+
+3. **Values beyond the atlas's end.** When the atlas's largest n is within ``tol`` but the
+   large-n bound is not yet, the engine evaluates n beyond the end, each as far from the last as
+   the one-step bound allows, until the large-n bound takes over (up to ``EXTEND_MAX``).
+
+References
+----------
+Shevtsova, I. G. (2011). On the absolute constants in the Berry-Esseen type inequalities for
+identically distributed summands. arXiv:1111.6554.
+Barbour, A. D. and Hall, P. (1984). On the rate of Poisson convergence. Math. Proc. Cambridge
+Philos. Soc. 95, 473-480.
+"""
+
+import math
+from dataclasses import dataclass, field
+from functools import lru_cache
+
+import numpy as np
+from scipy import special
+
+from atlas.approximations import approximate_cdf
+from atlas.engine import evaluate
+
+__all__ = ["BERRY_ESSEEN", "EXTEND_MAX", "Threshold", "hermite_sup", "minimum_n", "step_bound",
+           "tail_bound"]  # fmt: skip
+
+BERRY_ESSEEN = 0.4748  # Shevtsova (2011), identically distributed summands
+EXTEND_MAX = 10**12  # the largest n evaluated beyond the atlas's end
+NUMERIC_SIGMA = 3.0  # rho_n is also computed directly where sigma_n is at most this
+MAX_EVALUATIONS = 20000  # engine evaluations per question before giving up (said in the answer)
+_ABS_Z3 = 2.0 * math.sqrt(2.0 / math.pi)  # E|Z|^3 for a standard normal Z
+_PHI0 = 1.0 / math.sqrt(2.0 * math.pi)
+# Slack added to every certified bound: rounding in the bound and the engine's values.
+_SLACK = 1e-12
+_NUMERIC_MAX_STEPS = 200000
+_BISECT_UNBOUNDED = 64  # gaps up to this wide are evaluated at every integer without a bound
+
+
+@lru_cache(maxsize=None)
+def _sup_table():
+    """|Phi^(j)(z)| for j = 1..10 on a fine grid of |z| in [0, 40], and its tail maxima."""
+    z = np.linspace(0.0, 40.0, 400001)
+    phi = np.exp(-0.5 * z * z) * _PHI0
+    rows = []
+    for j in range(1, 11):
+        # Phi^(j) = phi^(j-1) = (-1)^(j-1) He_{j-1}(z) phi(z)
+        coef = np.zeros(j)
+        coef[-1] = 1.0
+        rows.append(np.abs(np.polynomial.hermite_e.hermeval(z, coef)) * phi)
+    values = np.array(rows)
+    # The tail maximum over |z| >= z_i, as a non-increasing function of z_i.
+    tails = np.maximum.accumulate(values[:, ::-1], axis=1)[:, ::-1]
+    return z, values, tails
+
+
+def hermite_sup(j):
+    """sup over real z of |Phi^(j)(z)| = |He_{j-1}(z)| phi(z), for j = 1..10.
+
+    Computed on a grid of step 1e-4 and raised by 1e-6 relative, more than the grid can miss
+    (the grid misses at most step^2 / 8 sup|Phi^(j+2)|, below 1e-7 of the value).
+
+    Examples
+    --------
+    >>> round(hermite_sup(1), 6), round(hermite_sup(3), 6)  # phi(0), |He_2(0)| phi(0)
+    (0.398942, 0.398942)
+    """
+    return float(_sup_table()[1][j - 1].max()) * (1 + 1e-6)
+
+
+def _tail_sup(j, z0):
+    """sup over |z| >= z0 of |Phi^(j)(z)|, for arrays z0 >= 0 (an upper bound)."""
+    grid, _, tails = _sup_table()
+    i = np.clip(np.searchsorted(grid, z0, side="right") - 1, 0, grid.size - 1)
+    return tails[j - 1][i] * (1 + 1e-6)
+
+
+def _hermite_terms(method, p):
+    """(s, terms) with G_n(x) = Phi(z) + sum kappa sigma^-e Phi^(j)(z), z = (x + s - np)/sigma.
+
+    ``terms`` holds (j, e, kappa); None for the methods that are not of this form.
+    """
+    q = 1.0 - p
+    if method == "normal":
+        return 0.0, ()
+    if method == "normal_cc":
+        return 0.5, ()
+    # He2 phi = Phi^(3), He3 phi = -Phi^(4), He5 phi = -Phi^(6), z phi = -Phi^(2).
+    skew = (3, 1, -(q - p) / 6.0)
+    if method == "edgeworth_cc":
+        return 0.5, (skew,)
+    if method == "edgeworth2_cc":
+        return 0.5, (skew, (4, 2, (1 - 6 * p * q) / 24.0), (6, 2, (q - p) ** 2 / 72.0),
+                     (2, 2, -1.0 / 24.0))  # fmt: skip
+    return None
+
+
+def hermite_form(x, n, p, method):
+    """G_n(x) of a normal form from its Hermite representation (for the tests), or None."""
+    form = _hermite_terms(method, p)
+    if form is None:
+        return None
+    s, terms = form
+    sigma = math.sqrt(n * p * (1 - p))
+    z = (np.asarray(x, dtype=np.float64) + s - n * p) / sigma
+    out = special.ndtr(z)
+    phi = np.exp(-0.5 * z * z) * _PHI0
+    for j, e, kappa in terms:
+        coef = np.zeros(j)
+        coef[-1] = 1.0
+        out = out + kappa * sigma**-e * (-1.0) ** (j - 1) * np.polynomial.hermite_e.hermeval(
+            z, coef) * phi  # fmt: skip
+    return out
+
+
+def step_bound(method, n, p):
+    """An upper bound rho_n on sup_k |R_n(k)|, non-increasing in n; None if none is known.
+
+    Parameters
+    ----------
+    method : str
+    n : array_like of int
+        n >= 1.
+    p : float
+        0 < p < 1.
+
+    Returns
+    -------
+    numpy.ndarray or None
+        rho_n for each n (see the module notes): the Taylor part and the coefficient mismatch
+        for the normal forms, p (1 - e^-p) for ``poisson``.
+
+    Examples
+    --------
+    >>> float(step_bound("poisson", [10], 0.1)[0]) == 0.1 * (1 - math.exp(-0.1))
+    True
+    """
+    n = np.asarray(n, dtype=np.float64)
+    q = 1.0 - p
+    if method == "poisson":
+        r = p if p <= 0.5 else q
+        return np.full(n.shape, r * -math.expm1(-r))
+    form = _hermite_terms(method, p)
+    if form is None:
+        return None
+    _, terms = form
+    sigma = np.sqrt(n * p * q)
+    third = hermite_sup(3) / sigma**3  # sup |G'''| from Phi(z): sup|Phi^(3)| / sigma^3
+    mismatch = np.zeros(n.shape)
+    for j, e, kappa in terms:
+        third = third + abs(kappa) * hermite_sup(j + 3) / sigma ** (e + 3)
+        mismatch = mismatch + abs(kappa) * (j - e) / (n * sigma**e)
+    moments = p * q * (p * p + q * q) + _ABS_Z3 * (p * q) ** 1.5
+    return third / 6.0 * moments + mismatch
+
+
+def tail_bound(method, n, p, metric):
+    """An upper bound on the error at n, non-increasing in n; None if none is known.
+
+    Parameters
+    ----------
+    method : str
+    n : array_like of int
+    p : float
+    metric : {"interval", "cdf"}
+
+    Returns
+    -------
+    numpy.ndarray or None
+        Berry-Esseen (Shevtsova 2011) plus the distance of G from Phi((x - np)/sigma) for the
+        normal forms, twice for the interval metric; min(p, q) for ``poisson`` (Barbour and
+        Hall 1984).
+
+    Examples
+    --------
+    >>> b = tail_bound("normal_cc", [10**6], 0.5, "cdf")[0]  # (0.4748 * 0.5 + 0.1995) / 500
+    >>> round(float(b), 7)
+    0.0008738
+    """
+    n = np.asarray(n, dtype=np.float64)
+    q = 1.0 - p
+    if method == "poisson":
+        return np.full(n.shape, min(p, q))
+    form = _hermite_terms(method, p)
+    if form is None:
+        return None
+    s, terms = form
+    sigma = np.sqrt(n * p * q)
+    out = (BERRY_ESSEEN * (p * p + q * q) + s * _PHI0) / sigma
+    for j, e, kappa in terms:
+        out = out + abs(kappa) * hermite_sup(j) / sigma**e
+    return 2.0 * out if metric == "interval" else out
+
+
+def _extension_bound(method, n, p):
+    """E_n >= |D_n(k)| at k = -1, k = n and every integer k outside [-1, n].
+
+    Notes
+    -----
+    Outside [-1, n], D_n(k) = -G_n(k) (k < -1) or 1 - G_n(k) (k > n). If M = max D_n and
+    m = min D_n over [-1, n], then M >= D_n(-1) >= -E and m <= D_n(-1) <= E, so adding values in
+    [-E, E] raises the oscillation by at most 2E: max(M, E) - min(m, -E) <= M - m + 2E.
+    For the normal forms, |G(k)| <= Phi(z) + sum |c_j| sup_{|t| >= |z|} |Phi^(j)(t)| below -1
+    (z = z(-1) <= 0, and alike above n); for the CDF-valued methods (Poisson, Camp-Paulson,
+    Peizer-Pratt, monotone in k between 0 and 1) E = max(G(-1), 1 - G(n)).
+    """
+    n = np.asarray(n, dtype=np.int64)
+    form = _hermite_terms(method, p)
+    if form is None:
+        k = np.stack([np.full(n.shape, -1), n])
+        g = approximate_cdf(k, n, p, method)
+        return np.maximum(np.abs(g[0]), np.abs(1.0 - g[1]))
+    s, terms = form
+    nf = n.astype(np.float64)
+    sigma = np.sqrt(nf * p * (1 - p))
+    z_lo = (-1.0 + s - nf * p) / sigma
+    z_hi = (nf + s - nf * p) / sigma
+    out = []
+    for z, far in ((z_lo, special.ndtr(-np.abs(z_lo))), (z_hi, special.ndtr(-np.abs(z_hi)))):
+        bound = far
+        for j, e, kappa in terms:
+            bound = bound + abs(kappa) * sigma**-e * _tail_sup(j, np.maximum(np.abs(z), 0.0))
+        out.append(bound)
+    # A z on the wrong side (z(-1) > 0 or z(n) < 0) is not a tail: no bound better than 1 + ...
+    wrong = (z_lo > 0) | (z_hi < 0)
+    return np.where(wrong, np.inf, np.maximum(out[0], out[1]))
+
+
+def _numeric_steps(method, ns, p):
+    """max over k of |R_j(k)| for each j in ``ns`` (small sigma), computed at every integer k.
+
+    R_j(k) = q G_j(k) + p G_j(k - 1) - G_{j+1}(k) on k = -1..j+1; integers more than
+    40 sigma + 5 from the mean are covered by the tail values of G at the window's edges.
+    """
+    ns = np.asarray(ns, dtype=np.int64)
+    q = 1.0 - p
+    sigma = math.sqrt((int(ns.max()) + 1) * p * q)
+    half = int(math.ceil(40.0 * sigma + 5.0))
+    mu = (ns + 1) * p
+    lo = np.maximum(-1, np.floor(mu).astype(np.int64) - half)
+    hi = np.minimum(ns + 1, np.floor(mu).astype(np.int64) + half)
+    width = int((hi - lo).max()) + 1
+    k = lo[:, None] + np.arange(width)[None, :]
+    valid = k <= hi[:, None]
+    k = np.minimum(k, hi[:, None])
+    n_col = ns[:, None]
+    g0 = approximate_cdf(k, n_col, p, method)
+    g1 = approximate_cdf(k - 1, n_col, p, method)
+    g_next = approximate_cdf(k, n_col + 1, p, method)
+    r = np.where(valid, np.abs(q * g0 + p * g1 - g_next), 0.0)
+    # Outside the window: every |R| <= |G| terms at the edges (monotone far tails).
+    below = np.stack([lo - 2, lo - 1])
+    above = np.stack([hi + 1, hi + 1])
+    tails = np.zeros(ns.size)
+    for m in (ns, ns + 1):
+        tails += np.where(lo > -1, np.abs(approximate_cdf(below, m, p, method)).max(axis=0), 0.0)
+        tails += np.where(hi < ns + 1,
+                          np.abs(1.0 - approximate_cdf(above, m, p, method)).max(axis=0), 0.0)  # fmt: skip
+    return r.max(axis=1) + 2.0 * tails + 1e-15
+
+
+@dataclass
+class _Question:
+    """One p: the known values, the bounds, and the engine calls made."""
+
+    p: float
+    tol: float
+    method: str
+    metric: str
+    known: dict = field(default_factory=dict)  # n -> error (grid, engine, extension)
+    evaluated: int = 0
+    numeric: dict = field(default_factory=dict)  # n -> numeric rho_n
+    exhausted: bool = False
+
+    def value(self, n):
+        """The error at integer n: a known value, else computed by the engine."""
+        v = self.known.get(n)
+        if v is None:
+            if self.evaluated >= MAX_EVALUATIONS:
+                self.exhausted = True
+                raise _Exhausted
+            ev = evaluate(int(n), [self.p], methods=(self.method,))
+            v = float((ev.interval if self.metric == "interval" else ev.cdf)[0, 0])
+            self.known[n] = v
+            self.evaluated += 1
+        return v
+
+    def safe(self, n):
+        return self.value(n) <= self.tol
+
+    def step_sum(self, a, count):
+        """An upper bound on rho_a + ... + rho_{a+count-1}; inf if none is known."""
+        if count <= 0:
+            return 0.0
+        best = math.inf
+        rho = step_bound(self.method, [a], self.p)
+        if rho is not None:
+            best = count * float(rho[0])  # rho is non-increasing in n
+        sigma = math.sqrt(a * self.p * (1 - self.p))
+        if sigma <= NUMERIC_SIGMA and count <= _NUMERIC_MAX_STEPS:
+            missing = [j for j in range(a, a + count) if j not in self.numeric]
+            for start in range(0, len(missing), 4096):
+                part = np.array(missing[start : start + 4096])
+                for j, r in zip(part.tolist(), _numeric_steps(self.method, part, self.p).tolist(),
+                                strict=True):  # fmt: skip
+                    self.numeric[j] = r
+            total = math.fsum(self.numeric[j] for j in range(a, a + count))
+            best = min(best, total * (1 + 1e-12))
+        return best
+
+    def certifies(self, a, b):
+        """Whether the known value at a certifies every integer strictly between a and b."""
+        count = b - a - 1
+        if count <= 0:
+            return True
+        va = self.known[a]
+        if not va <= self.tol:
+            return False
+        steps = self.step_sum(a, count)
+        if not math.isfinite(steps):
+            return False
+        ext = float(_extension_bound(self.method, [a], self.p)[0])
+        if self.metric == "interval":
+            bound = va + 2.0 * ext + 2.0 * steps
+        else:
+            bound = max(va, ext) + steps
+        return bound + _SLACK <= self.tol
+
+    def reach(self, a):
+        """How many integers after a its value certifies (for stepping beyond the atlas)."""
+        va = self.known[a]
+        rho = step_bound(self.method, [a], self.p)
+        if rho is None or not va <= self.tol:
+            return 0
+        ext = float(_extension_bound(self.method, [a], self.p)[0])
+        room = self.tol - _SLACK - (va + 2.0 * ext if self.metric == "interval" else max(va, ext))
+        per = (2.0 if self.metric == "interval" else 1.0) * float(rho[0])
+        return int(max(0.0, min(room / per, float(a)))) if per > 0 else a
+
+    def largest_unsafe(self, a, b):
+        """The largest integer strictly between a and b whose error exceeds tol, or None.
+
+        Every integer above the one returned (up to b - 1) is certified or evaluated safe.
+        """
+        if b - a <= 1 or self.certifies(a, b):
+            return None
+        if b - a > _BISECT_UNBOUNDED and not math.isfinite(self.step_sum(a, b - a - 1)):
+            raise _Exhausted  # no step bound: bisection would evaluate every integer
+        m = (a + b) // 2
+        self.value(m)
+        upper = self.largest_unsafe(m, b)
+        if upper is not None:
+            return upper
+        if not self.safe(m):
+            return m
+        return self.largest_unsafe(a, m)
+
+
+class _Exhausted(Exception):
+    """More engine evaluations would be needed than MAX_EVALUATIONS allows."""
+
+
+@dataclass(frozen=True)
+class Threshold:
+    """The answer to "from which n on is the error within tol, at every integer n?".
+
+    Attributes
+    ----------
+    n : int or None
+        The smallest N such that the error is within ``tol`` at every integer n from N to
+        ``upto`` (to infinity when ``upto`` is None); None when the largest n examined is not
+        within ``tol``.
+    p, tol : float
+    method, metric : str
+    upto : int or None
+        None: the claim holds for every integer n >= N (a large-n bound covers the rest);
+        else the largest n the claim covers (the atlas's end, or the last n evaluated).
+    exact : bool
+        True when every integer from N to ``upto`` (or to infinity) is covered: evaluated or
+        certified by the one-step bound. False when the method has no step bound where one was
+        needed, or the evaluation budget ran out: then only the grid's n are checked there.
+    failing : tuple or None
+        ``(N - 1, error)``: the integer just below N and its error (above tol), when N > 1.
+    runs : tuple of tuple
+        ``(first, last, safe, every_integer)`` from n = 1 to the end examined: stretches of n
+        within tol (``safe``) and not; ``every_integer`` says whether every integer of the
+        stretch is known to have that status, or only the grid's n in it.
+    grid_values : int
+        Values of the atlas grid used.
+    evaluated : int
+        Integers evaluated by the engine beyond the grid (refining gaps and beyond the end).
+    beyond : str or None
+        The argument for the n beyond those examined, in words.
+    grid_end : int
+        The atlas's largest n.
+    """
+
+    n: object
+    p: float
+    tol: float
+    method: str
+    metric: str
+    upto: object
+    exact: bool
+    failing: object
+    runs: tuple
+    grid_values: int
+    evaluated: int
+    beyond: object
+    grid_end: int
+
+    def basis(self):
+        """What the answer rests on, in one sentence."""
+        parts = [f"{self.grid_values:,} grid n"]
+        if self.evaluated:
+            parts.append(f"{self.evaluated:,} more integers computed by the engine")
+        checked = " and ".join(parts)
+        if not self.exact:
+            return (f"{checked}; only the grid's n are checked above n = {_fmt_n(self._dense())}"
+                    " (no step bound is available for this method there)")
+        text = (f"{checked}; every other integer bounded by the one-step bound "
+                "W(n+1) <= W(n) + 2 rho(n) (atlas.thresholds)")
+        if self.beyond:
+            text += f"; {self.beyond}"
+        return text
+
+    def _dense(self):
+        for first, last, _, every in self.runs:
+            if not every:
+                return first - 1
+        return self.grid_end
+
+    def describe_runs(self):
+        """The stretches of safe and unsafe n in plain words, one per line."""
+        lines = []
+        for first, last, safe, every in self.runs:
+            span = f"n = {_fmt_n(first)}" if first == last else (
+                f"n = {_fmt_n(first)} to {_fmt_n(last)}")  # fmt: skip
+            status = "within" if safe else "not within"
+            how = "at every integer" if every else "at the grid's n (not every integer checked)"
+            lines.append(f"{span}: {status} the tolerance {how}")
+        return lines
+
+
+def _fmt_n(n):
+    return f"{n:,}"
+
+
+def minimum_n(grid_n, values, p, tol, *, method, metric):
+    """The exact minimum n at one p: see :class:`Threshold` and the module notes.
+
+    Parameters
+    ----------
+    grid_n : numpy.ndarray of int64
+        The atlas's n axis, increasing.
+    values : numpy.ndarray of float64
+        The errors at ``grid_n`` (from the cube, or computed), the same length.
+    p, tol : float
+        0 < p < 1, tol > 0.
+    method, metric : str
+        Checked names.
+
+    Returns
+    -------
+    Threshold
+
+    Notes
+    -----
+    The gaps between the known n are walked from the top down. A gap whose lower end is within
+    tol and whose growth allowance (module notes, item 1) stays within tol is certified as a
+    whole; any other gap is bisected, the engine evaluating the midpoint, upper half first, until
+    an integer above tol is found (then N is the next integer) or every integer of the gap is
+    evaluated or certified. Only the gaps above N are examined this way.
+    """
+    question = _Question(p=float(p), tol=float(tol), method=method, metric=metric)
+    grid_n = np.asarray(grid_n, dtype=np.int64)
+    for n, v in zip(grid_n.tolist(), np.asarray(values, dtype=np.float64).tolist(), strict=True):
+        question.known[n] = v
+    grid_end = int(grid_n[-1])
+    points = grid_n.tolist()
+    upto, beyond = _beyond_the_end(question, points, grid_end)
+    exact = True
+    n_star = failing = None
+    if question.safe(points[-1]):
+        n_star = points[-1]
+        for i in range(len(points) - 1, 0, -1):
+            a, b = points[i - 1], points[i]
+            try:
+                u = question.largest_unsafe(a, b)
+            except _Exhausted:  # no step bound here, or the budget is spent: the grid n only
+                exact, u = False, None
+            if u is not None:
+                n_star, failing = u + 1, (u, question.known[u])
+                break
+            if not question.safe(a):
+                n_star, failing = a + 1, (a, question.known[a])
+                break
+            n_star = a
+    runs = _runs(question, n_star, points[-1], exact)
+    return Threshold(
+        n=n_star, p=float(p), tol=float(tol), method=method, metric=metric,
+        upto=upto, exact=exact, failing=failing, runs=runs, grid_values=int(grid_n.size),
+        evaluated=question.evaluated, beyond=beyond, grid_end=grid_end,
+    )  # fmt: skip
+
+
+def _beyond_the_end(question, points, grid_end):
+    """Step beyond the atlas's end until the large-n bound holds; (upto, words).
+
+    Appends the n evaluated to ``points``. ``upto`` is None when every larger n is covered.
+    """
+    method, metric, p, tol = question.method, question.metric, question.p, question.tol
+    if not question.safe(grid_end):
+        return grid_end, None
+    tail = tail_bound(method, [grid_end], p, metric)
+    if tail is None:
+        return grid_end, None
+    if tail[0] + _SLACK <= tol:
+        return None, _tail_words(method, metric, grid_end)
+    n_tail = _tail_start(method, p, metric, tol)
+    if n_tail is None or n_tail > EXTEND_MAX:
+        return grid_end, None
+    a = grid_end
+    try:
+        while a < n_tail:
+            # As far as the value at a certifies (its growth allowance), at most doubling.
+            b = min(n_tail, a + max(1, question.reach(a)) + 1)
+            question.value(b)
+            points.append(b)
+            a = b
+    except _Exhausted:
+        return points[-1], None
+    words = (f"n = {_fmt_n(grid_end)} to {_fmt_n(n_tail)} beyond the atlas's end evaluated "
+             f"where needed; {_tail_words(method, metric, n_tail)}")  # fmt: skip
+    return None, words
+
+
+def _tail_words(method, metric, n):
+    what = ("Berry-Esseen with Shevtsova's constant 0.4748 plus the distance of G from the "
+            "normal curve" if method != "poisson" else "the Poisson distance bound "
+            "p (1 - e^-np) <= p (Barbour and Hall 1984)")  # fmt: skip
+    return f"from n = {_fmt_n(n)} on, {what} keeps the {metric} error within tol"
+
+
+def _tail_start(method, p, metric, tol):
+    """The smallest n with tail_bound(n) + slack <= tol (the bound is non-increasing), or None."""
+    lo, hi = 1, 1
+    while tail_bound(method, [hi], p, metric)[0] + _SLACK > tol:
+        lo, hi = hi, hi * 2
+        if hi > 10**18:
+            return None
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        if tail_bound(method, [mid], p, metric)[0] + _SLACK <= tol:
+            hi = mid
+        else:
+            lo = mid
+    return hi
+
+
+def _runs(question, n_star, last, exact):
+    """Stretches of safe and unsafe n from 1 to ``last``, the largest n examined.
+
+    Below N the known n (grid and evaluated) are grouped by status; a stretch is exact for every
+    integer where its known n are consecutive integers. From N on the stretch is the answer's.
+    """
+    runs = []
+    tol = question.tol
+    limit = n_star if n_star is not None else last + 1
+    for n in sorted(k for k in question.known if k < limit):
+        safe = question.known[n] <= tol
+        if runs and runs[-1][2] == safe:
+            first, prev, _, every = runs[-1]
+            runs[-1] = (first, n, safe, every and n == prev + 1)
+        else:
+            runs.append((n, n, safe, True))
+    if n_star is not None:
+        runs.append((n_star, last, True, exact))
+    return tuple(runs)
