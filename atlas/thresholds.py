@@ -78,7 +78,8 @@ __all__ = ["BERRY_ESSEEN", "EXTEND_MAX", "Threshold", "hermite_sup", "minimum_n"
 BERRY_ESSEEN = 0.4748  # Shevtsova (2011), identically distributed summands
 EXTEND_MAX = 10**12  # the largest n evaluated beyond the atlas's end
 NUMERIC_SIGMA = 3.0  # rho_n is also computed directly where sigma_n is at most this
-MAX_EVALUATIONS = 20000  # engine evaluations per question before giving up (said in the answer)
+MAX_EVALUATIONS = 3000  # engine evaluations per question before giving up (said in the answer)
+_GAP_BUDGET = 1000  # a gap that needs more evaluations is left to its known n (said)
 _ABS_Z3 = 2.0 * math.sqrt(2.0 / math.pi)  # E|Z|^3 for a standard normal Z
 _PHI0 = 1.0 / math.sqrt(2.0 * math.pi)
 # Slack added to every certified bound: rounding in the bound and the engine's values.
@@ -195,11 +196,15 @@ def step_bound(method, n, p):
         return None
     _, terms = form
     sigma = np.sqrt(n * p * q)
+    sigma_next = np.sqrt((n + 1) * p * q)
     third = hermite_sup(3) / sigma**3  # sup |G'''| from Phi(z): sup|Phi^(3)| / sigma^3
     mismatch = np.zeros(n.shape)
+    log_r = 0.5 * np.log1p(-1.0 / (n + 1))  # r = sigma_n / sigma_{n+1} = sqrt(n / (n + 1))
     for j, e, kappa in terms:
         third = third + abs(kappa) * hermite_sup(j + 3) / sigma ** (e + 3)
-        mismatch = mismatch + abs(kappa) * (j - e) / (n * sigma**e)
+        # |c_j(n) r^j - c_j(n+1)| sup|Phi^(j)| = |kappa| sigma_{n+1}^-e (1 - r^(j-e)) sup|Phi^(j)|
+        shrink = -np.expm1((j - e) * log_r) * (1 + 1e-12)
+        mismatch = mismatch + abs(kappa) * hermite_sup(j) * shrink / sigma_next**e
     moments = p * q * (p * p + q * q) + _ABS_Z3 * (p * q) ** 1.5
     return third / 6.0 * moments + mismatch
 
@@ -320,14 +325,14 @@ class _Question:
     known: dict = field(default_factory=dict)  # n -> error (grid, engine, extension)
     evaluated: int = 0
     numeric: dict = field(default_factory=dict)  # n -> numeric rho_n
-    exhausted: bool = False
+    uncovered: list = field(default_factory=list)  # gaps (a, b) left to their grid n
+    gap_start: int = 0  # evaluations made before the gap being examined
 
     def value(self, n):
         """The error at integer n: a known value, else computed by the engine."""
         v = self.known.get(n)
         if v is None:
             if self.evaluated >= MAX_EVALUATIONS:
-                self.exhausted = True
                 raise _Exhausted
             ev = evaluate(int(n), [self.p], methods=(self.method,))
             v = float((ev.interval if self.metric == "interval" else ev.cdf)[0, 0])
@@ -394,8 +399,7 @@ class _Question:
         """
         if b - a <= 1 or self.certifies(a, b):
             return None
-        if b - a > _BISECT_UNBOUNDED and not math.isfinite(self.step_sum(a, b - a - 1)):
-            raise _Exhausted  # no step bound: bisection would evaluate every integer
+        self._affordable(a, b)
         m = (a + b) // 2
         self.value(m)
         upper = self.largest_unsafe(m, b)
@@ -404,6 +408,47 @@ class _Question:
         if not self.safe(m):
             return m
         return self.largest_unsafe(a, m)
+
+    def smallest_unsafe(self, a, b):
+        """The smallest integer strictly between a and b whose error exceeds tol, or None.
+
+        Every integer below the one returned (down to a + 1) is certified or evaluated safe.
+        """
+        if b - a <= 1 or self.certifies(a, b):
+            return None
+        self._affordable(a, b)
+        m = (a + b) // 2
+        self.value(m)
+        lower = self.smallest_unsafe(a, m)
+        if lower is not None:
+            return lower
+        if not self.safe(m):
+            return m
+        return self.smallest_unsafe(m, b)
+
+    def _affordable(self, a, b):
+        """Raise _Exhausted when bisecting (a, b) would evaluate every integer (no step bound)
+        or the gap being examined has used up its share of engine evaluations."""
+        if self.evaluated - self.gap_start > _GAP_BUDGET:
+            raise _Exhausted
+        count = b - a - 1
+        if count <= _BISECT_UNBOUNDED:
+            return
+        steps = self.step_sum(a, count)
+        if not math.isfinite(steps):
+            raise _Exhausted  # no step bound: bisection would evaluate every integer
+        # Even with errors of 0 the pieces could be no longer than tol / (2 rho): too many?
+        if (2.0 if self.metric == "interval" else 1.0) * steps / self.tol > _GAP_BUDGET:
+            raise _Exhausted
+
+    def gap(self, a, b, finder):
+        """``finder(a, b)``, or the gap recorded as left to its grid n when it cannot be done."""
+        self.gap_start = self.evaluated
+        try:
+            return finder(a, b)
+        except _Exhausted:
+            self.uncovered.append((a, b))
+            return None
 
 
 class _Exhausted(Exception):
@@ -423,22 +468,25 @@ class Threshold:
     p, tol : float
     method, metric : str
     upto : int or None
-        None: the claim holds for every integer n >= N (a large-n bound covers the rest);
-        else the largest n the claim covers (the atlas's end, or the last n evaluated).
+        None: the claim holds for every integer n >= N (a large-n bound covers the n beyond
+        those examined); else the largest n the claim covers (the atlas's end, or the last n
+        evaluated beyond it).
     exact : bool
-        True when every integer from N to ``upto`` (or to infinity) is covered: evaluated or
-        certified by the one-step bound. False when the method has no step bound where one was
-        needed, or the evaluation budget ran out: then only the grid's n are checked there.
+        True when every integer from N on is covered: evaluated, or certified by the one-step
+        bound. False when some gaps above N are left to their grid n (``uncovered``).
     failing : tuple or None
         ``(N - 1, error)``: the integer just below N and its error (above tol), when N > 1.
     runs : tuple of tuple
-        ``(first, last, safe, every_integer)`` from n = 1 to the end examined: stretches of n
-        within tol (``safe``) and not; ``every_integer`` says whether every integer of the
-        stretch is known to have that status, or only the grid's n in it.
+        ``(first, last, safe, every_integer)`` from n = 1 to the largest n examined: stretches
+        of n within tol (``safe``) and not. ``every_integer``: every integer of the stretch is
+        known to have that status; else only the n evaluated in it (the grid's n and others).
+    uncovered : tuple of tuple
+        Gaps ``(a, b)`` above N whose integers strictly between a and b are not all covered (no
+        step bound for the method there, or too many evaluations needed).
     grid_values : int
         Values of the atlas grid used.
     evaluated : int
-        Integers evaluated by the engine beyond the grid (refining gaps and beyond the end).
+        Integers evaluated by the engine beyond the grid (in gaps and beyond the atlas's end).
     beyond : str or None
         The argument for the n beyond those examined, in words.
     grid_end : int
@@ -454,49 +502,54 @@ class Threshold:
     exact: bool
     failing: object
     runs: tuple
+    uncovered: tuple
     grid_values: int
     evaluated: int
     beyond: object
     grid_end: int
 
     def basis(self):
-        """What the answer rests on, in one sentence."""
-        parts = [f"{self.grid_values:,} grid n"]
+        """What the answer rests on, in words."""
+        used = f"{self.grid_values:,} grid n"
         if self.evaluated:
-            parts.append(f"{self.evaluated:,} more integers computed by the engine")
-        checked = " and ".join(parts)
-        if not self.exact:
-            return (f"{checked}; only the grid's n are checked above n = {_fmt_n(self._dense())}"
-                    " (no step bound is available for this method there)")
-        text = (f"{checked}; every other integer bounded by the one-step bound "
-                "W(n+1) <= W(n) + 2 rho(n) (atlas.thresholds)")
+            used += f" and {self.evaluated:,} more integers computed by the engine"
+        if self.n is None:
+            last = self.runs[-1][1] if self.runs else self.grid_end
+            return (f"not within the tolerance at n = {last:,}, the largest n examined "
+                    f"({used}); see the stretches below")  # fmt: skip
+        end = "on" if self.upto is None else f"to {self.upto:,}"
+        text = f"every integer n from {self.n:,} {end} is within the tolerance: {used}"
+        if self.exact:
+            text += ", every other integer bounded by the one-step bound W(n+1) <= W(n) + 2 rho(n)"
+        else:
+            first = min(a for a, _ in self.uncovered)
+            last = max(b for _, b in self.uncovered)
+            text += (f"; the one-step bound covers the rest except {len(self.uncovered)} gap(s) "
+                     f"between n = {first:,} and {last:,}, where only the n evaluated are checked "
+                     "(no step bound for this method there, or too many evaluations needed)")
         if self.beyond:
             text += f"; {self.beyond}"
+        elif self.upto is not None:
+            text += f"; beyond n = {self.upto:,} no bound is established"
         return text
 
-    def _dense(self):
-        for first, last, _, every in self.runs:
-            if not every:
-                return first - 1
-        return self.grid_end
-
     def describe_runs(self):
-        """The stretches of safe and unsafe n in plain words, one per line."""
+        """The stretches of n within the tolerance and not, one line each."""
         lines = []
         for first, last, safe, every in self.runs:
-            span = f"n = {_fmt_n(first)}" if first == last else (
-                f"n = {_fmt_n(first)} to {_fmt_n(last)}")  # fmt: skip
-            status = "within" if safe else "not within"
-            how = "at every integer" if every else "at the grid's n (not every integer checked)"
-            lines.append(f"{span}: {status} the tolerance {how}")
+            span = f"n = {first:,}" if first == last else f"n = {first:,} to {last:,}"
+            status = "within the tolerance" if safe else "not within the tolerance"
+            if first == last or every:
+                how = "" if first == last else " at every integer"
+            else:
+                how = " at the n evaluated (not every integer between them)"
+            lines.append(f"{span}: {status}{how}")
+        if self.n is not None and self.upto is None:
+            lines[-1] = lines[-1].replace(f"to {self.runs[-1][1]:,}", "on", 1)
         return lines
 
 
-def _fmt_n(n):
-    return f"{n:,}"
-
-
-def minimum_n(grid_n, values, p, tol, *, method, metric):
+def minimum_n(grid_n, values, p, tol, *, method, metric, runs=False):
     """The exact minimum n at one p: see :class:`Threshold` and the module notes.
 
     Parameters
@@ -509,6 +562,8 @@ def minimum_n(grid_n, values, p, tol, *, method, metric):
         0 < p < 1, tol > 0.
     method, metric : str
         Checked names.
+    runs : bool, optional
+        Also find the exact ends of the stretches within tol below N (more engine calls).
 
     Returns
     -------
@@ -529,16 +584,12 @@ def minimum_n(grid_n, values, p, tol, *, method, metric):
     grid_end = int(grid_n[-1])
     points = grid_n.tolist()
     upto, beyond = _beyond_the_end(question, points, grid_end)
-    exact = True
     n_star = failing = None
     if question.safe(points[-1]):
         n_star = points[-1]
         for i in range(len(points) - 1, 0, -1):
             a, b = points[i - 1], points[i]
-            try:
-                u = question.largest_unsafe(a, b)
-            except _Exhausted:  # no step bound here, or the budget is spent: the grid n only
-                exact, u = False, None
+            u = question.gap(a, b, question.largest_unsafe)
             if u is not None:
                 n_star, failing = u + 1, (u, question.known[u])
                 break
@@ -546,10 +597,11 @@ def minimum_n(grid_n, values, p, tol, *, method, metric):
                 n_star, failing = a + 1, (a, question.known[a])
                 break
             n_star = a
-    runs = _runs(question, n_star, points[-1], exact)
+    stretches = _runs(question, points, n_star, refine=runs)
     return Threshold(
         n=n_star, p=float(p), tol=float(tol), method=method, metric=metric,
-        upto=upto, exact=exact, failing=failing, runs=runs, grid_values=int(grid_n.size),
+        upto=upto, exact=not question.uncovered, failing=failing, runs=stretches,
+        uncovered=tuple(question.uncovered), grid_values=int(grid_n.size),
         evaluated=question.evaluated, beyond=beyond, grid_end=grid_end,
     )  # fmt: skip
 
@@ -580,7 +632,7 @@ def _beyond_the_end(question, points, grid_end):
             a = b
     except _Exhausted:
         return points[-1], None
-    words = (f"n = {_fmt_n(grid_end)} to {_fmt_n(n_tail)} beyond the atlas's end evaluated "
+    words = (f"n = {grid_end:,} to {n_tail:,} beyond the atlas's end evaluated "
              f"where needed; {_tail_words(method, metric, n_tail)}")  # fmt: skip
     return None, words
 
@@ -589,7 +641,7 @@ def _tail_words(method, metric, n):
     what = ("Berry-Esseen with Shevtsova's constant 0.4748 plus the distance of G from the "
             "normal curve" if method != "poisson" else "the Poisson distance bound "
             "p (1 - e^-np) <= p (Barbour and Hall 1984)")  # fmt: skip
-    return f"from n = {_fmt_n(n)} on, {what} keeps the {metric} error within tol"
+    return f"from n = {n:,} on, {what} keeps the {metric} error within tol"
 
 
 def _tail_start(method, p, metric, tol):
@@ -608,22 +660,74 @@ def _tail_start(method, p, metric, tol):
     return hi
 
 
-def _runs(question, n_star, last, exact):
-    """Stretches of safe and unsafe n from 1 to ``last``, the largest n examined.
+def _runs(question, points, n_star, *, refine):
+    """Stretches of n within tol and not, from n = 1 to the largest n examined.
 
-    Below N the known n (grid and evaluated) are grouped by status; a stretch is exact for every
-    integer where its known n are consecutive integers. From N on the stretch is the answer's.
+    From N on, the answer's stretch. Below N, the known n grouped by status; with ``refine``,
+    each stretch within tol has its ends found exactly by bisection (the first integer above tol
+    after it, the last one before it) and its gaps certified, where the bounds allow.
     """
-    runs = []
     tol = question.tol
-    limit = n_star if n_star is not None else last + 1
-    for n in sorted(k for k in question.known if k < limit):
-        safe = question.known[n] <= tol
+    known = question.known
+    limit = n_star if n_star is not None else points[-1] + 1
+    below = [n for n in points if n < limit]
+    runs = []
+    for n in below:
+        safe = known[n] <= tol
         if runs and runs[-1][2] == safe:
-            first, prev, _, every = runs[-1]
-            runs[-1] = (first, n, safe, every and n == prev + 1)
+            runs[-1][1] = n
         else:
-            runs.append((n, n, safe, True))
+            runs.append([n, n, safe])
+    out = []
+    for i, (first, last, safe) in enumerate(runs):
+        every = _consecutive(below, first, last)
+        if refine and safe:
+            every, first, last = _refine_run(question, below, runs, i, first, last)
+        out.append((first, last, safe, every))
+    # Unsafe stretches start after the safe one before them and end before the next.
+    fixed = []
+    for k, (first, last, safe, every) in enumerate(out):
+        if not safe:
+            if k > 0:
+                first = fixed[-1][1] + 1
+            if k + 1 < len(out):
+                last = out[k + 1][0] - 1
+            elif n_star is not None:
+                last = n_star - 1
+            every = every and _consecutive(sorted(known), first, last, tol, safe=False)
+        fixed.append((first, last, safe, every))
     if n_star is not None:
-        runs.append((n_star, last, True, exact))
-    return tuple(runs)
+        fixed.append((n_star, points[-1], True, not question.uncovered))
+    return tuple(fixed)
+
+
+def _consecutive(ns, first, last, tol=None, safe=None):
+    """Whether the known n from first to last are every integer between them."""
+    i = np.searchsorted(ns, first)
+    j = np.searchsorted(ns, last, side="right")
+    return j - i == last - first + 1
+
+
+def _refine_run(question, below, runs, i, first, last):
+    """Exact ends of the i-th stretch (within tol) of known n, and its gaps certified."""
+    every = True
+    start = below.index(first)
+    stop = below.index(last)
+    for a, b in zip(below[start:stop], below[start + 1 : stop + 1], strict=True):
+        if question.gap(a, b, question.smallest_unsafe) is not None or (a, b) in question.uncovered:
+            every = False
+    if i > 0:  # the integers after the unsafe n before the stretch
+        v = runs[i - 1][1]
+        u = question.gap(v, first, question.largest_unsafe)
+        if (v, first) not in question.uncovered:
+            first = (u if u is not None else v) + 1
+        else:
+            every = False
+    if i + 1 < len(runs):  # the integers before the unsafe n after it
+        w = runs[i + 1][0]
+        u = question.gap(last, w, question.smallest_unsafe)
+        if (last, w) not in question.uncovered:
+            last = (u if u is not None else w) - 1
+        else:
+            every = False
+    return every, first, last
