@@ -72,7 +72,8 @@ from scipy import special
 from atlas.approximations import approximate_cdf
 from atlas.engine import evaluate
 
-__all__ = ["BERRY_ESSEEN", "EXTEND_MAX", "Threshold", "hermite_sup", "minimum_n", "step_bound",
+__all__ = ["BERRY_ESSEEN", "EXTEND_MAX", "RangeThreshold", "Threshold", "hermite_sup", "minimum_n",
+           "minimum_n_over", "step_bound",
            "tail_bound"]  # fmt: skip
 
 BERRY_ESSEEN = 0.4748  # Shevtsova (2011), identically distributed summands
@@ -105,6 +106,7 @@ def _sup_table():
     return z, values, tails
 
 
+@lru_cache(maxsize=None)
 def hermite_sup(j):
     """sup over real z of |Phi^(j)(z)| = |He_{j-1}(z)| phi(z), for j = 1..10.
 
@@ -731,3 +733,135 @@ def _refine_run(question, below, runs, i, first, last):
         else:
             every = False
     return every, first, last
+
+
+REFINE_ROUNDS = 8  # rounds of bisection in p for min_n_over
+REFINE_PER_ROUND = 4  # new p per round at most
+REFINE_SPREAD = 0.02  # neighbours within this share of the largest N are bisected
+
+
+@dataclass(frozen=True)
+class RangeThreshold:
+    """The answer to "from which n on is the error within tol for every p in [p_lo, p_hi]?".
+
+    Attributes
+    ----------
+    n : int or None
+        The largest of the per-p answers (the smallest N that serves every p checked); None
+        when some p checked has none.
+    p_lo, p_hi, tol : float
+    method, metric : str
+    per_p : tuple of Threshold
+        The answer at each p checked, in increasing p.
+    grid_p : int
+        How many of the p checked are grid p (the rest: both ends and the p added by bisection).
+    worst_p : float
+        The p whose answer decides ``n`` (the first None, else the largest N).
+    """
+
+    n: object
+    p_lo: float
+    p_hi: float
+    tol: float
+    method: str
+    metric: str
+    per_p: tuple
+    grid_p: int
+    worst_p: float
+
+    @property
+    def exact(self):
+        """Whether every per-p answer covers every integer from its N on."""
+        return all(t.exact for t in self.per_p)
+
+    @property
+    def upto(self):
+        """The largest n the claim covers at every p checked; None for every n."""
+        ends = [t.upto for t in self.per_p if t.upto is not None]
+        return min(ends) if ends else None
+
+    def checked(self):
+        """Which p were checked, in words."""
+        ps = np.array([t.p for t in self.per_p])
+        logit = np.log(ps / (1 - ps))
+        spacing = float(np.diff(logit).max()) if ps.size > 1 else 0.0
+        added = ps.size - self.grid_p
+        return (f"{ps.size} p checked in [{self.p_lo:g}, {self.p_hi:g}]: the grid's {self.grid_p}, "
+                f"and {added} more (both ends, and midpoints in log-odds next to the largest "
+                f"minimum n or between neighbours within {REFINE_SPREAD:.0%} of it); "
+                f"largest log-odds step between p checked {spacing:.3g}; the p between them "
+                "are not computed")  # fmt: skip
+
+    def basis(self):
+        """What the answer rests on, in words."""
+        worst = next(t for t in self.per_p if t.p == self.worst_p)
+        return f"{self.checked()}; decided at p = {self.worst_p:.6g}: {worst.basis()}"
+
+
+def minimum_n_over(grid_n, grid_p, column, p_lo, p_hi, tol, *, method, metric):
+    """The minimum n for every p of [p_lo, p_hi]: per p as :func:`minimum_n`, refined in p.
+
+    Parameters
+    ----------
+    grid_n : numpy.ndarray of int64
+        The atlas's n axis.
+    grid_p : numpy.ndarray of float64
+        The grid p inside [p_lo, p_hi].
+    column : callable
+        ``column(ps)`` returns the errors at ``grid_n`` for each p of ``ps``, shape
+        (len(grid_n), len(ps)).
+    p_lo, p_hi, tol : float
+    method, metric : str
+
+    Returns
+    -------
+    RangeThreshold
+
+    Notes
+    -----
+    Safe at every n >= N for every p means N >= N(p) for every p, so the answer is the
+    largest per-p N. The p checked are the grid p in the range, both ends, and midpoints in
+    log-odds added in rounds next to the p of the largest N and between neighbours whose N both
+    come within ``REFINE_SPREAD`` of it (``REFINE_ROUNDS`` rounds of at most
+    ``REFINE_PER_ROUND``): where a p between two checked ones could come out largest.
+    """
+    results = {}
+
+    def solve(ps):
+        ps = np.array(sorted(set(ps) - set(results)), dtype=np.float64)
+        if ps.size:
+            values = column(ps)
+            for j, p in enumerate(ps.tolist()):
+                results[p] = minimum_n(grid_n, values[:, j], p, tol, method=method, metric=metric)
+
+    grid_p = [float(x) for x in grid_p]
+    solve(grid_p + [float(p_lo), float(p_hi)])
+    for _ in range(REFINE_ROUNDS):
+        if any(t.n is None for t in results.values()):
+            break  # the answer is None whatever lies between
+        ps = sorted(results)
+        top = max(results[p].n for p in ps)
+        new = []
+        for pa, pb in zip(ps[:-1], ps[1:], strict=True):
+            # Bisect where a p between could come out largest: next to the largest N, or
+            # where both neighbours come within REFINE_SPREAD of it.
+            if min(results[pa].n, results[pb].n) >= (1 - REFINE_SPREAD) * top or top in (
+                    results[pa].n, results[pb].n):  # fmt: skip
+                la, lb = math.log(pa / (1 - pa)), math.log(pb / (1 - pb))
+                mid = 1.0 / (1.0 + math.exp(-(la + lb) / 2))
+                if pa < mid < pb and (pb - pa) > 1e-9 * pb:
+                    new.append((max(results[pa].n, results[pb].n), mid))
+        if not new:
+            break
+        new.sort(reverse=True)  # the largest neighbours first
+        solve([mid for _, mid in new[:REFINE_PER_ROUND]])
+    per_p = tuple(results[p] for p in sorted(results))
+    missing = [t for t in per_p if t.n is None]
+    if missing:
+        n_star, worst_p = None, missing[0].p
+    else:
+        top = max(per_p, key=lambda t: t.n)
+        n_star, worst_p = top.n, top.p
+    return RangeThreshold(n=n_star, p_lo=float(p_lo), p_hi=float(p_hi), tol=float(tol),
+                          method=method, metric=metric, per_p=per_p,
+                          grid_p=len(set(grid_p)), worst_p=worst_p)  # fmt: skip
