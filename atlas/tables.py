@@ -101,13 +101,13 @@ class ThresholdTable:
     tols : tuple of float
     ps : tuple of float
     min_n : tuple of tuple
-        ``min_n[i][j]`` for ``ps[i]`` and ``tols[j]``: an int, or None when even the largest n of
-        the grid fails.
+        ``min_n[i][j]`` for ``ps[i]`` and ``tols[j]``: an int N such that the error is within the
+        tolerance at every integer n >= N (:meth:`atlas.Atlas.threshold`), or None when the
+        largest n examined fails.
     n_max : int
         The largest n of the atlas grid.
     dense_n : int
-        Up to this n the grid holds every integer, and a minimum n there is exact for every
-        integer; beyond it only grid n are checked.
+        Up to this n the grid holds every integer.
     provenance : str
         :func:`atlas.figures.provenance_line` of the atlas.
     """
@@ -120,31 +120,43 @@ class ThresholdTable:
     n_max: int
     dense_n: int
     provenance: str
+    partial: tuple = ()  # (i, j) of entries not covered at every integer (see notes)
+    bounded: tuple = ()  # (i, j) of entries covered only up to the atlas's end
 
     def title(self):
         return f"Minimum n for {self.method}, {self.metric} error"
 
-    def _cell(self, value):
+    def _cell(self, value, where=None):
         if value is None:
             return f"> {_compact_n(self.n_max)}"
-        return f"{value:,}" + (" †" if value > self.dense_n else "")
+        mark = " ‡" if where in self.partial else (" §" if where in self.bounded else "")
+        return f"{value:,}{mark}"
 
     def notes(self):
         """The footnotes of the table, as a list of sentences."""
-        return [
-            f"Each entry is the smallest n of the atlas grid from which on the worst-case "
-            f"{self.metric} error of {self.method} stays within the tolerance "
-            f"({METRIC_FORMULAS[self.metric]}).",
-            f"'> {_compact_n(self.n_max)}': not reached within the grid (n up to {self.n_max:,}).",
-            f"†: beyond n = {self.dense_n:,} only the grid's n are checked, not every integer.",
+        notes = [
+            f"Each entry N is the smallest n such that the worst-case {self.metric} error of "
+            f"{self.method} is within the tolerance at every integer n >= N "
+            f"({METRIC_FORMULAS[self.metric]}): the grid's values, the engine at the integers "
+            "where the error can still cross the tolerance, a proven bound on its growth from "
+            "one n to the next in between, and a Berry-Esseen bound beyond (atlas.thresholds).",
+            f"'> {_compact_n(self.n_max)}': the error at n = {self.n_max:,}, the atlas's end, "
+            "exceeds the tolerance.",
         ]
+        if self.partial:
+            notes.append("‡: no step bound for this method in some gaps above N; there only the "
+                         "n evaluated are checked.")  # fmt: skip
+        if self.bounded:
+            notes.append(f"§: covered up to n = {self.n_max:,}, the atlas's end; no bound "
+                         "is established beyond it.")  # fmt: skip
+        return notes
 
     def to_rows(self):
         """Header and rows of display strings (for the sheet and the wiki)."""
         header = ["p"] + [f"tol {format_level(t)}" for t in self.tols]
         rows = [
-            [_fmt_p(p)] + [self._cell(v) for v in values]
-            for p, values in zip(self.ps, self.min_n, strict=True)
+            [_fmt_p(p)] + [self._cell(v, (i, j)) for j, v in enumerate(values)]
+            for i, (p, values) in enumerate(zip(self.ps, self.min_n, strict=True))
         ]
         return header, rows
 
@@ -176,6 +188,10 @@ class ThresholdTable:
                 "min_n": [list(row) for row in self.min_n],
                 "n_max": self.n_max,
                 "dense_n": self.dense_n,
+                "every_integer": [[(i, j) not in self.partial for j in range(len(self.tols))]
+                                  for i in range(len(self.ps))],
+                "beyond_the_end": [[(i, j) not in self.bounded for j in range(len(self.tols))]
+                                   for i in range(len(self.ps))],
                 "atlas": self.provenance,
             }
         )
@@ -188,7 +204,7 @@ class ThresholdTable:
 
 def threshold_table(atlas, tols=TABLE_TOLS, ps=TABLE_PS, *, method="normal_cc",
                     metric="interval"):  # fmt: skip
-    """The minimum n for each tolerance and p, from :meth:`atlas.Atlas.min_n`.
+    """The minimum n for each tolerance and p, from :meth:`atlas.Atlas.threshold`.
 
     Parameters
     ----------
@@ -224,9 +240,10 @@ def threshold_table(atlas, tols=TABLE_TOLS, ps=TABLE_PS, *, method="normal_cc",
     ps = _numbers(ps, "ps")
     check_metric(metric)
     atlas = _as_atlas(atlas)
-    values = tuple(
-        tuple(atlas.min_n(p, tol, method=method, metric=metric) for tol in tols) for p in ps
-    )
+    answers = [[atlas.threshold(p, tol, method=method, metric=metric, runs=False) for tol in tols]
+               for p in ps]  # fmt: skip
+    values = tuple(tuple(a.n for a in row) for row in answers)
+    cells = [(i, j, a) for i, row in enumerate(answers) for j, a in enumerate(row) if a.n]
     return ThresholdTable(
         method=method,
         metric=metric,
@@ -236,6 +253,8 @@ def threshold_table(atlas, tols=TABLE_TOLS, ps=TABLE_PS, *, method="normal_cc",
         n_max=int(atlas.n[-1]),
         dense_n=int(atlas.dense_n),
         provenance=provenance_line(atlas),
+        partial=tuple((i, j) for i, j, a in cells if not a.exact),
+        bounded=tuple((i, j) for i, j, a in cells if a.exact and a.upto is not None),
     )
 
 

@@ -696,18 +696,18 @@ def _runs(question, points, n_star, *, refine):
                 last = out[k + 1][0] - 1
             elif n_star is not None:
                 last = n_star - 1
-            every = every and _consecutive(sorted(known), first, last, tol, safe=False)
-        fixed.append((first, last, safe, every))
+            every = every and _consecutive(sorted(known), first, last)
+        fixed.append((int(first), int(last), bool(safe), bool(every)))
     if n_star is not None:
         fixed.append((n_star, points[-1], True, not question.uncovered))
     return tuple(fixed)
 
 
-def _consecutive(ns, first, last, tol=None, safe=None):
+def _consecutive(ns, first, last):
     """Whether the known n from first to last are every integer between them."""
     i = np.searchsorted(ns, first)
     j = np.searchsorted(ns, last, side="right")
-    return j - i == last - first + 1
+    return bool(j - i == last - first + 1)
 
 
 def _refine_run(question, below, runs, i, first, last):

@@ -31,21 +31,22 @@ def test_table_is_the_query_api(chart_atlas):
 
 
 @pytest.mark.parametrize("method", ["normal_cc", "poisson"])
-def test_table_against_the_cube(chart_atlas, method):
-    # Brute force over the stored errors: n* is on the grid, every grid n from n* on is within
-    # tol and the grid n before it is not; None when the largest n fails.
+def test_table_against_the_engine(chart_atlas, method):
+    # Brute force at the integers around each entry: N - 1 exceeds tol (the engine), N and the
+    # integers after it up to 2 N are within it; None when the atlas's end fails (the cube).
     table = tables.threshold_table(chart_atlas, TOLS, PS, method=method)
     ds = chart_atlas.dataset
-    n = ds["n"].values
-    for p, row in zip(PS, table.min_n, strict=True):
+    for i, (p, row) in enumerate(zip(PS, table.min_n, strict=True)):
         column = ds["interval_error"].sel({"method": method, "p": p}).values
-        for tol, value in zip(TOLS, row, strict=True):
+        for j, (tol, value) in enumerate(zip(TOLS, row, strict=True)):
             if value is None:
                 assert column[-1] > tol
                 continue
-            i = int(np.flatnonzero(n == value)[0])
-            assert (column[i:] <= tol).all()
-            assert i == 0 or column[i - 1] > tol
+            if (i, j) in table.partial:
+                continue
+            ints = np.unique(np.linspace(value, 2 * value, 200).astype(np.int64))
+            assert (worst_error(ints, p, method=method) <= tol).all()
+            assert value == 1 or worst_error(value - 1, p, method=method) > tol
 
 
 def test_table_at_one_half_from_the_engine(chart_atlas):
@@ -74,9 +75,14 @@ def test_table_formats(chart_atlas):
     assert markdown.startswith("### Minimum n for poisson, interval error\n")
     assert "| p | tol 0.01 | tol 0.005 | tol 0.001 | tol 1e-4 |" in markdown
     assert "> 10⁵" in markdown  # None: not reached on a grid that ends at 10^5
-    assert "†: beyond n = 30 only the grid's n are checked" in markdown
-    for value in (v for row in table.min_n for v in row if v is not None):
-        assert f"{value:,}" + (" †" if value > 30 else "") in markdown
+    assert "†" not in markdown and "grid's n" not in markdown
+    assert "within the tolerance at every integer n >= N" in markdown
+    for i, row in enumerate(table.min_n):
+        for j, value in enumerate(row):
+            if value is not None:
+                mark = " ‡" if (i, j) in table.partial else (" §" if (i, j) in table.bounded
+                                                               else "")  # fmt: skip
+                assert f"{value:,}{mark} |" in markdown
     assert table.render("md") == markdown
     with pytest.raises(ValueError, match=r"^`format` must be one of 'csv', 'md', 'json'; got "
                                          r"'xml'\.$"):  # fmt: skip
