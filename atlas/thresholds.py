@@ -399,34 +399,39 @@ class _Question:
 
         Every integer above the one returned (up to b - 1) is certified or evaluated safe.
         """
-        if b - a <= 1 or self.certifies(a, b):
-            return None
-        self._affordable(a, b)
-        m = (a + b) // 2
-        self.value(m)
-        upper = self.largest_unsafe(m, b)
-        if upper is not None:
-            return upper
-        if not self.safe(m):
-            return m
-        return self.largest_unsafe(a, m)
+        return self._search(a, b, upper_first=True)
 
     def smallest_unsafe(self, a, b):
         """The smallest integer strictly between a and b whose error exceeds tol, or None.
 
         Every integer below the one returned (down to a + 1) is certified or evaluated safe.
         """
-        if b - a <= 1 or self.certifies(a, b):
-            return None
-        self._affordable(a, b)
-        m = (a + b) // 2
-        self.value(m)
-        lower = self.smallest_unsafe(a, m)
-        if lower is not None:
-            return lower
-        if not self.safe(m):
-            return m
-        return self.smallest_unsafe(m, b)
+        return self._search(a, b, upper_first=False)
+
+    def _search(self, a, b, *, upper_first):
+        """Split (a, b) until every piece is certified; the first unsafe split point in order.
+
+        A piece (a, b) is split at c = a + reach(a) + 1 when a is within tol (the value at a
+        certifies every integer up to c - 1, so the piece below c needs no more evaluations),
+        else at the midpoint. Pieces are examined from the top (``upper_first``) or the bottom.
+        """
+        stack = [("gap", a, b)]
+        while stack:
+            item = stack.pop()
+            if item[0] == "point":
+                if not self.safe(item[1]):
+                    return item[1]
+                continue
+            _, lo, hi = item
+            if hi - lo <= 1 or self.certifies(lo, hi):
+                continue
+            self._affordable(lo, hi)
+            reach = self.reach(lo) if self.safe(lo) else 0
+            c = lo + reach + 1 if reach >= 1 and lo + reach + 1 < hi else (lo + hi) // 2
+            self.value(c)
+            order = [("gap", lo, c), ("point", c), ("gap", c, hi)]
+            stack += order if upper_first else order[::-1]
+        return None
 
     def _affordable(self, a, b):
         """Raise _Exhausted when bisecting (a, b) would evaluate every integer (no step bound)
