@@ -594,12 +594,16 @@ class Atlas:
         ValueError
             As for :meth:`min_n`.
         """
-        p_value = _scalar(check_p(p), "p", "number")
+        p_value = float(_scalar(check_p(p), "p", "number"))
         tol_value, method = _question(tol, method, metric)
-        n_axis, _ = self._axes()
-        values = self._columns(0, n_axis.size, np.array([p_value]), method, metric)[:, 0]
-        return minimum_n(n_axis, values, float(p_value), tol_value, method=method,
-                         metric=metric, runs=runs)  # fmt: skip
+        key = ("threshold", p_value, tol_value, method, metric, bool(runs))
+        answer = self._cache.get(key)  # answers are kept: tables, sheets and wiki ask again
+        if answer is None:
+            n_axis, _ = self._axes()
+            values = self._columns(0, n_axis.size, np.array([p_value]), method, metric)[:, 0]
+            answer = self._cache[key] = minimum_n(n_axis, values, p_value, tol_value,
+                                                  method=method, metric=metric, runs=runs)  # fmt: skip
+        return answer
 
     def min_n_over(self, p_lo, p_hi, tol, *, method="normal_cc", metric="interval"):
         """The smallest N such that the error is within ``tol`` at every integer n >= N, for
