@@ -624,9 +624,9 @@ def _beyond_the_end(question, points, grid_end):
     tail = tail_bound(method, [grid_end], p, metric)
     if tail is None:
         return grid_end, None
-    if tail[0] + _SLACK <= tol:
-        return None, _tail_words(method, metric, grid_end)
     n_tail = _tail_start(method, p, metric, tol)
+    if tail[0] + _SLACK <= tol:
+        return None, _tail_words(method, metric, min(n_tail or grid_end, grid_end))
     if n_tail is None or n_tail > EXTEND_MAX:
         return grid_end, None
     a = grid_end
