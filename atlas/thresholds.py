@@ -15,9 +15,10 @@ module proves the rest, with three tools.
 
        W(n + m) <= W(n) + 2 E_n + 2 (rho_n + ... + rho_{n+m-1}),   rho_j >= sup_k |R_j(k)|,
 
-   and for the CDF metric max|D_{n+m}| <= max(C(n), E_n) + rho_n + ... + rho_{n+m-1}. E_n bounds
-   |D_n| at the integers outside [-1, n] that the recursion reaches (the tails of G_n); the
-   proof that the extension costs at most 2 E_n is in :func:`_extension_bound`. Known values
+   and for the CDF metric max|D_{n+m}| <= max(C(n), E_n) + rho_n + ... + rho_{n+m-1}. E_n
+   bounds what the integers outside [-1, n] that the recursion reaches (the tails of G_n) can
+   add; the proof is in :func:`_extension_bound` (E_n = 0 for the interval error of the
+   CDF-valued methods and of the plain normal curves). Known values
    of W therefore certify the integers after them as far as this growth allowance stays within
    ``tol``; where it does not, the engine evaluates more integers (bisection), so every integer
    is either evaluated or certified.
@@ -249,38 +250,62 @@ def tail_bound(method, n, p, metric):
     return 2.0 * out if metric == "interval" else out
 
 
-def _extension_bound(method, n, p):
-    """E_n >= |D_n(k)| at k = -1, k = n and every integer k outside [-1, n].
+_FAR_Z = 12.0  # beyond |z| = 12 the tails of the normal forms are below 1e-30
+
+
+def _extension_bound(method, n, p, metric):
+    """E_n: what the integers outside [-1, n] that the recursion reaches can add to the error.
+
+    Returns E (one per n) with osc over all k of D_n <= W(n) + 2 E (interval) and
+    max over k outside [0, n] of |D_n(k)| <= E (cdf).
 
     Notes
     -----
-    Outside [-1, n], D_n(k) = -G_n(k) (k < -1) or 1 - G_n(k) (k > n). If M = max D_n and
-    m = min D_n over [-1, n], then M >= D_n(-1) >= -E and m <= D_n(-1) <= E, so adding values in
-    [-E, E] raises the oscillation by at most 2E: max(M, E) - min(m, -E) <= M - m + 2E.
-    For the normal forms, |G(k)| <= Phi(z) + sum |c_j| sup_{|t| >= |z|} |Phi^(j)(t)| below -1
-    (z = z(-1) <= 0, and alike above n); for the CDF-valued methods (Poisson, Camp-Paulson,
-    Peizer-Pratt, monotone in k between 0 and 1) E = max(G(-1), 1 - G(n)).
+    Outside [-1, n], D_n(k) = -G_n(k) (k < -1) or 1 - G_n(k) (k > n). The maximum of D_n over
+    [-1, n] is at least max(D(-1), D(n)) and the minimum at most min(D(-1), D(n)), so the
+    extended values raise the oscillation by at most
+    max(0, max_ext - max(D(-1), D(n))) + max(0, min(D(-1), D(n)) - min_ext).
+
+    For the CDF-valued methods (Poisson, Camp-Paulson, Peizer-Pratt: monotone in k, between 0
+    and 1) the extended values lie between D(-1) = -G(-1) <= 0 and D(n) = 1 - G(n) >= 0, so E = 0
+    for the interval error, and E = max(G(-1), 1 - G(n)) for the CDF metric.
+
+    For the normal forms G = Phi(z) + sum_j c_j Phi^(j)(z), the extended values are computed at
+    every integer with |z| < 12; beyond, |G| (below) and |1 - G| (above) are at most
+    Phi(-12) + sum |c_j| sup_{|t| >= 12} |Phi^(j)(t)|, which widens the range of the values by
+    that much.
     """
-    n = np.asarray(n, dtype=np.int64)
+    n = np.atleast_1d(np.asarray(n, dtype=np.int64))
     form = _hermite_terms(method, p)
     if form is None:
+        if metric == "interval":
+            return np.zeros(n.shape)
         k = np.stack([np.full(n.shape, -1), n])
         g = approximate_cdf(k, n, p, method)
         return np.maximum(np.abs(g[0]), np.abs(1.0 - g[1]))
-    s, terms = form
-    nf = n.astype(np.float64)
-    sigma = np.sqrt(nf * p * (1 - p))
-    z_lo = (-1.0 + s - nf * p) / sigma
-    z_hi = (nf + s - nf * p) / sigma
-    out = []
-    for z, far in ((z_lo, special.ndtr(-np.abs(z_lo))), (z_hi, special.ndtr(-np.abs(z_hi)))):
-        bound = far
-        for j, e, kappa in terms:
-            bound = bound + abs(kappa) * sigma**-e * _tail_sup(j, np.maximum(np.abs(z), 0.0))
-        out.append(bound)
-    # A z on the wrong side (z(-1) > 0 or z(n) < 0) is not a tail: no bound better than 1 + ...
-    wrong = (z_lo > 0) | (z_hi < 0)
-    return np.where(wrong, np.inf, np.maximum(out[0], out[1]))
+    _, terms = form
+    out = np.empty(n.shape)
+    for i, m in enumerate(n.tolist()):
+        sigma = math.sqrt(m * p * (1 - p))
+        far = special.ndtr(-_FAR_Z) + sum(
+            abs(kappa) * sigma**-e * float(_tail_sup(j, _FAR_Z)) for j, e, kappa in terms)
+        reach = int(math.ceil(_FAR_Z * sigma)) + 2
+        mu = m * p
+        low = np.arange(min(-2, int(math.floor(mu - reach))), -1)  # k <= -2 with |z| < 12
+        low = low[low >= mu - reach]
+        high = np.arange(m + 1, max(m + 2, int(math.ceil(mu + reach)) + 1))
+        high = high[high <= mu + reach]
+        ends = approximate_cdf(np.array([-1, m]), m, p, method)
+        d_first, d_last = -ends[0], 1.0 - ends[1]
+        ext = np.concatenate([-approximate_cdf(low, m, p, method),
+                              1.0 - approximate_cdf(high, m, p, method), [far, -far]])  # fmt: skip
+        if metric == "interval":
+            up = max(0.0, float(ext.max()) + far - max(d_first, d_last))
+            down = max(0.0, min(d_first, d_last) - float(ext.min()) + far)
+            out[i] = 0.5 * (up + down)
+        else:
+            out[i] = max(float(np.abs(ext).max()) + far, abs(d_first))
+    return out
 
 
 def _numeric_steps(method, ns, p):
@@ -376,7 +401,7 @@ class _Question:
         steps = self.step_sum(a, count)
         if not math.isfinite(steps):
             return False
-        ext = float(_extension_bound(self.method, [a], self.p)[0])
+        ext = float(_extension_bound(self.method, [a], self.p, self.metric)[0])
         if self.metric == "interval":
             bound = va + 2.0 * ext + 2.0 * steps
         else:
@@ -389,7 +414,7 @@ class _Question:
         rho = step_bound(self.method, [a], self.p)
         if rho is None or not va <= self.tol:
             return 0
-        ext = float(_extension_bound(self.method, [a], self.p)[0])
+        ext = float(_extension_bound(self.method, [a], self.p, self.metric)[0])
         room = self.tol - _SLACK - (va + 2.0 * ext if self.metric == "interval" else max(va, ext))
         per = (2.0 if self.metric == "interval" else 1.0) * float(rho[0])
         return int(max(0.0, min(room / per, float(a)))) if per > 0 else a

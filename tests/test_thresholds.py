@@ -87,16 +87,20 @@ def test_tail_bound_holds(method, metric):
 
 
 def test_extension_bound_covers_the_far_tails():
-    # |D_n(k)| at k = -1, n and at integers outside [-1, n] is at most E_n (brute force over
-    # 200 integers either side).
+    # With D_n extended to 200 integers either side of [-1, n] (brute force): the oscillation
+    # grows by at most 2 E (interval), and |D| outside [0, n] is at most E (cdf).
     for method in HERMITE_METHODS + ("poisson", "camp_paulson"):
-        for n, p in [(5, 0.3), (40, 0.02), (300, 0.5), (1000, 0.001), (80, 0.9)]:
-            e = thresholds._extension_bound(method, [n], p)[0]
-            low = np.arange(-200, 0)
-            high = np.arange(n, n + 200)
-            d = np.concatenate([np.abs(approximate_cdf(low, n, p, method)),
-                                np.abs(1 - approximate_cdf(high, n, p, method))])  # fmt: skip
-            assert d.max() <= e, (method, n, p)
+        for n, p in [(5, 0.3), (40, 0.02), (300, 0.5), (1000, 0.001), (80, 0.9), (3, 0.01)]:
+            k = np.arange(-200, n + 200)
+            f = np.clip(atlas.engine._binom_cdf(k, n, p), 0, 1)
+            d = np.where(k < 0, 0.0, np.where(k >= n, 1.0, f)) - approximate_cdf(k, n, p, method)
+            inside = (k >= -1) & (k <= n)
+            w = d[inside].max() - d[inside].min()
+            e = thresholds._extension_bound(method, [n], p, "interval")[0]
+            assert d.max() - d.min() <= w + 2 * e + 1e-15, (method, n, p)
+            outside = (k < 0) | (k > n)
+            e_cdf = thresholds._extension_bound(method, [n], p, "cdf")[0]
+            assert np.abs(d[outside]).max() <= e_cdf + 1e-15, (method, n, p)
 
 
 def _every_integer(n_lo, n_hi, p, method="normal_cc", metric="interval"):
