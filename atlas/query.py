@@ -601,8 +601,9 @@ class Atlas:
         if answer is None:
             n_axis, _ = self._axes()
             values = self._columns(0, n_axis.size, np.array([p_value]), method, metric)[:, 0]
-            answer = self._cache[key] = minimum_n(n_axis, values, p_value, tol_value,
-                                                  method=method, metric=metric, runs=runs)  # fmt: skip
+            answer = minimum_n(n_axis, values, p_value, tol_value, method=method, metric=metric,
+                               runs=runs)  # fmt: skip
+            self._cache[key] = answer
         return answer
 
     def min_n_over(self, p_lo, p_hi, tol, *, method="normal_cc", metric="interval"):

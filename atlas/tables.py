@@ -188,10 +188,14 @@ class ThresholdTable:
                 "min_n": [list(row) for row in self.min_n],
                 "n_max": self.n_max,
                 "dense_n": self.dense_n,
-                "every_integer": [[(i, j) not in self.partial for j in range(len(self.tols))]
-                                  for i in range(len(self.ps))],
-                "beyond_the_end": [[(i, j) not in self.bounded for j in range(len(self.tols))]
-                                   for i in range(len(self.ps))],
+                "every_integer": [
+                    [(i, j) not in self.partial for j in range(len(self.tols))]
+                    for i in range(len(self.ps))
+                ],
+                "beyond_the_end": [
+                    [(i, j) not in self.bounded for j in range(len(self.tols))]
+                    for i in range(len(self.ps))
+                ],
                 "atlas": self.provenance,
             }
         )

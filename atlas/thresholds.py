@@ -65,7 +65,7 @@ Philos. Soc. 95, 473-480.
 
 import math
 from dataclasses import dataclass, field
-from functools import lru_cache
+from functools import cache
 
 import numpy as np
 from scipy import special
@@ -90,7 +90,7 @@ _NUMERIC_MAX_STEPS = 200000
 _BISECT_UNBOUNDED = 64  # gaps up to this wide are evaluated at every integer without a bound
 
 
-@lru_cache(maxsize=None)
+@cache
 def _sup_table():
     """|Phi^(j)(z)| for j = 1..10 on a fine grid of |z| in [0, 40], and its tail maxima."""
     z = np.linspace(0.0, 40.0, 400001)
@@ -107,7 +107,7 @@ def _sup_table():
     return z, values, tails
 
 
-@lru_cache(maxsize=None)
+@cache
 def hermite_sup(j):
     """sup over real z of |Phi^(j)(z)| = |He_{j-1}(z)| phi(z), for j = 1..10.
 
@@ -288,7 +288,8 @@ def _extension_bound(method, n, p, metric):
     for i, m in enumerate(n.tolist()):
         sigma = math.sqrt(m * p * (1 - p))
         far = special.ndtr(-_FAR_Z) + sum(
-            abs(kappa) * sigma**-e * float(_tail_sup(j, _FAR_Z)) for j, e, kappa in terms)
+            abs(kappa) * sigma**-e * float(_tail_sup(j, _FAR_Z)) for j, e, kappa in terms
+        )
         reach = int(math.ceil(_FAR_Z * sigma)) + 2
         mu = m * p
         low = np.arange(min(-2, int(math.floor(mu - reach))), -1)  # k <= -2 with |z| < 12
@@ -335,9 +336,9 @@ def _numeric_steps(method, ns, p):
     above = np.stack([hi + 1, hi + 1])
     tails = np.zeros(ns.size)
     for m in (ns, ns + 1):
-        tails += np.where(lo > -1, np.abs(approximate_cdf(below, m, p, method)).max(axis=0), 0.0)
-        tails += np.where(hi < ns + 1,
-                          np.abs(1.0 - approximate_cdf(above, m, p, method)).max(axis=0), 0.0)  # fmt: skip
+        g_below = np.abs(approximate_cdf(below, m, p, method)).max(axis=0)
+        g_above = np.abs(1.0 - approximate_cdf(above, m, p, method)).max(axis=0)
+        tails += np.where(lo > -1, g_below, 0.0) + np.where(hi < ns + 1, g_above, 0.0)
     return r.max(axis=1) + 2.0 * tails + 1e-15
 
 
@@ -556,9 +557,11 @@ class Threshold:
         else:
             first = min(a for a, _ in self.uncovered)
             last = max(b for _, b in self.uncovered)
-            text += (f"; the one-step bound covers the rest except {len(self.uncovered)} gap(s) "
-                     f"between n = {first:,} and {last:,}, where only the n evaluated are checked "
-                     "(no step bound for this method there, or too many evaluations needed)")
+            text += (
+                f"; the one-step bound covers the rest except {len(self.uncovered)} gap(s) "
+                f"between n = {first:,} and {last:,}, where only the n evaluated are checked "
+                "(no step bound for this method there, or too many evaluations needed)"
+            )
         if self.beyond:
             text += f"; {self.beyond}"
         elif self.upto is not None:

@@ -6,8 +6,8 @@ Prints, for the issue's speed case (p = 0.001, tolerance 0.001, normal_cc, inter
 - the answer N and what it rests on (grid values, integers computed by the engine);
 - the time of ``approx-atlas min-n`` as a fresh process (the user's wait), against the 10 s
   target, as a ratio;
-- the time of the search (:func:`atlas.thresholds.minimum_n`) in a warm process, and its ratio to one engine evaluation at
-  n = 10^6 (how many engine calls the answer costs in all);
+- the time of the search (:func:`atlas.thresholds.minimum_n`) in a warm process, and its
+  ratio to one engine evaluation at n = 10^6 (how many engine calls the answer costs in all);
 - integers covered per engine evaluation (integers from N to the atlas's end, over the
   evaluations made).
 
@@ -19,8 +19,6 @@ import subprocess
 import sys
 import time
 from pathlib import Path
-
-import numpy as np
 
 import atlas
 from atlas.engine import evaluate

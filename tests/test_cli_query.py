@@ -150,7 +150,9 @@ def test_min_n_human(capsys, path):
         "normal_cc interval error <= 0.01 at p = 0.5: from n = 6 on (every integer n from 6 on)",
         "  n = 5 is not within it (error 0.0111382701)",  # computed, regression value
     ]
-    assert lines[2].startswith("  basis: every integer n from 6 on is within the tolerance: 48 grid n")
+    assert lines[2].startswith(
+        "  basis: every integer n from 6 on is within the tolerance: 48 grid n"
+    )
     assert "grid values" not in out and "only grid" not in out
     assert lines[-1] == f"  source: atlas (a stored cell of {path})"
     _, out, _ = run(capsys, "min-n", "--p", "0.5", "--tol", "1e-12", "--atlas", path)
