@@ -283,9 +283,20 @@ def _extension_bound(method, n, p, metric):
         k = np.stack([np.full(n.shape, -1), n])
         g = approximate_cdf(k, n, p, method)
         return np.maximum(np.abs(g[0]), np.abs(1.0 - g[1]))
-    _, terms = form
-    out = np.empty(n.shape)
-    for i, m in enumerate(n.tolist()):
+    s_shift, terms = form
+    nf = n.astype(np.float64)
+    sig = np.sqrt(nf * p * (1 - p))
+    far_all = special.ndtr(-_FAR_Z) + sum(
+        abs(kappa) * sig**-e * float(_tail_sup(j, _FAR_Z)) for j, e, kappa in terms
+    )
+    # Where z(-1) <= -12 and z(n) >= 12, every extended value and D(-1), D(n) are within
+    # `far` of 0: the maximum rises and the minimum falls by at most 3 far each.
+    remote = ((-1.0 + s_shift - nf * p) / sig <= -_FAR_Z) & (
+        (nf + s_shift - nf * p) / sig >= _FAR_Z
+    )
+    out = np.where(remote, (3.0 if metric == "interval" else 2.0) * far_all, np.nan)
+    for i in np.flatnonzero(~remote).tolist():
+        m = int(n[i])
         sigma = math.sqrt(m * p * (1 - p))
         far = special.ndtr(-_FAR_Z) + sum(
             abs(kappa) * sigma**-e * float(_tail_sup(j, _FAR_Z)) for j, e, kappa in terms
@@ -355,12 +366,13 @@ class _Question:
     numeric: dict = field(default_factory=dict)  # n -> numeric rho_n
     uncovered: list = field(default_factory=list)  # gaps (a, b) left to their grid n
     gap_start: int = 0  # evaluations made before the gap being examined
+    budget: int = MAX_EVALUATIONS  # engine evaluations allowed in all
 
     def value(self, n):
         """The error at integer n: a known value, else computed by the engine."""
         v = self.known.get(n)
         if v is None:
-            if self.evaluated >= MAX_EVALUATIONS:
+            if self.evaluated >= self.budget:
                 raise _Exhausted
             ev = evaluate(int(n), [self.p], methods=(self.method,))
             v = float((ev.interval if self.metric == "interval" else ev.cdf)[0, 0])
@@ -524,6 +536,10 @@ class Threshold:
         The argument for the n beyond those examined, in words.
     grid_end : int
         The atlas's largest n.
+    at_most : bool
+        True when the search stopped early because another p decides (:func:`minimum_n_over`):
+        every integer from ``n`` on is within tol, and smaller n were not examined, so ``n``
+        is an upper bound on this p's answer.
     """
 
     n: object
@@ -540,6 +556,7 @@ class Threshold:
     evaluated: int
     beyond: object
     grid_end: int
+    at_most: bool = False
 
     def basis(self):
         """What the answer rests on, in words."""
@@ -552,6 +569,8 @@ class Threshold:
                     f"({used}); see the stretches below")  # fmt: skip
         end = "on" if self.upto is None else f"to {self.upto:,}"
         text = f"every integer n from {self.n:,} {end} is within the tolerance: {used}"
+        if self.at_most:
+            text += " (smaller n not examined: another p decides)"
         if self.exact:
             text += ", every other integer bounded by the one-step bound W(n+1) <= W(n) + 2 rho(n)"
         else:
@@ -584,7 +603,8 @@ class Threshold:
         return lines
 
 
-def minimum_n(grid_n, values, p, tol, *, method, metric, runs=False):
+def minimum_n(grid_n, values, p, tol, *, method, metric, runs=False, floor=None,
+              budget=None):  # fmt: skip
     """The exact minimum n at one p: see :class:`Threshold` and the module notes.
 
     Parameters
@@ -599,6 +619,12 @@ def minimum_n(grid_n, values, p, tol, *, method, metric, runs=False):
         Checked names.
     runs : bool, optional
         Also find the exact ends of the stretches within tol below N (more engine calls).
+    floor : int, optional
+        Stop once every integer from ``floor`` on is known to be within tol: the answer is
+        then only an upper bound (``at_most``), enough where another p decides.
+    budget : int, optional
+        Engine evaluations allowed (default ``MAX_EVALUATIONS``); gaps left when it is spent
+        are reported in ``uncovered``.
 
     Returns
     -------
@@ -613,6 +639,7 @@ def minimum_n(grid_n, values, p, tol, *, method, metric, runs=False):
     evaluated or certified. Only the gaps above N are examined this way.
     """
     question = _Question(p=float(p), tol=float(tol), method=method, metric=metric)
+    question.budget = MAX_EVALUATIONS if budget is None else int(budget)
     grid_n = np.asarray(grid_n, dtype=np.int64)
     values = np.asarray(values, dtype=np.float64)
     for n, v in zip(grid_n.tolist(), values.tolist(), strict=True):
@@ -625,12 +652,36 @@ def minimum_n(grid_n, values, p, tol, *, method, metric, runs=False):
         question.value(n)
     grid_end = int(grid_n[-1])
     points = grid_n.tolist()
+    certified = _certified_gaps(question, grid_n)
     upto, beyond = _beyond_the_end(question, points, grid_end)
     n_star = failing = None
+    at_most = False
     if question.safe(points[-1]):
         n_star = points[-1]
         for i in range(len(points) - 1, 0, -1):
             a, b = points[i - 1], points[i]
+            if floor is not None and b <= floor:
+                at_most = True  # every integer from b <= floor on is covered: enough
+                break
+            if (a, b) in certified:  # certified by the value at a (computed for all at once)
+                n_star = a
+                continue
+            if floor is not None and a < floor - 1:  # only the integers from floor on matter
+                try:
+                    question.value(floor - 1)
+                except _Exhausted:
+                    question.uncovered.append((a, b))
+                    at_most, n_star = True, floor
+                    break
+                u = question.gap(floor - 1, b, question.largest_unsafe)
+                if u is None and not question.uncovered:
+                    at_most, n_star = True, floor
+                    break
+                if u is not None:
+                    n_star, failing = u + 1, (u, question.known[u])
+                    break
+                at_most, n_star = True, floor
+                break
             u = question.gap(a, b, question.largest_unsafe)
             if u is not None:
                 n_star, failing = u + 1, (u, question.known[u])
@@ -639,13 +690,36 @@ def minimum_n(grid_n, values, p, tol, *, method, metric, runs=False):
                 n_star, failing = a + 1, (a, question.known[a])
                 break
             n_star = a
-    stretches = _runs(question, points, n_star, refine=runs)
+    stretches = () if at_most else _runs(question, points, n_star, refine=runs)
     return Threshold(
         n=n_star, p=float(p), tol=float(tol), method=method, metric=metric,
         upto=upto, exact=not question.uncovered, failing=failing, runs=stretches,
         uncovered=tuple(question.uncovered), grid_values=int(grid_n.size),
-        evaluated=question.evaluated, beyond=beyond, grid_end=grid_end,
+        evaluated=question.evaluated, beyond=beyond, grid_end=grid_end, at_most=at_most,
     )  # fmt: skip
+
+
+def _certified_gaps(question, grid_n):
+    """The grid gaps (a, b) that the value at a certifies, found for all gaps at once.
+
+    The same test as :meth:`_Question.certifies` with the closed-form step bound, vectorised;
+    gaps it leaves out are examined one by one.
+    """
+    a, b = grid_n[:-1], grid_n[1:]
+    count = b - a - 1
+    wide = count > 0
+    a, b, count = a[wide], b[wide], count[wide]
+    rho = step_bound(question.method, a, question.p) if a.size else None
+    if rho is None:
+        return set()
+    va = np.array([question.known[n] for n in a.tolist()])
+    ext = _extension_bound(question.method, a, question.p, question.metric)
+    if question.metric == "interval":
+        bound = va + 2.0 * ext + 2.0 * count * rho
+    else:
+        bound = np.maximum(va, ext) + count * rho
+    ok = (va <= question.tol) & (bound + _SLACK <= question.tol)
+    return set(zip(a[ok].tolist(), b[ok].tolist(), strict=True))
 
 
 def _beyond_the_end(question, points, grid_end):
@@ -777,6 +851,7 @@ def _refine_run(question, below, runs, i, first, last):
 
 REFINE_ROUNDS = 8  # rounds of bisection in p for min_n_over
 REFINE_PER_ROUND = 4  # new p per round at most
+_RANGE_BUDGET = 300  # engine evaluations for each p after the first in min_n_over
 REFINE_SPREAD = 0.02  # neighbours within this share of the largest N are bisected
 
 
@@ -866,13 +941,31 @@ def minimum_n_over(grid_n, grid_p, column, p_lo, p_hi, tol, *, method, metric):
     ``REFINE_PER_ROUND``): where a p between two checked ones could come out largest.
     """
     results = {}
+    estimate = {}  # p -> its answer, or the grid's lower bound on it where only bounded above
 
     def solve(ps):
         ps = np.array(sorted(set(ps) - set(results)), dtype=np.float64)
-        if ps.size:
-            values = column(ps)
-            for j, p in enumerate(ps.tolist()):
-                results[p] = minimum_n(grid_n, values[:, j], p, tol, method=method, metric=metric)
+        if not ps.size:
+            return
+        values = column(ps)
+        # The grid's lower bound on each answer: one past the largest grid n above tol.
+        lower = []
+        for j in range(ps.size):
+            bad = np.flatnonzero(~(values[:, j] <= tol))
+            lower.append(1 if bad.size == 0 else int(grid_n[bad[-1]]) + 1)
+        # Largest lower bound first: the p likely to decide is searched in full, and the
+        # others only down to the largest answer so far (their answers cannot exceed it then).
+        for j in sorted(range(ps.size), key=lambda j: -lower[j]):
+            p = float(ps[j])
+            known = [t.n for t in results.values() if not t.at_most]
+            top = None if not known or None in known else max(known)
+            # Only the first p searched gets the whole budget: the others need only show that
+            # no integer from the largest answer on exceeds tol.
+            budget = None if top is None else _RANGE_BUDGET
+            answer = minimum_n(grid_n, values[:, j], p, tol, method=method, metric=metric,
+                               floor=top, budget=budget)  # fmt: skip
+            results[p] = answer
+            estimate[p] = lower[j] if answer.at_most else answer.n
 
     grid_p = [float(x) for x in grid_p]
     solve(grid_p + [float(p_lo), float(p_hi)])
@@ -880,17 +973,17 @@ def minimum_n_over(grid_n, grid_p, column, p_lo, p_hi, tol, *, method, metric):
         if any(t.n is None for t in results.values()):
             break  # the answer is None whatever lies between
         ps = sorted(results)
-        top = max(results[p].n for p in ps)
+        top = max(estimate[p] for p in ps)
         new = []
         for pa, pb in zip(ps[:-1], ps[1:], strict=True):
             # Bisect where a p between could come out largest: next to the largest N, or
             # where both neighbours come within REFINE_SPREAD of it.
-            if min(results[pa].n, results[pb].n) >= (1 - REFINE_SPREAD) * top or top in (
-                    results[pa].n, results[pb].n):  # fmt: skip
+            ea, eb = estimate[pa], estimate[pb]
+            if min(ea, eb) >= (1 - REFINE_SPREAD) * top or top in (ea, eb):
                 la, lb = math.log(pa / (1 - pa)), math.log(pb / (1 - pb))
                 mid = 1.0 / (1.0 + math.exp(-(la + lb) / 2))
                 if pa < mid < pb and (pb - pa) > 1e-9 * pb:
-                    new.append((max(results[pa].n, results[pb].n), mid))
+                    new.append((max(ea, eb), mid))
         if not new:
             break
         new.sort(reverse=True)  # the largest neighbours first
@@ -900,7 +993,7 @@ def minimum_n_over(grid_n, grid_p, column, p_lo, p_hi, tol, *, method, metric):
     if missing:
         n_star, worst_p = None, missing[0].p
     else:
-        top = max(per_p, key=lambda t: t.n)
+        top = max(per_p, key=lambda t: (t.n, not t.at_most))
         n_star, worst_p = top.n, top.p
     return RangeThreshold(n=n_star, p_lo=float(p_lo), p_hi=float(p_hi), tol=float(tol),
                           method=method, metric=metric, per_p=per_p,
