@@ -254,7 +254,7 @@ def _add_query_commands(commands):
     min_n = commands.add_parser("min-n", help="the smallest n from which the error stays in tol")
     where = min_n.add_mutually_exclusive_group(required=True)
     where.add_argument("--p", help="success probability, 0 < p < 1")
-    where.add_argument("--p-range", metavar="LO:HI", help="every grid p in [LO, HI]")
+    where.add_argument("--p-range", metavar="LO:HI", help="every p in [LO, HI] (see the basis)")
     min_n.add_argument("--tol", required=True, help="tolerance on the error, > 0")
     common(min_n)
     min_n.set_defaults(handler=_cmd_min_n)
