@@ -167,7 +167,9 @@ def _cmd_min_n(args):
                  f"(at n = {last:,}, the largest n examined, the error exceeds it)"]  # fmt: skip
     else:
         end = "on" if answer.upto is None else f"to {answer.upto:,}"
-        lines = [f"{head}: from n = {answer.n:,} on (every integer n from {answer.n:,} {end})"]
+        scope = (f"every integer n from {answer.n:,} {end}" if answer.exact
+                 else "not every integer between the n evaluated: see the basis")  # fmt: skip
+        lines = [f"{head}: from n = {answer.n:,} on ({scope})"]
         if failing is not None:
             lines.append(f"  n = {failing[0]:,} is not within it (error {failing[1]:.9g})")
     if args.p_range is not None:

@@ -353,3 +353,12 @@ def test_commands_leave_no_file_open(capsys, small_atlas):
     assert run(capsys, "compare", "--n", "5", "--p", "0.5", "--atlas", path)[0] == 0
     gc.collect()
     assert [e for e in store._OPEN.values() if str(e.path) == path] == []
+
+
+def test_min_n_without_a_step_bound_says_so_on_the_command_line(capsys, path, at):
+    answer = at.threshold(0.3, 0.001, method="camp_paulson")
+    assert not answer.exact  # no step bound for camp_paulson where sigma > 3
+    _, out, _ = run(capsys, "min-n", "--p", "0.3", "--tol", "0.001", "--method", "camp_paulson",
+                    "--atlas", path)  # fmt: skip
+    assert "(not every integer between the n evaluated: see the basis)" in out.splitlines()[0]
+    assert "only the n evaluated are checked" in out
