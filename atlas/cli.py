@@ -17,7 +17,7 @@ import sys
 
 from atlas import METHODS, METRICS, __version__
 from atlas.grid import DEFAULT_N_SPEC, DEFAULT_P_SPEC, describe_grid
-from atlas.notation import format_p, parse_probability, plural, rounded
+from atlas.notation import format_p, parse_probability, rounded
 
 PROG = "approx-atlas"
 _METHOD_LIST = ", ".join(METHODS)
@@ -213,8 +213,8 @@ def _p_range(text):
 
 
 def _cmd_min_n(args):
-    """Print the smallest grid n at which the error is within tol and stays so at every larger
-    grid n (at p, or at every grid p of a range)."""
+    """Print the smallest n from which the error stays within tol at every integer n (at p, or
+    at every p of a range)."""
     p_range = None if args.p_range is None else _p_range(args.p_range)
     p = None if args.p is None else parse_probability(args.p, "--p")
     atlas = _open_atlas(args)
@@ -223,57 +223,57 @@ def _cmd_min_n(args):
     if p_range is not None:
         lo, hi = p_range
         with _Options(p="--p-range", p_lo="--p-range", p_hi="--p-range"):
-            chosen = atlas.select_p(lo, hi)
-        result = atlas.min_n_over(lo, hi, tol, **options)
+            answer = atlas.threshold_over(lo, hi, tol, **options)
+        decided = next(t for t in answer.per_p if t.p == answer.worst_p)
+        where = f"every p in [{format_p(lo)}, {format_p(hi)}]"
         if lo == hi:
             where = f"p = {format_p(lo)}"
-        else:
-            where = (f"every grid p in [{format_p(lo)}, {format_p(hi)}] "
-                     f"({plural(chosen.size, 'value')})")  # fmt: skip
     else:
-        result = atlas.min_n(p, tol, **options)
-        chosen = [p]
+        answer = decided = atlas.threshold(p, tol, **options)
         where = f"p = {format_p(p)}"
-    source = "atlas" if bool(atlas.on_grid(p=chosen, method=args.method).all()) else "computed"
-    n_axis, dense = atlas.n, atlas.dense_n
-    below = None
-    if result is not None and result > n_axis[0]:
-        below = int(n_axis[n_axis.searchsorted(result) - 1])
+    source = "atlas" if atlas.on_grid(p=decided.p, method=args.method) else "computed"
     tol = float(tol)
+    failing = decided.failing
     if args.json:
         _print_json({
-            "min_n": result,
-            "p": None if args.p_range is not None else float(chosen[0]),
+            "min_n": answer.n,
+            "p": None if args.p_range is not None else decided.p,
             "p_range": None if args.p_range is None else [float(lo), float(hi)],
-            "p_checked": len(chosen),
+            "p_checked": [t.p for t in answer.per_p] if args.p_range is not None else [decided.p],
+            "decided_at_p": decided.p,
             "tol": tol,
             "method": args.method,
             "metric": args.metric,
             "source": source,
-            "dense_n": dense,
-            "exact_for_integers": result is not None and result <= dense,
-            "previous_grid_n": below,
-            "n_max": int(n_axis[-1]),
+            "every_integer": answer.n is not None and answer.exact,
+            "upto": answer.upto,
+            "failing": None if failing is None else {"n": failing[0], "error": failing[1]},
+            "runs": [{"first": a, "last": b, "within": s, "every_integer": e}
+                     for a, b, s, e in decided.runs],
+            "basis": answer.basis(),
+            "n_max": int(atlas.n[-1]),
         })  # fmt: skip
         return 0
     head = f"{args.method} {args.metric} error <= {format_p(tol)} at {where}"
-    if result is None:
-        lines = [
-            f"{head}: at no n of the atlas grid",
-            f"  the largest grid n, {int(n_axis[-1])}, is not within the tolerance",
-        ]
+    if answer.n is None:
+        last = decided.runs[-1][1] if decided.runs else int(atlas.n[-1])
+        lines = [f"{head}: no n from which on every n is within it "
+                 f"(at n = {last:,}, the largest n examined, the error exceeds it)"]  # fmt: skip
     else:
-        lines = [f"{head}: for n = {result} and every larger grid n"]
-        if result <= dense:
-            fails = "" if below is None else f"; n = {below} is not"
-            lines.append(f"  exact: every integer n from {result} to {dense} is within it{fails}")
-            if dense < n_axis[-1]:
-                lines.append(f"  above n = {dense} only the grid values of n are checked")
-        else:
-            lines.append(
-                f"  n = {result} is beyond {dense}, where the grid holds every integer: only grid "
-                f"values of n are checked (the grid n below it, {below}, is not within it)"
-            )
+        end = "on" if answer.upto is None else f"to {answer.upto:,}"
+        scope = (f"every integer n from {answer.n:,} {end}" if answer.exact
+                 else "not every integer between the n evaluated: see the basis")  # fmt: skip
+        lines = [f"{head}: from n = {answer.n:,} on ({scope})"]
+        if failing is not None:
+            lines.append(f"  n = {failing[0]:,} is not within it (error {failing[1]:.7g})")
+    if args.p_range is not None:
+        lines.append(f"  p checked: {answer.checked()}")
+        lines.append(f"  decided at p = {format_p(decided.p)}")
+    safe_stretches = [r for r in decided.runs if r[2]]
+    if answer.n is None or len(safe_stretches) > 1:  # the safe n are not one run upward
+        lines.append("  stretches of n:")
+        lines += [f"    {line}" for line in decided.describe_runs()]
+    lines.append(f"  basis: {decided.basis()}")
     lines.append(f"  source: {_source_text(atlas, source, args.method)}")
     print("\n".join(lines))
     return 0
@@ -315,14 +315,9 @@ def _cmd_demo(args):
     best, best_error = atlas.best_method(n, p)[0]
     smallest = atlas.min_n(p, tol)
     within = "within" if best_error <= tol else "not within"
-    if smallest is None:
-        from_n = "at no n of the atlas grid"
-    elif smallest > atlas.dense_n:
-        from_n = (f"for n = {smallest} and every larger grid n (beyond n = {atlas.dense_n} "
-                  "only the grid's values of n are checked)")  # fmt: skip
-    else:
-        from_n = (f"for n = {smallest} and every larger grid n (every integer n from {smallest} "
-                  f"to {atlas.dense_n} checked)")  # fmt: skip
+    from_n = f"from n = {smallest} on" if smallest is not None else "at no n of the atlas"
+    if smallest is not None:
+        from_n += " (every integer n, not only grid n)"
     p_text, tol_text = format_p(p), format_p(tol)
     print("\n".join([
         f"Demo (an invented scenario): an incoming inspection lot of n = {n} fasteners with a "
@@ -370,7 +365,8 @@ def _add_query_commands(commands):
     where = min_n.add_mutually_exclusive_group(required=True)
     where.add_argument("--p", help=p_help)
     where.add_argument("--p-range", metavar="LO:HI",
-                       help=f"every grid p in [LO, HI]; LO and HI each {_P_FORMS}")  # fmt: skip
+                       help=f"every p in [LO, HI] (see the basis); LO and HI each "
+                            f"{_P_FORMS}")  # fmt: skip
     min_n.add_argument("--tol", required=True, help="tolerance on the error, > 0")
     common(min_n)
     min_n.set_defaults(

@@ -25,11 +25,11 @@ from atlas import store
 from atlas.approximations import METHODS, check_method
 from atlas.engine import check_metric, check_n, check_p, evaluate, evaluate_cells
 from atlas.notation import error_digits, format_p
+from atlas.thresholds import minimum_n, minimum_n_over
 
 __all__ = ["Atlas", "Verdict", "check_tol", "open_atlas"]
 
 _VARIABLES = {"interval": "interval_error", "cdf": "cdf_error"}
-_ENGINE_BLOCK = 128  # n values computed per step when min_n searches down from the top n
 
 
 def _show(value):
@@ -246,8 +246,9 @@ class Atlas:
     def dense_n(self):
         """The largest grid n up to which the grid holds every integer from its first n.
 
-        Within that run, :meth:`min_n` is exact for every integer n (1..2000 in the default
-        atlas).
+        1..2000 in the default atlas. (:meth:`min_n` is exact for every integer n everywhere;
+        beyond this n it evaluates or bounds the integers between grid n, see
+        :mod:`atlas.thresholds`.)
         """
         n_axis = self.n
         steps = np.flatnonzero(np.diff(n_axis) != 1)
@@ -366,22 +367,6 @@ class Atlas:
             ev = evaluate(int(value), p_values, methods=(method,))
             out[row] = ev.interval[0] if metric == "interval" else ev.cdf[0]
         return out
-
-    def _smallest_safe_suffix(self, p_values, tol, method, metric):
-        """Smallest grid n with the worst error over ``p_values`` <= tol there and above."""
-        n_axis, p_axis = self._axes()
-        stored = method in self.methods and np.isin(p_values, p_axis).all()
-        block = n_axis.size if stored else _ENGINE_BLOCK
-        stop = n_axis.size
-        while stop > 0:  # downward from the top n, so the engine stops at the first failure
-            start = max(0, stop - block)
-            worst = self._columns(start, stop, p_values, method, metric).max(axis=1)
-            failed = np.flatnonzero(~(worst <= tol))  # NaN would count as a failure
-            if failed.size:
-                first = start + int(failed[-1]) + 1
-                return int(n_axis[first]) if first < n_axis.size else None
-            stop = start
-        return int(n_axis[0])
 
     # --- the questions ------------------------------------------------------------------------
 
@@ -571,8 +556,7 @@ class Atlas:
         )
 
     def min_n(self, p, tol, *, method="normal_cc", metric="interval"):
-        """The smallest grid n at which the error is within ``tol`` and stays within it at every
-        larger grid n, at this p.
+        """The smallest N such that the error is within ``tol`` at every integer n >= N.
 
         Parameters
         ----------
@@ -587,8 +571,8 @@ class Atlas:
         Returns
         -------
         int or None
-            The smallest n* of the atlas's n axis such that error(n, p) <= tol for n = n* and
-            for every larger n of the axis; None if the largest n of the axis fails.
+            N, or None if the error at the largest n examined exceeds ``tol``. What the answer
+            rests on (and how far it reaches) is in :meth:`threshold`.
 
         Raises
         ------
@@ -597,27 +581,59 @@ class Atlas:
 
         Notes
         -----
-        The guarantee is a statement about the grid. Where the n axis holds every integer (from
-        its first n up to :attr:`dense_n`, 1..2000 in the default atlas) and n* lies there, the
-        answer is exact for all integers: every integer n from n* to ``dense_n`` is within tol,
-        and n* - 1 (if on the axis) is not. Beyond ``dense_n`` only the grid values of n are
-        checked, not the integers between them: the error is not monotone in n in general, so
-        an n between two grid points can exceed tol.
+        Exact for every integer, not only grid n (:mod:`atlas.thresholds`): grid values show
+        where to look; the engine evaluates the integers where the error can still cross
+        ``tol``; a proven bound on how fast the error can grow from one n to the next covers
+        the integers between; beyond the atlas's end a Berry-Esseen bound (Shevtsova 2011)
+        covers every larger n, after stepping beyond the end where needed. For
+        ``camp_paulson`` and ``peizer_pratt`` no step bound is known at large sigma, and the
+        answer covers only the n evaluated there (:attr:`Threshold.exact` is then False).
 
         Examples
         --------
         >>> from atlas import build_atlas
         >>> at = Atlas(build_atlas(n="1:40", p="0.5", methods="normal_cc", progress=False))
-        >>> at.min_n(0.5, 0.01)  # W(5, 1/2) = 0.01114 > 0.01 >= W(n, 1/2) for n = 6..40
+        >>> at.min_n(0.5, 0.01)  # W(5, 1/2) = 0.01114 > 0.01 >= W(n, 1/2) for every n >= 6
         6
         """
-        p_value = _scalar(check_p(p), "p", "number")
+        return self.threshold(p, tol, method=method, metric=metric, runs=False).n
+
+    def threshold(self, p, tol, *, method="normal_cc", metric="interval", runs=True):
+        """The minimum n at p with its basis: :class:`atlas.thresholds.Threshold`.
+
+        Parameters
+        ----------
+        p, tol, method, metric
+            As for :meth:`min_n`.
+        runs : bool, optional
+            Also find the exact ends of the stretches within ``tol`` below N (default True).
+
+        Returns
+        -------
+        atlas.thresholds.Threshold
+            ``n`` (as :meth:`min_n`), ``upto``, ``exact``, ``failing``, ``runs``, ``basis()``
+            and ``describe_runs()``.
+
+        Raises
+        ------
+        ValueError
+            As for :meth:`min_n`.
+        """
+        p_value = float(_scalar(check_p(p), "p", "number"))
         tol_value, method = _question(tol, method, metric)
-        return self._smallest_safe_suffix(np.array([p_value]), tol_value, method, metric)
+        key = ("threshold", p_value, tol_value, method, metric, bool(runs))
+        answer = self._cache.get(key)  # answers are kept: tables, sheets and wiki ask again
+        if answer is None:
+            n_axis, _ = self._axes()
+            values = self._columns(0, n_axis.size, np.array([p_value]), method, metric)[:, 0]
+            answer = minimum_n(n_axis, values, p_value, tol_value, method=method, metric=metric,
+                               runs=runs)  # fmt: skip
+            self._cache[key] = answer
+        return answer
 
     def min_n_over(self, p_lo, p_hi, tol, *, method="normal_cc", metric="interval"):
-        """The smallest grid n at which the error is within ``tol`` for every grid p in
-        [p_lo, p_hi], and stays so at every larger grid n.
+        """The smallest N such that the error is within ``tol`` at every integer n >= N, for
+        every p in [p_lo, p_hi].
 
         Parameters
         ----------
@@ -629,8 +645,8 @@ class Atlas:
         Returns
         -------
         int or None
-            The smallest n* of the n axis such that error(n, p) <= tol for every grid p in the
-            interval (see :meth:`select_p`), at n* and every larger grid n; None if none.
+            The largest per-p answer over the p checked; None if some p has none. What was
+            checked is in :meth:`threshold_over`.
 
         Raises
         ------
@@ -639,12 +655,40 @@ class Atlas:
 
         Notes
         -----
-        Only the grid p in [p_lo, p_hi] are checked, never the p between them; as for
-        :meth:`min_n`, only the grid n are checked beyond :attr:`dense_n`.
+        The p checked are the grid p in the interval, both ends, and midpoints in log-odds
+        added where a p between two checked ones could come out largest: next to the p of the
+        largest answer, and between neighbours whose answers both come within 2 per cent of it
+        (:func:`atlas.thresholds.minimum_n_over`). Each is exact for every integer n as
+        :meth:`min_n` is; the p between those checked are not computed.
+        """
+        return self.threshold_over(p_lo, p_hi, tol, method=method, metric=metric).n
+
+    def threshold_over(self, p_lo, p_hi, tol, *, method="normal_cc", metric="interval"):
+        """:meth:`min_n_over` with what was checked: :class:`atlas.thresholds.RangeThreshold`.
+
+        Parameters
+        ----------
+        p_lo, p_hi, tol, method, metric
+            As for :meth:`min_n_over`.
+
+        Returns
+        -------
+        atlas.thresholds.RangeThreshold
+
+        Raises
+        ------
+        ValueError
+            As for :meth:`min_n_over`.
         """
         chosen = self.select_p(p_lo, p_hi)
         tol_value, method = _question(tol, method, metric)
-        return self._smallest_safe_suffix(chosen, tol_value, method, metric)
+        n_axis, _ = self._axes()
+
+        def column(ps):
+            return self._columns(0, n_axis.size, ps, method, metric)
+
+        return minimum_n_over(n_axis, chosen, column, float(p_lo), float(p_hi), tol_value,
+                              method=method, metric=metric)  # fmt: skip
 
     def best_method(self, n, p, *, metric="interval"):
         """The atlas's methods ranked by their error at (n, p), best first.

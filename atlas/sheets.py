@@ -38,8 +38,9 @@ DEFINITIONS = (
     ("Interval error", "W(n, p) = max over 0 ≤ a ≤ b ≤ n of |P(a ≤ X ≤ b) − (G(b) − G(a − 1))| "
      "= max D − min D, with D(k) = F(k) − G(k) on k = −1..n (the metric 'interval')."),
     ("CDF error", "max over 0 ≤ k ≤ n of |F(k) − G(k)| (the metric 'cdf')."),
-    ("Minimum n", "min_n(p, tol): the smallest n of the atlas grid such that the error is at "
-     "most tol at that n and at every larger grid n."),
+    ("Minimum n", "min_n(p, tol): the smallest N such that the error is at most tol at every "
+     "integer n ≥ N, not only at grid n: grid values, the engine where the error can still "
+     "cross tol, a proven one-step growth bound between, a Berry-Esseen bound beyond."),
     ("Rule audit", "For a rule such as np ≥ 5 and nq ≥ 5: the largest error over the grid cells "
      "(n, p) the rule admits, where it occurs, and the share of those cells within each "
      "tolerance. Shares count grid cells, so they depend on the grid's density."),
@@ -212,11 +213,13 @@ def _wrap(text, fontsize, page_width, width=0.92):
 def _tables_page(tables, size):
     fig = _text_page("Minimum n for each tolerance", size)
     note = (
-        "The smallest grid n at which the worst-case error is within the tolerance and stays "
-        "within it at every larger grid n. "
-        f"'> N': not reached on the grid (n up to {tables[0].n_max:,}); †: beyond "
-        f"n = {tables[0].dense_n:,} only the grid's n are checked, not every integer."
+        "The smallest N such that the worst-case error is within the tolerance at every "
+        "integer n ≥ N (checked or bounded at every integer; see Definitions). "
+        f"'> N': the error at the atlas's end, n = {tables[0].n_max:,}, exceeds the tolerance."
     )
+    marks = {note for table in tables for note in table.notes()[2:]}
+    if marks:
+        note += " " + " ".join(sorted(marks))
     fig.text(0.04, 0.905, _wrap(note, 9, size[0]), fontsize=9, va="top", linespacing=1.35)
     cols = 2 if len(tables) > 1 else 1
     per_col = math.ceil(len(tables) / cols)

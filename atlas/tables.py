@@ -102,13 +102,13 @@ class ThresholdTable:
     tols : tuple of float
     ps : tuple of float
     min_n : tuple of tuple
-        ``min_n[i][j]`` for ``ps[i]`` and ``tols[j]``: an int, or None when even the largest n of
-        the grid fails.
+        ``min_n[i][j]`` for ``ps[i]`` and ``tols[j]``: an int N such that the error is within the
+        tolerance at every integer n >= N (:meth:`atlas.Atlas.threshold`), or None when the
+        largest n examined fails.
     n_max : int
         The largest n of the atlas grid.
     dense_n : int
-        Up to this n the grid holds every integer, and a minimum n there is exact for every
-        integer; beyond it only grid n are checked.
+        Up to this n the grid holds every integer.
     provenance : str
         :func:`atlas.figures.provenance_line` of the atlas.
     """
@@ -121,51 +121,66 @@ class ThresholdTable:
     n_max: int
     dense_n: int
     provenance: str
+    partial: tuple = ()  # (i, j) of entries not covered at every integer (see notes)
+    bounded: tuple = ()  # (i, j) of entries covered only up to the atlas's end
 
     def title(self):
         return f"Minimum n for {self.method}, {self.metric} error"
 
-    def basis(self, value):
-        """What a minimum n rests on: ``"exact"``, ``"grid"`` or ``"not_reached"`` (see
-        :meth:`basis_meanings`)."""
+    def basis(self, value, where=None):
+        """What the entry at ``where`` = (i, j) rests on: ``"exact"``, ``"evaluated_only"``,
+        ``"to_atlas_end"`` or ``"not_reached"`` (see :meth:`basis_meanings`)."""
         if value is None:
             return "not_reached"
-        return "grid" if value > self.dense_n else "exact"
+        if where in self.partial:
+            return "evaluated_only"
+        return "to_atlas_end" if where in self.bounded else "exact"
 
     def basis_meanings(self):
-        """The meaning of each basis code, for this table's grid."""
+        """The meaning of each basis code."""
         return {
-            "exact": f"every integer n from the entry to {self.dense_n} is within the tolerance, "
-            "and so is every larger grid n",
-            "grid": f"the entry is beyond n = {self.dense_n}, where only the grid's n are "
-            "checked, not every integer",
-            "not_reached": f"not reached within the grid: the error exceeds the tolerance at "
-            f"its largest n, {self.n_max}",
+            "exact": "every integer n from the entry on is within the tolerance: the grid's "
+            "values, the engine at the integers where the error can still cross it, a proven "
+            "bound on its growth between them, and a Berry-Esseen bound beyond",
+            "evaluated_only": "no step bound for this method in some gaps above the entry; "
+            "there only the n evaluated are checked",
+            "to_atlas_end": f"every integer n from the entry to {self.n_max}, the atlas's end, "
+            "is within the tolerance; no bound is established beyond it",
+            "not_reached": f"not reached: the error exceeds the tolerance at the atlas's end, "
+            f"n = {self.n_max}",
         }
 
-    def _cell(self, value):
+    def _cell(self, value, where=None):
         if value is None:
             return f"> {_compact_n(self.n_max)}"
-        return f"{value:,}" + (" †" if value > self.dense_n else "")
+        mark = " ‡" if where in self.partial else (" §" if where in self.bounded else "")
+        return f"{value:,}{mark}"
 
     def notes(self):
         """The footnotes of the table, as a list of sentences."""
-        return [
-            f"Each entry is the smallest n of the atlas grid at which the worst-case "
-            f"{self.metric} error of {self.method} is within the tolerance and stays within it "
-            f"at every larger grid n ({METRIC_FORMULAS[self.metric]}).",
-            f"An entry without a mark is exact: every integer n from it to {self.dense_n:,} is "
-            "within the tolerance.",
-            f"†: beyond n = {self.dense_n:,} only the grid's n are checked, not every integer.",
-            f"'> {_compact_n(self.n_max)}': not reached within the grid (n up to {self.n_max:,}).",
+        notes = [
+            f"Each entry N is the smallest n such that the worst-case {self.metric} error of "
+            f"{self.method} is within the tolerance at every integer n >= N "
+            f"({METRIC_FORMULAS[self.metric]}): the grid's values, the engine at the integers "
+            "where the error can still cross the tolerance, a proven bound on its growth from "
+            "one n to the next in between, and a Berry-Esseen bound beyond (atlas.thresholds).",
+            f"'> {_compact_n(self.n_max)}': the error at n = {self.n_max:,}, the atlas's end, "
+            "exceeds the tolerance.",
         ]
+        if self.partial:
+            notes.append("‡: no step bound for this method in some gaps above N; there only the "
+                         "n evaluated are checked.")  # fmt: skip
+        if self.bounded:
+            notes.append(f"§: covered up to n = {self.n_max:,}, the atlas's end; no bound "
+                         "is established beyond it.")  # fmt: skip
+        return notes
 
     def to_rows(self):
         """Header and rows of display strings (for the sheet and the wiki)."""
         header = ["p"] + [f"tol {format_level(t)}" for t in self.tols]
         rows = [
-            [_fmt_p(p)] + [self._cell(v) for v in values]
-            for p, values in zip(self.ps, self.min_n, strict=True)
+            [_fmt_p(p)] + [self._cell(v, (i, j)) for j, v in enumerate(values)]
+            for i, (p, values) in enumerate(zip(self.ps, self.min_n, strict=True))
         ]
         return header, rows
 
@@ -173,15 +188,16 @@ class ThresholdTable:
         """CSV, one row per p and tolerance: ``p, tol, min_n, basis``.
 
         ``min_n`` is an integer, or ``> N`` (N the largest grid n) when not reached; ``basis``
-        is ``exact``, ``grid`` or ``not_reached`` (:meth:`basis_meanings`).
+        is ``exact``, ``evaluated_only``, ``to_atlas_end`` or ``not_reached``
+        (:meth:`basis_meanings`).
         """
         buffer = io.StringIO()
         writer = csv.writer(buffer, lineterminator="\n")
         writer.writerow(["p", "tol", "min_n", "basis"])
-        for p, values in zip(self.ps, self.min_n, strict=True):
-            for tol, v in zip(self.tols, values, strict=True):
+        for i, (p, values) in enumerate(zip(self.ps, self.min_n, strict=True)):
+            for j, (tol, v) in enumerate(zip(self.tols, values, strict=True)):
                 shown = f"> {self.n_max}" if v is None else v
-                writer.writerow([format_p(p), format_p(tol), shown, self.basis(v)])
+                writer.writerow([format_p(p), format_p(tol), shown, self.basis(v, (i, j))])
         return buffer.getvalue()
 
     def to_markdown(self):
@@ -193,7 +209,7 @@ class ThresholdTable:
 
     def to_json(self):
         """JSON: the parameters, ``min_n`` as a list of rows (null when not reached), ``basis``
-        beside it (rows of ``exact``, ``grid``, ``not_reached``), their meanings, provenance."""
+        beside it (rows of basis codes), their meanings, provenance."""
         return _json_text(
             {
                 "method": self.method,
@@ -202,10 +218,21 @@ class ThresholdTable:
                 "tols": list(self.tols),
                 "ps": list(self.ps),
                 "min_n": [list(row) for row in self.min_n],
-                "basis": [[self.basis(v) for v in row] for row in self.min_n],
+                "basis": [
+                    [self.basis(v, (i, j)) for j, v in enumerate(row)]
+                    for i, row in enumerate(self.min_n)
+                ],
                 "basis_meanings": self.basis_meanings(),
                 "n_max": self.n_max,
                 "dense_n": self.dense_n,
+                "every_integer": [
+                    [(i, j) not in self.partial for j in range(len(self.tols))]
+                    for i in range(len(self.ps))
+                ],
+                "beyond_the_end": [
+                    [(i, j) not in self.bounded for j in range(len(self.tols))]
+                    for i in range(len(self.ps))
+                ],
                 "atlas": self.provenance,
             }
         )
@@ -218,7 +245,7 @@ class ThresholdTable:
 
 def threshold_table(atlas, tols=TABLE_TOLS, ps=TABLE_PS, *, method="normal_cc",
                     metric="interval"):  # fmt: skip
-    """The minimum n for each tolerance and p, from :meth:`atlas.Atlas.min_n`.
+    """The minimum n for each tolerance and p, from :meth:`atlas.Atlas.threshold`.
 
     Parameters
     ----------
@@ -254,9 +281,10 @@ def threshold_table(atlas, tols=TABLE_TOLS, ps=TABLE_PS, *, method="normal_cc",
     ps = _numbers(ps, "ps")
     check_metric(metric)
     atlas = _as_atlas(atlas)
-    values = tuple(
-        tuple(atlas.min_n(p, tol, method=method, metric=metric) for tol in tols) for p in ps
-    )
+    answers = [[atlas.threshold(p, tol, method=method, metric=metric, runs=False) for tol in tols]
+               for p in ps]  # fmt: skip
+    values = tuple(tuple(a.n for a in row) for row in answers)
+    cells = [(i, j, a) for i, row in enumerate(answers) for j, a in enumerate(row) if a.n]
     return ThresholdTable(
         method=method,
         metric=metric,
@@ -266,6 +294,8 @@ def threshold_table(atlas, tols=TABLE_TOLS, ps=TABLE_PS, *, method="normal_cc",
         n_max=int(atlas.n[-1]),
         dense_n=int(atlas.dense_n),
         provenance=provenance_line(atlas),
+        partial=tuple((i, j) for i, j, a in cells if not a.exact),
+        bounded=tuple((i, j) for i, j, a in cells if a.exact and a.upto is not None),
     )
 
 

@@ -362,7 +362,8 @@ def test_p_as_fraction_or_percentage(capsys, tiny_path, text, value):
 def test_p_lists_and_ranges_take_fractions_and_percentages(capsys, tiny_path):
     record = _json(capsys, ["min-n", "--p-range", "10%:1/2", "--tol", "0.01",
                             "--atlas", tiny_path])  # fmt: skip
-    assert record["p_range"] == [0.1, 0.5] and record["p_checked"] == 2  # grid p 0.1, 0.5
+    assert record["p_range"] == [0.1, 0.5]
+    assert {0.1, 0.5} <= set(record["p_checked"])  # the grid p of the range, and more between
     assert main(["table", "--p", "1%,1/2", "--tol", "0.01", "--format", "json",
                  "--atlas", tiny_path]) == 0  # fmt: skip
     assert json.loads(capsys.readouterr().out)["ps"] == [0.01, 0.5]

@@ -144,38 +144,46 @@ def test_query_float32_atlas(capsys, small_atlas, at):
 def test_min_n_json(capsys, path, at):
     record = run_json(capsys, "min-n", "--p", "0.5", "--tol", "0.01", "--atlas", path)
     assert record["min_n"] == at.min_n(0.5, 0.01) == 6  # brute force in tests/test_query.py
-    assert record["exact_for_integers"] is True and record["dense_n"] == 40
-    assert record["previous_grid_n"] == 5 and record["n_max"] == 5000
+    assert record["every_integer"] is True and record["upto"] is None
+    # computed, regression value: W(5, 1/2) = 0.01114 (tests/test_query.py)
+    assert record["failing"]["n"] == 5 and round(record["failing"]["error"], 5) == 0.01114
+    assert record["n_max"] == 5000 and "Berry-Esseen" in record["basis"]
     assert record["source"] == "atlas" and record["p"] == 0.5 and record["p_range"] is None
+    assert record["runs"][-1] == {"first": 6, "last": record["runs"][-1]["last"], "within": True,
+                                  "every_integer": True}  # fmt: skip
     off = run_json(capsys, "min-n", "--p", "0.2", "--tol", "0.005", "--atlas", path)
     assert off["min_n"] == at.min_n(0.2, 0.005) and off["source"] == "computed"
-    assert off["exact_for_integers"] is (off["min_n"] is not None and off["min_n"] <= 40)
 
 
 def test_min_n_human(capsys, path):
     status, out, err = run(capsys, "min-n", "--p", "0.5", "--tol", "0.01", "--atlas", path)
     assert status == 0 and err == ""
-    assert out.splitlines() == [
-        "normal_cc interval error <= 0.01 at p = 0.5: for n = 6 and every larger grid n",
-        "  exact: every integer n from 6 to 40 is within it; n = 5 is not",
-        "  above n = 40 only the grid values of n are checked",
-        f"  source: atlas (a stored cell of {path})",
+    lines = out.splitlines()
+    assert lines[:2] == [
+        "normal_cc interval error <= 0.01 at p = 0.5: from n = 6 on (every integer n from 6 on)",
+        "  n = 5 is not within it (error 0.01113827)",  # computed, regression value
     ]
+    assert lines[2].startswith(
+        "  basis: every integer n from 6 on is within the tolerance: 48 grid n"
+    )
+    assert "grid values" not in out and "only grid" not in out
+    assert lines[-1] == f"  source: atlas (a stored cell of {path})"
     _, out, _ = run(capsys, "min-n", "--p", "0.5", "--tol", "1e-12", "--atlas", path)
-    assert "at no n of the atlas grid" in out
+    assert "no n from which on every n is within it" in out
+    assert "    n = 1 to 5,000: not within the tolerance" in out
 
 
 def test_min_n_range(capsys, path, at):
     record = run_json(capsys, "min-n", "--p-range", "0.05:0.5", "--tol", "0.02", "--atlas", path)
     assert record["min_n"] == at.min_n_over(0.05, 0.5, 0.02)
-    assert record["p_range"] == [0.05, 0.5] and record["p_checked"] == 4 and record["p"] is None
+    assert record["p_range"] == [0.05, 0.5] and record["p"] is None
+    assert {0.05, 0.1, 0.3, 0.5} <= set(record["p_checked"])  # the grid p of the range
     status, out, _ = run(capsys, "min-n", "--p-range", "0.05:0.5", "--tol", "0.02", "--atlas", path)
-    assert status == 0 and "every grid p in [0.05, 0.5] (4 values)" in out
-    # One grid p: said as one p, not as "1 values"; fractions and percentages are read.
+    assert status == 0 and "at every p in [0.05, 0.5]" in out
+    assert "  p checked: " in out and "the grid's 4" in out
+    # Fractions and percentages are read in --p-range.
     _, out, _ = run(capsys, "min-n", "--p-range", "50%:1/2", "--tol", "0.02", "--atlas", path)
-    assert out.startswith("normal_cc interval error <= 0.02 at p = 0.5: for n = ")
-    _, out, _ = run(capsys, "min-n", "--p-range", "0.04:0.06", "--tol", "0.02", "--atlas", path)
-    assert "every grid p in [0.04, 0.06] (1 value)" in out
+    assert out.startswith("normal_cc interval error <= 0.02 at p = 0.5: from n = ")
 
 
 # --- compare -----------------------------------------------------------------------------------
@@ -216,7 +224,7 @@ def test_demo_on_a_given_atlas(capsys, path, at):
     assert f"  normal_cc: {at.is_safe(80, 0.025, 0.01).explain()}" in lines
     best, error = at.best_method(80, 0.025)[0]
     assert any(line.startswith(f"  best method here: {best}, error {error:.3g}") for line in lines)
-    assert any(f"for n = {at.min_n(0.025, 0.01)} and every larger grid n" in line for line in lines)
+    assert any(f"from n = {at.min_n(0.025, 0.01)} on (every integer n" in line for line in lines)
     assert lines[-1] == f"  caution: {cube.CAUTION}"
 
 
@@ -378,3 +386,12 @@ def test_commands_leave_no_file_open(capsys, small_atlas):
     assert run(capsys, "compare", "--n", "5", "--p", "0.5", "--atlas", path)[0] == 0
     gc.collect()
     assert [e for e in store._OPEN.values() if str(e.path) == path] == []
+
+
+def test_min_n_without_a_step_bound_says_so_on_the_command_line(capsys, path, at):
+    answer = at.threshold(0.3, 0.001, method="camp_paulson")
+    assert not answer.exact  # no step bound for camp_paulson where sigma > 3
+    _, out, _ = run(capsys, "min-n", "--p", "0.3", "--tol", "0.001", "--method", "camp_paulson",
+                    "--atlas", path)  # fmt: skip
+    assert "(not every integer between the n evaluated: see the basis)" in out.splitlines()[0]
+    assert "only the n evaluated are checked" in out

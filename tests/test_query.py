@@ -54,14 +54,6 @@ def brute_errors(n_axis, p_values, method, metric):
     )
 
 
-def brute_min_n(n_axis, worst, tol):
-    """Smallest grid n with worst[i:] <= tol, by checking every suffix (brute force)."""
-    for i in range(n_axis.size):
-        if np.all(worst[i:] <= tol):
-            return int(n_axis[i])
-    return None
-
-
 # --- opening and the grid --------------------------------------------------------------------
 
 
@@ -291,30 +283,82 @@ def test_safe_is_vectorised(at):
 # --- minimum n ---------------------------------------------------------------------------------
 
 
+OFF_GRID_P = (0.2, 0.0123, 0.95, 0.1 + 0.2)
+
+
+@pytest.fixture(scope="module")
+def every_integer(at):
+    """Engine errors at every integer n = 1..5000 (the small atlas's end) for the atlas's p and
+    OFF_GRID_P: {(method, metric): array (5000, len(p))} (brute force, one call per n)."""
+    ps = np.concatenate([at.p, OFF_GRID_P])
+    methods = ("normal_cc", "camp_paulson")
+    out = {(m, e): np.empty((int(at.n[-1]), ps.size)) for m in methods for e in ("interval", "cdf")}
+    for n in range(1, int(at.n[-1]) + 1):
+        ev = atlas.engine.evaluate(n, ps, methods=methods)
+        for i, m in enumerate(methods):
+            out[(m, "interval")][n - 1] = ev.interval[i]
+            out[(m, "cdf")][n - 1] = ev.cdf[i]
+    return ps, out
+
+
+def brute_min_n_every_integer(errors, tol):
+    """Smallest N with errors[N-1:] <= tol over every integer to the end (brute force)."""
+    bad = np.flatnonzero(~(errors <= tol))
+    if bad.size == 0:
+        return 1
+    return None if bad[-1] == errors.size - 1 else int(bad[-1]) + 2
+
+
+def check_against_every_integer(answer, errors, tol):
+    """The answer agrees with brute force over every integer to the atlas's end (5000)."""
+    end = errors.size
+    if answer.n is None:
+        assert errors[-1] > tol
+    elif answer.n <= end:
+        assert answer.n == brute_min_n_every_integer(errors, tol), (answer.p, tol)
+    else:  # found beyond the atlas's end: the integer below it fails, the answer holds
+        assert answer.failing[0] == answer.n - 1 > end
+        assert worst_error(answer.n - 1, answer.p, method=answer.method,
+                           metric=answer.metric) > tol  # fmt: skip
+
+
 @pytest.mark.parametrize("metric", ["interval", "cdf"])
-@pytest.mark.parametrize("method", ["normal_cc", "camp_paulson"])
-def test_min_n_matches_brute_force_on_grid_p(at, method, metric):
-    errors = brute_errors(at.n, at.p, method, metric)
-    for j, p in enumerate(at.p):
-        for tol in TOLS + tuple(errors[[5, 40, -1], j]):  # and tolerances equal to a cell
-            expected = brute_min_n(at.n, errors[:, j], tol)
-            assert at.min_n(p, tol, method=method, metric=metric) == expected, (p, tol)
+def test_min_n_exact_for_every_integer(at, every_integer, metric):
+    ps, errors = every_integer
+    column = errors[("normal_cc", metric)]
+    for j, p in enumerate(ps):
+        for tol in TOLS + tuple(column[[5, 40, 500, -1], j]):  # and tolerances equal to a value
+            answer = at.threshold(p, tol, metric=metric, runs=False)
+            assert answer.exact and answer.n == at.min_n(p, tol, metric=metric)
+            check_against_every_integer(answer, column[:, j], tol)
 
 
-@pytest.mark.parametrize("p", [0.2, 0.0123, 0.95, 0.1 + 0.2])
-def test_min_n_matches_brute_force_off_grid_p(at, p):
-    assert not at.on_grid(p=p)
-    errors = brute_errors(at.n, [p], "normal_cc", "interval")[:, 0]
-    for tol in TOLS + (float(errors[-1]), float(errors[40])):
-        assert at.min_n(p, tol) == brute_min_n(at.n, errors, tol), tol
+def test_min_n_without_a_step_bound_says_so(at, every_integer):
+    # camp_paulson has no step bound where sigma > 3: gaps there are left to the n evaluated,
+    # and the answer says so; where it is exact it agrees with every integer.
+    ps, errors = every_integer
+    exact = 0
+    for metric in ("interval", "cdf"):
+        column = errors[("camp_paulson", metric)]
+        for j, p in enumerate(ps):
+            for tol in TOLS:
+                answer = at.threshold(p, tol, method="camp_paulson", metric=metric, runs=False)
+                if answer.exact:
+                    exact += 1
+                    check_against_every_integer(answer, column[:, j], tol)
+                else:
+                    assert answer.uncovered and "only the n evaluated" in answer.basis()
+    assert exact >= 20  # small tolerances and the dense n: most answers are still exact
 
 
 def test_min_n_method_not_stored(at):
     only_cc = Atlas(at.dataset.sel(approximation=["normal_cc"]))
-    errors = brute_errors(at.n, [0.3], "edgeworth_cc", "cdf")[:, 0]
+    ns = np.arange(1, int(at.n[-1]) + 1)
+    errors = worst_error(ns, 0.3, method="edgeworth_cc", metric="cdf")  # brute force
     for tol in TOLS:
-        expected = brute_min_n(at.n, errors, tol)
-        assert only_cc.min_n(0.3, tol, method="edgeworth_cc", metric="cdf") == expected
+        answer = only_cc.threshold(0.3, tol, method="edgeworth_cc", metric="cdf", runs=False)
+        assert answer.exact
+        check_against_every_integer(answer, errors, tol)
 
 
 def test_min_n_edge_answers(at):
@@ -351,22 +395,53 @@ def test_min_n_float32_cube(at, at32):
             assert at32.min_n(p, tol) == at.min_n(p, tol)
 
 
-def test_min_n_over_matches_brute_force(at):
-    errors = brute_errors(at.n, at.p, "normal_cc", "interval")
-    for lo, hi in [(0.05, 0.95), (0.1, 0.1), (0.3, 0.7), (0.001, 0.999), (0.04, 0.11)]:
-        chosen = (at.p >= lo) & (at.p <= hi)
-        worst = errors[:, chosen].max(axis=1)
-        for tol in TOLS:
-            assert at.min_n_over(lo, hi, tol) == brute_min_n(at.n, worst, tol), (lo, hi, tol)
+def test_min_n_over_is_the_largest_per_p_answer(at, every_integer):
+    ps, errors = every_integer
+    column = errors[("normal_cc", "interval")]
+    for lo, hi in [(0.05, 0.95), (0.1, 0.1), (0.3, 0.7), (0.04, 0.11)]:
+        for tol in (0.05, 0.01, 0.005, 1e-3):
+            answer = at.threshold_over(lo, hi, tol)
+            assert answer.n == at.min_n_over(lo, hi, tol)
+            per_p = {t.p: t for t in answer.per_p}
+            if any(t.n is None for t in answer.per_p):
+                assert answer.n is None
+            else:
+                assert answer.n == max(t.n for t in answer.per_p)
+            assert lo in per_p and hi in per_p  # both ends are checked
+            # every grid p of the range is checked against every integer (brute force): exactly,
+            # or from above where the search stopped at the answer of the p that decides
+            for j, p in enumerate(ps[: at.p.size]):
+                if lo <= p <= hi:
+                    brute = brute_min_n_every_integer(column[:, j], tol)
+                    if per_p[p].at_most:
+                        assert brute <= per_p[p].n <= answer.n, (p, tol)
+                    else:
+                        assert per_p[p].n == brute, (p, tol)
     assert at.min_n_over(0.1, 0.1, 0.01) == at.min_n(0.1, 0.01)
+
+
+def test_min_n_over_holds_off_the_grid(at):
+    # Thousands of random (n, p) in the range and from the answer on: the engine finds none
+    # above the tolerance (brute force at each point).
+    rng = np.random.default_rng(20261203)
+    checked = 0
+    for lo, hi, tol in [(0.05, 0.5, 0.01), (0.3, 0.7, 0.005), (0.02, 0.2, 0.02)]:
+        answer = at.threshold_over(lo, hi, tol)
+        assert answer.n is not None and answer.upto is None
+        p = rng.uniform(lo, hi, 1500)
+        n = np.round(np.exp(rng.uniform(np.log(answer.n), np.log(20 * answer.n), 1500)))
+        errors = worst_error(n.astype(np.int64), p)
+        assert np.all(errors <= tol), (lo, hi, tol, n[errors > tol], p[errors > tol])
+        checked += p.size
+    assert checked == 4500
 
 
 def test_min_n_over_method_not_stored(at):
     only_cc = Atlas(at.dataset.sel(approximation=["normal_cc"]))
-    errors = brute_errors(at.n, [0.3, 0.5], "edgeworth_cc", "interval").max(axis=1)
-    for tol in (0.01, 1e-3, 1e-4):
-        expected = brute_min_n(at.n, errors, tol)
-        assert only_cc.min_n_over(0.2, 0.6, tol, method="edgeworth_cc") == expected
+    for tol in (0.01, 1e-3):
+        answer = only_cc.threshold_over(0.2, 0.6, tol, method="edgeworth_cc")
+        assert answer.n == max(t.n for t in answer.per_p)
+        assert answer.n >= only_cc.min_n(0.3, tol, method="edgeworth_cc")
 
 
 def test_min_n_over_refuses_bad_intervals(at):

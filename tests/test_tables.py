@@ -31,21 +31,22 @@ def test_table_is_the_query_api(chart_atlas):
 
 
 @pytest.mark.parametrize("method", ["normal_cc", "poisson"])
-def test_table_against_the_cube(chart_atlas, method):
-    # Brute force over the stored errors: n* is on the grid, every grid n from n* on is within
-    # tol and the grid n before it is not; None when the largest n fails.
+def test_table_against_the_engine(chart_atlas, method):
+    # Brute force at the integers around each entry: N - 1 exceeds tol (the engine), N and the
+    # integers after it up to 2 N are within it; None when the atlas's end fails (the cube).
     table = tables.threshold_table(chart_atlas, TOLS, PS, method=method)
     ds = chart_atlas.dataset
-    n = ds["n"].values
-    for p, row in zip(PS, table.min_n, strict=True):
+    for i, (p, row) in enumerate(zip(PS, table.min_n, strict=True)):
         column = ds["interval_error"].sel(approximation=method, p=p).values
-        for tol, value in zip(TOLS, row, strict=True):
+        for j, (tol, value) in enumerate(zip(TOLS, row, strict=True)):
             if value is None:
                 assert column[-1] > tol
                 continue
-            i = int(np.flatnonzero(n == value)[0])
-            assert (column[i:] <= tol).all()
-            assert i == 0 or column[i - 1] > tol
+            if (i, j) in table.partial:
+                continue
+            ints = np.unique(np.linspace(value, 2 * value, 200).astype(np.int64))
+            assert (worst_error(ints, p, method=method) <= tol).all()
+            assert value == 1 or worst_error(value - 1, p, method=method) > tol
 
 
 def test_table_at_one_half_from_the_engine(chart_atlas):
@@ -65,25 +66,33 @@ def test_table_formats(chart_atlas):
     # "> 100000" (not reached on a grid ending at 10^5), basis says on what it rests.
     rows = list(csv.reader(io.StringIO(table.to_csv())))
     assert rows[0] == ["p", "tol", "min_n", "basis"]
+    def code(v, where):
+        if v is None:
+            return "not_reached"
+        if where in table.partial:
+            return "evaluated_only"
+        return "to_atlas_end" if where in table.bounded else "exact"
+
     expected = []
-    for p, values in zip(PS, table.min_n, strict=True):
-        for tol, v in zip(tols, values, strict=True):
-            if v is None:
-                expected.append([repr(p), repr(tol), "> 100000", "not_reached"])
-            else:
-                expected.append([repr(p), repr(tol), str(v), "exact" if v <= 30 else "grid"])
+    for i, (p, values) in enumerate(zip(PS, table.min_n, strict=True)):
+        for j, (tol, v) in enumerate(zip(tols, values, strict=True)):
+            shown = "> 100000" if v is None else str(v)
+            expected.append([repr(p), repr(tol), shown, code(v, (i, j))])
     assert rows[1:] == expected
     assert all(cell != "" for row in rows for cell in row)
-    # All three kinds: 6 at p = 1/2 (exact), 9,569 at p = 0.01 (grid; README table) and not
-    # reached for 1e-4 at p = 0.01 (the README's default atlas needs n > 10^5 for 1e-3).
+    # normal_cc reaches 0.01 at every integer from its entry on (exact) and never reaches 1e-4
+    # at p = 0.01 on a grid ending at 10^5 (the default atlas needs n > 10^5 for 1e-3 there).
     mixed = tables.threshold_table(chart_atlas, [0.01, 1e-4], [0.01, 0.5])
     bases = [row[3] for row in csv.reader(io.StringIO(mixed.to_csv()))][1:]
-    assert set(bases) == {"exact", "grid", "not_reached"}
+    assert {"exact", "not_reached"} <= set(bases)
     record = json.loads(table.to_json())
     assert record["min_n"] == [list(r) for r in table.min_n]
-    assert record["basis"] == [[table.basis(v) for v in row] for row in table.min_n]
-    assert set(record["basis_meanings"]) == {"exact", "grid", "not_reached"}
-    assert "only the grid's n are checked" in record["basis_meanings"]["grid"]
+    assert record["basis"] == [
+        [code(v, (i, j)) for j, v in enumerate(row)] for i, row in enumerate(table.min_n)
+    ]
+    assert set(record["basis_meanings"]) == {"exact", "evaluated_only", "to_atlas_end",
+                                             "not_reached"}  # fmt: skip
+    assert "every integer n from the entry on" in record["basis_meanings"]["exact"]
     assert "100000" in record["basis_meanings"]["not_reached"]
     for row, marks in zip(record["min_n"], record["basis"], strict=True):
         for v, mark in zip(row, marks, strict=True):
@@ -95,11 +104,14 @@ def test_table_formats(chart_atlas):
     assert markdown.startswith("### Minimum n for poisson, interval error\n")
     assert "| p | tol 0.01 | tol 0.005 | tol 0.001 | tol 1e-4 |" in markdown
     assert "> 10⁵" in markdown  # None: not reached on a grid that ends at 10^5
-    assert "†: beyond n = 30 only the grid's n are checked" in markdown
-    assert "An entry without a mark is exact: every integer n from it to 30" in markdown
-    assert "from which on" not in markdown
-    for value in (v for row in table.min_n for v in row if v is not None):
-        assert f"{value:,}" + (" †" if value > 30 else "") in markdown
+    assert "†" not in markdown and "grid's n" not in markdown
+    assert "within the tolerance at every integer n >= N" in markdown
+    for i, row in enumerate(table.min_n):
+        for j, value in enumerate(row):
+            if value is not None:
+                mark = " ‡" if (i, j) in table.partial else (" §" if (i, j) in table.bounded
+                                                               else "")  # fmt: skip
+                assert f"{value:,}{mark} |" in markdown
     assert table.render("md") == markdown
     with pytest.raises(ValueError, match=r"^`format` must be one of 'csv', 'md', 'json'; got "
                                          r"'xml'\.$"):  # fmt: skip
