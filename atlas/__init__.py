@@ -8,6 +8,12 @@ stays light and never imports matplotlib, dask or netCDF4.
 __version__ = "0.1.0"
 
 from atlas.approximations import METHODS  # noqa: E402 - __version__ first: submodules read it
+from atlas.confidence import (  # noqa: E402 - numpy and scipy only, as the engine
+    INTERVALS,
+    coverage,
+    expected_width,
+    min_coverage,
+)
 from atlas.engine import METRICS, worst_error, worst_interval  # noqa: E402
 
 _LAZY = {
@@ -29,6 +35,7 @@ _LAZY = {
 }
 
 __all__ = [
+    "INTERVALS",
     "METHODS",
     "METRICS",
     "Atlas",
@@ -37,8 +44,11 @@ __all__ = [
     "best_method_map",
     "build_atlas",
     "compare_map",
+    "coverage",
     "error_map",
+    "expected_width",
     "gain_map",
+    "min_coverage",
     "open_atlas",
     "parse_rule",
     "rule_audit",
