@@ -32,6 +32,9 @@ _LAZY = {
     "write_sheet": "atlas.sheets",
     "write_wiki": "atlas.sheets",
     "parse_rule": "atlas.rules",
+    "check_coverage": "atlas.coverage_questions",
+    "coverage_min_n": "atlas.coverage_questions",
+    "shortest_interval": "atlas.coverage_questions",
 }
 
 __all__ = [
@@ -43,8 +46,10 @@ __all__ = [
     "__version__",
     "best_method_map",
     "build_atlas",
+    "check_coverage",
     "compare_map",
     "coverage",
+    "coverage_min_n",
     "error_map",
     "expected_width",
     "gain_map",
@@ -54,6 +59,7 @@ __all__ = [
     "rule_audit",
     "save_atlas",
     "save_figure",
+    "shortest_interval",
     "threshold_table",
     "worst_error",
     "worst_interval",

@@ -100,6 +100,8 @@ INTERVALS = (
 # min_coverage evaluates the endpoints of every x that can cover a p of the band; beyond this
 # many it refuses rather than fill the memory.
 MAX_CANDIDATES = 50_000_000
+# Up to this n, min_coverage finds the candidate x from all endpoints rather than by bisection.
+_DIRECT_N = 4096
 
 
 def _show(value):
@@ -393,9 +395,15 @@ class MinCoverage:
 def _band(n, p_lo, p_hi, interval, level):
     """The exact minimum coverage at one n over [p_lo, p_hi] (checked arguments)."""
     n_arr = np.int64(n)
-    first_lo, _ = covering_run(n_arr, p_lo, interval=interval, level=level)
-    _, last_hi = covering_run(n_arr, p_hi, interval=interval, level=level)
-    x0, x1 = int(first_lo), int(last_hi)
+    every = None
+    if n <= _DIRECT_N:  # every endpoint costs less than the bisections' overhead
+        x = np.arange(n + 1, dtype=np.float64)
+        every = _lower(x, n, interval, level), _upper(x, n, interval, level)
+        x0 = int(np.count_nonzero(every[1] < p_lo))
+        x1 = int(np.count_nonzero(every[0] <= p_hi)) - 1
+    else:
+        x0 = int(_initial_run(lambda x: _upper(x, n_arr, interval, level) < p_lo, n_arr))
+        x1 = int(_initial_run(lambda x: _lower(x, n_arr, interval, level) <= p_hi, n_arr)) - 1
     if x1 - x0 + 1 > MAX_CANDIDATES:
         raise ValueError(
             f"`n` is too large for this band: {x1 - x0 + 1} values of x can cover a p in it "
@@ -406,9 +414,11 @@ def _band(n, p_lo, p_hi, interval, level):
     # Only x0..x1 matter: an x < x0 has hi(x) < p_lo (and lo(x) <= hi(x)), an x > x1 has
     # lo(x) > p_hi. So A(t) = x0 - 1 + #{x in x0..x1: lo(x) <= t} and
     # B(t) = x0 + #{x in x0..x1: hi(x) < t} for every t in the band.
-    xs = np.arange(x0, x1 + 1, dtype=np.float64)
-    lo = np.sort(_lower(xs, n, interval, level))
-    hi = np.sort(_upper(xs, n, interval, level))
+    if every is None:
+        xs = np.arange(x0, x1 + 1, dtype=np.float64)
+        lo, hi = np.sort(_lower(xs, n, interval, level)), np.sort(_upper(xs, n, interval, level))
+    else:
+        lo, hi = np.sort(every[0][x0 : x1 + 1]), np.sort(every[1][x0 : x1 + 1])
     inner = np.concatenate([lo[(lo > p_lo) & (lo < p_hi)], hi[(hi > p_lo) & (hi < p_hi)]])
     t = np.unique(np.concatenate([[p_lo, p_hi], inner]))
     if t.size == 1:  # p_lo == p_hi: the coverage at that p

@@ -135,10 +135,10 @@ def check_coverage(n, p_lo, p_hi, floor, *, interval="wald", level=0.95):
     (False, 0.9278, 0.2008)
     """
     n = _single_n(n)
-    floor = _check_floor(floor)
     p_lo, p_hi = _check_band(p_lo, p_hi)
     check_interval(interval)
     level = check_level(level)
+    floor = _check_floor(floor)
     m = min_coverage(n, p_lo, p_hi, interval=interval, level=level, detail=True)
     return CoverageVerdict(
         n,
@@ -246,10 +246,10 @@ def coverage_min_n(p_lo, p_hi, floor, *, interval="wald", level=0.95, n_max=1000
     >>> r.min_n, r.last_failure, r.runs
     (116, 115, ((43, 51), (56, 61), (116, 200)))
     """
-    floor = _check_floor(floor)
     p_lo, p_hi = _check_band(p_lo, p_hi)
     check_interval(interval)
     level = check_level(level)
+    floor = _check_floor(floor)
     n_max = _single_n(n_max, "n_max", limit=N_MAX_LIMIT)
     ns = np.arange(1, n_max + 1)
     worst = np.array([min_coverage(int(n), p_lo, p_hi, interval=interval, level=level) for n in ns])
@@ -354,9 +354,9 @@ def shortest_interval(n, p_lo, p_hi, floor, *, level=0.95, intervals=None):
     'agresti_coull'
     """
     n = _single_n(n)
-    floor = _check_floor(floor)
     p_lo, p_hi = _check_band(p_lo, p_hi)
     level = check_level(level)
+    floor = _check_floor(floor)
     names = INTERVALS if intervals is None else tuple(intervals)
     if not names:
         raise ValueError("`intervals` must name at least one interval; got none.")
