@@ -251,8 +251,21 @@ def coverage_min_n(p_lo, p_hi, floor, *, interval="wald", level=0.95, n_max=1000
     level = check_level(level)
     floor = _check_floor(floor)
     n_max = _single_n(n_max, "n_max", limit=N_MAX_LIMIT)
+    worst = _worst_by_n(p_lo, p_hi, interval, level, n_max)
+    return _answer(worst, p_lo, p_hi, floor, interval, level)
+
+
+def _worst_by_n(p_lo, p_hi, interval, level, n_max):
+    """The exact minimum coverage over the band at every n = 1..n_max (checked arguments)."""
+    return np.array(
+        [min_coverage(n, p_lo, p_hi, interval=interval, level=level) for n in range(1, n_max + 1)]
+    )
+
+
+def _answer(worst, p_lo, p_hi, floor, interval, level):
+    """The :class:`CoverageMinN` for the minimum coverages ``worst`` at n = 1..len(worst)."""
+    n_max = worst.size
     ns = np.arange(1, n_max + 1)
-    worst = np.array([min_coverage(int(n), p_lo, p_hi, interval=interval, level=level) for n in ns])
     ok = worst >= floor
     runs, start = [], None
     for n, good in zip(ns.tolist(), ok.tolist(), strict=True):
@@ -278,6 +291,127 @@ def coverage_min_n(p_lo, p_hi, floor, *, interval="wald", level=0.95, n_max=1000
         last_failure,
         float(worst[-1]),
     )
+
+
+@dataclass(frozen=True)
+class CoverageTable:
+    """The minimum n for each interval and coverage floor over a band (every n to n_max checked).
+
+    Attributes
+    ----------
+    answers : dict
+        ``{(interval, floor): CoverageMinN}``.
+    """
+
+    p_lo: float
+    p_hi: float
+    level: float
+    n_max: int
+    intervals: tuple
+    floors: tuple
+    answers: dict
+
+    def cell(self, interval, floor):
+        """The table's text for one cell: the minimum n, with ``*`` if it also held below a
+        failure (not monotone), or ``> n_max``."""
+        answer = self.answers[(interval, floor)]
+        if answer.min_n is None:
+            return f"> {self.n_max}"
+        return f"{answer.min_n}*" if len(answer.runs) > 1 else str(answer.min_n)
+
+    def render(self, fmt="md"):
+        """The table as ``"md"``, ``"csv"`` or ``"json"`` text."""
+        if fmt not in TABLE_FORMATS:
+            valid = ", ".join(repr(f) for f in TABLE_FORMATS)
+            raise ValueError(f"`format` must be one of {valid}; got {fmt!r}.")
+        if fmt == "json":
+            import json
+
+            record = {
+                "p_lo": self.p_lo,
+                "p_hi": self.p_hi,
+                "level": self.level,
+                "n_max": self.n_max,
+                "rows": [
+                    {
+                        "interval": i,
+                        "floor": f,
+                        "min_n": a.min_n,
+                        "runs": [list(r) for r in a.runs],
+                        "last_failure": a.last_failure,
+                    }
+                    for (i, f), a in self.answers.items()
+                ],
+            }
+            return json.dumps(record, allow_nan=False) + "\n"
+        head = ["interval", *[f"floor {f:g}" for f in self.floors]]
+        rows = [[i, *[self.cell(i, f) for f in self.floors]] for i in self.intervals]
+        if fmt == "csv":
+            return "\n".join(",".join(r) for r in [head, *rows]) + "\n"
+        lines = [
+            f"Minimum n from which the {self.level:g} interval covers at least the floor for "
+            f"{_band_text(self.p_lo, self.p_hi)}, at every n checked up to {self.n_max}",
+            "",
+            "| " + " | ".join(head) + " |",
+            "|" + "---|" * len(head),
+            *["| " + " | ".join(r) + " |" for r in rows],
+            "",
+            f"Every integer n from 1 to {self.n_max} checked with the exact minimum coverage; "
+            f"`> {self.n_max}`: the floor fails at n = {self.n_max}; `*`: the floor also held "
+            "at some smaller n and failed again after (coverage is not monotone in n).",
+        ]
+        return "\n".join(lines) + "\n"
+
+
+TABLE_FORMATS = ("md", "csv", "json")
+
+
+def coverage_table(p_lo, p_hi, floors, *, level=0.95, intervals=None, n_max=1000):
+    """The minimum n for each interval and coverage floor over the band p_lo <= p <= p_hi.
+
+    Parameters
+    ----------
+    p_lo, p_hi : float
+        The band, ``0 < p_lo <= p_hi < 1``.
+    floors : sequence of float
+        Coverage floors, each ``0 < floor < 1``.
+    level : float
+        The nominal level of every interval.
+    intervals : sequence of str, optional
+        Default: all of :data:`atlas.confidence.INTERVALS`.
+    n_max : int
+        As :func:`coverage_min_n`; the minimum coverage at each n is computed once per interval
+        and shared by the floors.
+
+    Returns
+    -------
+    CoverageTable
+
+    Examples
+    --------
+    >>> table = coverage_table(0.05, 0.5, [0.93, 0.94], intervals=["wald", "wilson"], n_max=200)
+    >>> print(table.render("csv"), end="")
+    interval,floor 0.93,floor 0.94
+    wald,> 200,> 200
+    wilson,116*,> 200
+    """
+    p_lo, p_hi = _check_band(p_lo, p_hi)
+    level = check_level(level)
+    floors = tuple(dict.fromkeys(_check_floor(f) for f in np.atleast_1d(floors).tolist()))
+    if not floors:
+        raise ValueError("`floors` must hold at least one floor; got none.")
+    names = INTERVALS if intervals is None else tuple(dict.fromkeys(intervals))
+    if not names:
+        raise ValueError("`intervals` must name at least one interval; got none.")
+    for name in names:
+        check_interval(name)
+    n_max = _single_n(n_max, "n_max", limit=N_MAX_LIMIT)
+    answers = {}
+    for name in names:
+        worst = _worst_by_n(p_lo, p_hi, name, level, n_max)
+        for floor in floors:
+            answers[(name, floor)] = _answer(worst, p_lo, p_hi, floor, name, level)
+    return CoverageTable(p_lo, p_hi, level, n_max, names, floors, answers)
 
 
 @dataclass(frozen=True)
