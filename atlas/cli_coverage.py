@@ -1,4 +1,5 @@
-"""The command-line block for confidence intervals for p: coverage, coverage-n, shortest.
+"""The command-line block for confidence intervals for p: coverage, coverage-n, shortest,
+coverage-table and coverage-map.
 
 Thin over :mod:`atlas.coverage_questions`: parse, call the API, print (text, or one JSON object
 with ``--json``). :func:`add_coverage_commands` registers the three commands on the subparsers of
@@ -22,6 +23,10 @@ _NAMES = {
     "intervals": "--interval",
     "level": "--level",
     "n_max": "--n-max",
+    "floors": "--floor",
+    "variable": "--variable",
+    "path": "-o",
+    "format": "--format",
 }
 
 
@@ -146,6 +151,45 @@ def _cmd_shortest(args):
     return 3 if args.strict and choice.best is None else 0
 
 
+def _cmd_coverage_table(args):
+    """Print (or write) the minimum n for each interval and coverage floor over a band."""
+    from atlas.cli import _check_format, _check_output, _emit, _number, _number_list
+    from atlas.coverage_questions import TABLE_FORMATS, coverage_table
+
+    _check_format(args.format, TABLE_FORMATS)
+    p_lo, p_hi = _band(args)
+    level = parse_probability(args.level, "--level")
+    floors = _number_list(args.floor, "--floor")
+    _check_output(args)
+    table = coverage_table(
+        p_lo,
+        p_hi,
+        floors,
+        level=level,
+        intervals=_interval_list(args.interval),
+        n_max=_number(args.n_max),
+    )
+    return _emit(table.render(args.format), args.output)
+
+
+def _cmd_coverage_map(args):
+    """Draw a coverage map from the embedded coverage cube (or --cube FILE)."""
+    from atlas import figures
+    from atlas.cli import _check_output, _Options
+    from atlas.coverage_charts import coverage_map
+    from atlas.coverage_cube import open_coverage_cube
+
+    with _Options(path="-o"):
+        figures.figure_format(args.output)
+    _check_output(args)
+    level = parse_probability(args.level, "--level")
+    with _Options(path="--cube"):
+        cube = open_coverage_cube(args.cube)
+    fig = coverage_map(cube, interval=args.interval, level=level, variable=args.variable)
+    print(figures.save_figure(fig, args.output))
+    return 0
+
+
 def add_coverage_commands(commands):
     """Register coverage, coverage-n and shortest on the subparsers ``commands``."""
 
@@ -198,3 +242,42 @@ def add_coverage_commands(commands):
     level_floor(short, "coverage wanted (default: the level)")
     answer(short, "no interval keeps the floor")
     short.set_defaults(handler=_cmd_shortest, names=_NAMES)
+
+    table = commands.add_parser(
+        "coverage-table", help="the minimum n for each interval and coverage floor over a band"
+    )
+    band(table)
+    table.add_argument(
+        "--interval",
+        metavar="NAMES",
+        help=f"comma-separated intervals (default all: {_INTERVAL_LIST})",
+    )
+    table.add_argument("--level", default="0.95", help=f"nominal level (0.95), {_FORMS}")
+    table.add_argument(
+        "--floor", default="0.93,0.94,0.95", help="comma-separated coverage floors (0.93,0.94,0.95)"
+    )
+    table.add_argument("--n-max", default="1000", help="check every n from 1 to this (1000)")
+    table.add_argument("--format", default="md", help="md (default), csv or json")
+    table.add_argument("-o", "--output", metavar="FILE", help="write FILE instead of printing")
+    table.add_argument("--force", action="store_true", help="replace an existing FILE")
+    table.set_defaults(handler=_cmd_coverage_table, names=_NAMES)
+
+    chart = commands.add_parser(
+        "coverage-map", help="map the (minimum) coverage of an interval over n and p"
+    )
+    chart.add_argument("--interval", default="wald", help=interval_help)
+    chart.add_argument("--level", default="0.95", help="a level of the cube: 0.9, 0.95 or 0.99")
+    chart.add_argument(
+        "--variable",
+        default="min_coverage",
+        help="min_coverage (default: the exact minimum over each p-cell) or "
+        "coverage (at the grid points)",
+    )
+    chart.add_argument(
+        "--cube", metavar="FILE", help="coverage cube file (default: the embedded one)"
+    )
+    chart.add_argument(
+        "-o", "--output", required=True, metavar="FILE", help="FILE.png, FILE.svg or FILE.pdf"
+    )
+    chart.add_argument("--force", action="store_true", help="replace an existing FILE")
+    chart.set_defaults(handler=_cmd_coverage_map, names=_NAMES)

@@ -243,11 +243,15 @@ def open_coverage_cube(path=None):
     """
     import xarray as xr
 
-    path = default_coverage_path() if path is None else path
+    path = default_coverage_path() if path is None else Path(path)
+    if not path.is_file():
+        raise FileNotFoundError(f"`path` is not a file: {str(path)!r}.")
 
     ds = xr.load_dataset(path, engine="netcdf4")
     if ds.attrs.get("coverage_schema") != COVERAGE_SCHEMA:
-        raise ValueError(f"`path` is not a coverage cube of schema {COVERAGE_SCHEMA}: {path!r}.")
+        raise ValueError(
+            f"`path` is not a coverage cube of schema {COVERAGE_SCHEMA}: {str(path)!r}."
+        )
     names = [v.decode() if isinstance(v, bytes) else str(v) for v in ds["interval"].values]
     return ds.assign_coords(
         interval=("interval", np.asarray(names, dtype=object), ds["interval"].attrs)

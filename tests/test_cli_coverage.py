@@ -15,7 +15,12 @@ import sys
 import pytest
 
 from atlas.cli import main
-from atlas.coverage_questions import check_coverage, coverage_min_n, shortest_interval
+from atlas.coverage_questions import (
+    check_coverage,
+    coverage_min_n,
+    coverage_table,
+    shortest_interval,
+)
 
 
 def run(capsys, *argv):
@@ -113,6 +118,51 @@ def test_errors_are_one_line_naming_the_option(capsys, argv, message):
 def test_a_band_is_required(capsys):
     code, _, err = run(capsys, "coverage", "--n", "40")
     assert code == 2 and "one of the arguments --p --p-range is required" in err
+
+
+def test_coverage_table_command(capsys, tmp_path):
+    code, out, _ = run(capsys, "coverage-table", "--p-range", "0.05:0.5", "--interval",
+                       "wald,wilson", "--floor", "0.93,0.94", "--n-max", "150")  # fmt: skip
+    expected = coverage_table(0.05, 0.5, [0.93, 0.94], intervals=["wald", "wilson"], n_max=150)
+    assert code == 0 and out == expected.render("md")
+    target = tmp_path / "t.csv"
+    code, out, _ = run(capsys, "coverage-table", "--p", "0.3", "--interval", "wilson_cc",
+                       "--n-max", "30", "--format", "csv", "-o", str(target))  # fmt: skip
+    assert code == 0 and out.strip() == str(target)
+    assert target.read_text() == "interval,floor 0.93,floor 0.94,floor 0.95\nwilson_cc,1,1,1\n"
+    code, _, err = run(capsys, "coverage-table", "--p", "0.3", "--n-max", "30", "-o", str(target))
+    assert code == 2 and "`-o`" in err and "--force" in err
+
+
+def test_coverage_map_command(capsys, tmp_path):
+    target = tmp_path / "map.svg"
+    code, out, _ = run(capsys, "coverage-map", "--interval", "wilson", "-o", str(target))
+    assert code == 0 and out.strip() == str(target) and target.stat().st_size > 10_000
+    assert "wilson interval, nominal 0.95" in target.read_text()
+
+
+@pytest.mark.parametrize(
+    ("argv", "message"),
+    [
+        (["coverage-table", "--p", "0.3", "--format", "xml"],
+         "`--format` must be one of 'md', 'csv', 'json'; got 'xml'."),
+        (["coverage-table", "--p", "0.3", "--floor", "1.5", "--n-max", "5"],
+         "`--floor` must be in the open interval (0, 1); got 1.5."),
+        (["coverage-map", "--level", "0.8", "-o", "x.png"],
+         "`--level` must be one the cube holds (0.9, 0.95, 0.99); got 0.8."),
+        (["coverage-map", "--variable", "width", "-o", "x.png"],
+         "`--variable` must be one of 'min_coverage', 'coverage'; got 'width'."),
+        (["coverage-map", "-o", "x.gif"],
+         "`-o` must end in one of '.png', '.svg', '.pdf'; got 'x.gif'."),
+        (["coverage-map", "--cube", "missing.nc", "-o", "x.png"],
+         "`--cube` is not a file: 'missing.nc'."),
+    ],
+)  # fmt: skip
+def test_table_and_map_errors(capsys, tmp_path, monkeypatch, argv, message):
+    monkeypatch.chdir(tmp_path)
+    code, out, err = run(capsys, *argv)
+    assert (code, out, err) == (2, "", f"approx-atlas: error: {message}\n")
+    assert list(tmp_path.iterdir()) == []
 
 
 # --- the README's section, as typed -------------------------------------------------------------
