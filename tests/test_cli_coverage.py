@@ -185,9 +185,10 @@ def test_readme_python_block_prints_what_it_shows(tmp_path):
 
 
 def test_readme_commands_print_what_they_show(capsys):
-    _, session = _readme_blocks()[2]
-    commands = re.split(r"^\$ approx-atlas ", session, flags=re.M)[1:]
-    assert len(commands) == 4
+    sessions = [text for lang, text in _readme_blocks() if text.startswith("$ approx-atlas ")]
+    commands = [c for text in sessions for c in re.split(r"^\$ approx-atlas ", text, flags=re.M)]
+    commands = [c for c in commands if c]
+    assert len(commands) == 5
     for block in commands:
         line, _, shown = block.partition("\n")
         assert main(shlex.split(line)) == 0

@@ -73,6 +73,11 @@ def test_embedded_cube_matches_the_api():
     np.testing.assert_array_equal(
         cell.coverage.values, coverage(501, ds.p.values, interval="jeffreys", level=0.99)
     )
+    # The README's line (computed, regression value; p = 0.5 is a grid point).
+    value = ds.min_coverage.sel(interval="wilson", level=0.95, n=501).sel(p=0.5, method="nearest")
+    assert value.item() == 0.945385420780363
+    lo, hi = ds.p_cell_lo.sel(p=0.5).item(), ds.p_cell_hi.sel(p=0.5).item()
+    assert value.item() == min_coverage(501, lo, hi, interval="wilson")
 
 
 def test_cube_errors():
