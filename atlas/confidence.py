@@ -480,7 +480,9 @@ def min_coverage(n, p_lo, p_hi, *, interval="wald", level=0.95, detail=False):
     -----
     Exact, not sampled: the infimum is the smallest one-sided limit of C at the ends of the
     pieces between consecutive endpoints lying in the band (see the module's notes for why C has
-    no minimum inside a piece). Only the x that can cover a p of the band are evaluated.
+    no minimum inside a piece). Only the endpoints of the x that can cover a p of the band enter
+    (for n above 4096 only those are computed, found by bisection; below, all n + 1 are
+    computed, which is cheaper than the bisection).
 
     Examples
     --------
