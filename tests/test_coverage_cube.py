@@ -5,6 +5,7 @@ against mpmath in tests/test_confidence.py); literal values are "computed, regre
 """
 
 import json
+import re
 
 import numpy as np
 import pytest
@@ -131,3 +132,40 @@ def test_coverage_table():
         table.render("x")
     with pytest.raises(ValueError, match=r"^`floors` must hold at least one floor; got none\.$"):
         coverage_table(0.05, 0.5, [])
+
+
+# --- the coverage page and sheet ----------------------------------------------------------------
+
+
+def test_coverage_page(small_cube, tmp_path):
+    from atlas.coverage_pages import write_coverage_page
+
+    written = write_coverage_page(tmp_path, cube=small_cube, bands=[(0.05, 0.5)], n_max=60)
+    names = sorted(p.name for p in written)
+    assert names == sorted(p.name for p in tmp_path.iterdir())  # nothing else, no temporary
+    assert "coverage.html" in names and "coverage_wilson_95.svg" in names
+    page = (tmp_path / "coverage.html").read_text()
+    assert "<script" not in page and "http" not in page  # opens offline
+    for src in re.findall(r'src="([^"]+)"', page):
+        assert (tmp_path / src).is_file()
+    table = coverage_table(0.05, 0.5, (0.93, 0.94, 0.95), n_max=60)
+    assert table.render("md") in (tmp_path / "coverage.md").read_text()
+    assert (tmp_path / "coverage_min_n_0.05_0.5.csv").read_text() == table.render("csv")
+    assert "Caution." in page and "Newcombe (1998), method 4" in page
+    # The page's files are page files: the wiki may replace the directory that holds them.
+    from atlas.files import check_directory_target
+
+    assert check_directory_target(tmp_path, overwrite=True) == tmp_path
+
+
+def test_coverage_sheet(small_cube, tmp_path):
+    from atlas.coverage_pages import write_coverage_sheet
+
+    path = write_coverage_sheet(tmp_path / "s.pdf", cube=small_cube, bands=[(0.05, 0.5)],
+                                n_max=40)  # fmt: skip
+    data = path.read_bytes()
+    assert data.startswith(b"%PDF")
+    assert len(re.findall(rb"/Type\s*/Page\b", data)) == 2 + 3  # two text pages, three maps
+    assert [p.name for p in tmp_path.iterdir()] == ["s.pdf"]
+    with pytest.raises(ValueError, match=r"^`path` must end in '\.pdf'; got '.*s\.png'\.$"):
+        write_coverage_sheet(tmp_path / "s.png", cube=small_cube)
