@@ -34,10 +34,11 @@ intervals, b the binomial pmf.
 lo(x) <= p are an initial run 0..A(p) and the x with hi(x) >= p a final run B(p)..n, so the x
 covering p are the run B(p)..A(p) (empty when B > A), and C(n, p) = F(A) - F(B - 1) with F the
 binomial CDF. Why: lo(0) <= 0 < p for each (0 for wald, wilson, wilson_cc, jeffreys and
-clopper_pearson, -1/(2n) for wald_cc, and p~(0) - z sqrt(p~ q~ / n~) < 0 for agresti_coull, since
-z^2/(2 n~) < z sqrt(z^2/(2 n~) (1 - z^2/(2 n~)) / n~) whenever n >= 1); and lo is either
-nondecreasing in x (wilson, wilson_cc: the score statistic's acceptance region
-|x - n p| <= z sqrt(n p q) (+ 1/2 with the correction) moves up with p; jeffreys and
+clopper_pearson, -1/(2n) for wald_cc, and p~(0) - z sqrt(p~ q~ / n~) < 0 for agresti_coull:
+with p~(0) = z^2/(2 n~) that is p~(0) < z^2 (1 - p~(0)) / n~, i.e. p~(0) < 1/2, true as
+n~ = n + z^2 > z^2); and lo is either nondecreasing in x (wilson, wilson_cc: the score
+statistic's acceptance region |x - n p| <= z sqrt(n p q) (+ 1/2 with the correction) moves up
+with p; jeffreys and
 clopper_pearson: a Beta(a, b) quantile increases with a and decreases with b) or convex in x
 (wald, wald_cc: x/n minus the concave z sqrt(x (n - x)) / n^1.5; agresti_coull: the same in p~,
 affine in x). A convex or nondecreasing function that is <= p at x = 0 is <= p exactly on an
