@@ -8,6 +8,12 @@ stays light and never imports matplotlib, dask or netCDF4.
 __version__ = "0.1.0"
 
 from atlas.approximations import METHODS  # noqa: E402 - __version__ first: submodules read it
+from atlas.confidence import (  # noqa: E402 - numpy and scipy only, as the engine
+    INTERVALS,
+    coverage,
+    expected_width,
+    min_coverage,
+)
 from atlas.engine import METRICS, worst_error, worst_interval  # noqa: E402
 
 _LAZY = {
@@ -26,9 +32,17 @@ _LAZY = {
     "write_sheet": "atlas.sheets",
     "write_wiki": "atlas.sheets",
     "parse_rule": "atlas.rules",
+    "check_coverage": "atlas.coverage_questions",
+    "coverage_min_n": "atlas.coverage_questions",
+    "shortest_interval": "atlas.coverage_questions",
+    "coverage_table": "atlas.coverage_questions",
+    "build_coverage_cube": "atlas.coverage_cube",
+    "open_coverage_cube": "atlas.coverage_cube",
+    "coverage_map": "atlas.coverage_charts",
 }
 
 __all__ = [
+    "INTERVALS",
     "METHODS",
     "METRICS",
     "Atlas",
@@ -36,14 +50,24 @@ __all__ = [
     "__version__",
     "best_method_map",
     "build_atlas",
+    "build_coverage_cube",
+    "check_coverage",
     "compare_map",
+    "coverage",
+    "coverage_map",
+    "coverage_min_n",
+    "coverage_table",
     "error_map",
+    "expected_width",
     "gain_map",
+    "min_coverage",
     "open_atlas",
+    "open_coverage_cube",
     "parse_rule",
     "rule_audit",
     "save_atlas",
     "save_figure",
+    "shortest_interval",
     "threshold_table",
     "worst_error",
     "worst_interval",

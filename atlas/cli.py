@@ -16,6 +16,7 @@ import re
 import sys
 
 from atlas import METHODS, METRICS, __version__
+from atlas.cli_coverage import add_coverage_commands
 from atlas.grid import DEFAULT_N_SPEC, DEFAULT_P_SPEC, describe_grid
 from atlas.notation import format_p, parse_probability, rounded
 
@@ -726,6 +727,7 @@ def _build_parser():
     _add_query_commands(commands)
     _add_build_commands(commands)
     _add_output_commands(commands)
+    add_coverage_commands(commands)  # confidence intervals for p (atlas/cli_coverage.py)
     return parser
 
 

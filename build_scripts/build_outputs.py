@@ -9,7 +9,10 @@ published or opened as it is. Beside them:
   panels one above the other, as on the wiki page);
 - ``min_n_<method>_<metric>.csv`` and ``.md``: the minimum n for each tolerance and p;
 - ``rules_audit.md`` and ``.json``: the rules of thumb audited for every method and metric;
-- ``reference_sheet.pdf``: the printable multi-page sheet.
+- ``reference_sheet.pdf``: the printable multi-page sheet;
+- ``coverage.html``, ``coverage.md``, ``coverage_*.svg``, ``coverage_min_n_*`` and
+  ``coverage_sheet.pdf``: the page and sheet on confidence intervals for p
+  (:mod:`atlas.coverage_pages`, from the embedded coverage cube).
 
 The files carry no creation date (the charts show the atlas's build date), so a rerun on the
 same atlas rewrites the same bytes and the repository sees no change.
@@ -27,7 +30,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))  # this checkout's atlas, not an installed copy
 
-from atlas import charts, figures, files, sheets, tables  # noqa: E402
+from atlas import charts, coverage_pages, figures, files, sheets, tables  # noqa: E402
 from atlas.engine import METRICS  # noqa: E402
 from atlas.query import open_atlas  # noqa: E402
 
@@ -93,6 +96,9 @@ def main(argv=None):
     written.append(files.save_text(out / "rules_audit.md", audit.to_markdown()))
     written.append(files.save_text(out / "rules_audit.json", audit.to_json()))
     written.append(sheets.write_sheet(atlas, out / "reference_sheet.pdf"))
+    # The coverage page and sheet (confidence intervals for p), from the embedded coverage cube.
+    written += coverage_pages.write_coverage_page(out)
+    written.append(coverage_pages.write_coverage_sheet(out / "coverage_sheet.pdf"))
 
     for path in written:
         print(f"{path.stat().st_size / 1024:9.1f} KB  {path.relative_to(out.parent)}")
