@@ -26,12 +26,16 @@ _LAZY = {
     "write_sheet": "atlas.sheets",
     "write_wiki": "atlas.sheets",
     "parse_rule": "atlas.rules",
+    "tail_error": "atlas.tails",
+    "test_size": "atlas.sizes",
+    "TestSize": "atlas.sizes",
 }
 
 __all__ = [
     "METHODS",
     "METRICS",
     "Atlas",
+    "TestSize",
     "Verdict",
     "__version__",
     "best_method_map",
@@ -44,6 +48,8 @@ __all__ = [
     "rule_audit",
     "save_atlas",
     "save_figure",
+    "tail_error",
+    "test_size",
     "threshold_table",
     "worst_error",
     "worst_interval",
