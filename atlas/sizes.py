@@ -24,6 +24,9 @@ approximate test, with c the bound of :func:`atlas.tails.error_bound` on |T(j) -
 - no j with T(j) > alpha + c is rejected;
 - every j between is evaluated.
 
+Up to n = 2048 every count is evaluated in one vectorised pass instead
+(:class:`atlas.tails.Profile`), which costs less than the bound.
+
 So size = T(j1) + the sum of b over the evaluated j with A(j) <= alpha, j1 the last certainly
 rejected j; nothing is sampled. The two-sided set is the union of the two one-sided sets at
 alpha/2; where they could meet (only when alpha + 2c >= 1, at very small n), the counts in both
@@ -43,7 +46,7 @@ import numpy as np
 
 from atlas.approximations import check_method
 from atlas.engine import check_n, check_p
-from atlas.tails import Side, _cells, check_alpha, error_bound
+from atlas.tails import DIRECT_MAX, Profile, Side, _cells, check_alpha, error_bound
 
 __all__ = ["ALTERNATIVES", "TestSize", "check_alternative", "test_size"]
 
@@ -145,6 +148,20 @@ def _overlap(n, p, method, level, lower_end, upper_end):
     return total
 
 
+def _profile_sizes(profile, alphas, alternative):
+    """Both sizes from every count of a small cell (:class:`atlas.tails.Profile`)."""
+    level = alphas[:, None] if alternative != "two-sided" else alphas[:, None] / 2.0
+    if alternative == "less":
+        hit, exact = profile.g <= level, profile.lower <= level
+    elif alternative == "greater":
+        hit, exact = profile.gu <= level, profile.upper <= level
+    else:
+        hit = (profile.g <= level) | (profile.gu <= level)
+        exact = (profile.lower <= level) | (profile.upper <= level)
+    mass = profile.mass[None, :]
+    return np.where(hit, mass, 0.0).sum(axis=1), np.where(exact, mass, 0.0).sum(axis=1)
+
+
 def cell_sizes(n, p, method, alphas, alternative, *, bound=None):
     """Approximate and exact test sizes at one (n, p0) for several levels.
 
@@ -154,6 +171,8 @@ def cell_sizes(n, p, method, alphas, alternative, *, bound=None):
         One value per level.
     """
     alphas = np.atleast_1d(np.asarray(alphas, dtype=np.float64))
+    if n <= DIRECT_MAX:
+        return _profile_sizes(Profile(n, p, method), alphas, alternative)
     if bound is None:
         bound = error_bound(n, p, method)
     if alternative == "less":

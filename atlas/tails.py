@@ -31,7 +31,9 @@ notes show every G monotone): there |T(j') - A(j')| <= (1 - T(j)) + |1 - A(j)| f
 last point j = n is always evaluated. Near the mean the relative error is of the order of the
 absolute one, so the scan ends within a few sigma of the mean at worst (a few thousand integers
 at n = 10^6) and, for the far tails that matter, usually within a fraction of a sigma of j_alpha.
-``full=True`` evaluates every admitted j instead; the tests compare the two.
+``full=True`` evaluates every admitted j instead; the tests compare the two. Up to n =
+``DIRECT_MAX`` (2048) every count is evaluated in one vectorised pass (:class:`Profile`, tails
+summed from the pmf), which costs less than the bound.
 
 Accuracy
 --------
@@ -62,6 +64,8 @@ __all__ = ["TAILS", "check_alpha", "check_tail", "tail_error"]
 
 TAILS = ("lower", "upper", "both")
 
+#: Up to this n every count is evaluated and the engine's bound c is not needed.
+DIRECT_MAX = 2048
 _MARGIN_REL = 1e-9
 _MARGIN_ABS = 1e-12
 _FAR_SIGMAS = 9.0
@@ -282,6 +286,39 @@ def side_errors(side, alphas, bound, *, full=False):
     return best
 
 
+class Profile:
+    """Every count of one small cell at once: k = 0..n, b, L, U, G(k) and 1 - G(k - 1).
+
+    L and U are running sums of the pmf from each far end (positive terms: relative error
+    below n ulps, so relative accuracy in the far tails too). Used up to n = ``DIRECT_MAX``,
+    where one vectorised pass costs less than the engine's bound.
+    """
+
+    def __init__(self, n, p, method):
+        self.n = n
+        self.k = np.arange(n + 1, dtype=np.int64)
+        self.mass = _binom_pmf(self.k, n, p)
+        self.lower = np.cumsum(self.mass)
+        self.upper = np.cumsum(self.mass[::-1])[::-1]
+        self.lower[-1] = self.upper[0] = 1.0  # the whole mass, exactly
+        self.g = approximate_cdf(self.k, n, p, method)
+        self.gu = approximate_upper(self.k, n, p, method)
+
+    def tail_errors(self, alphas):
+        """lower(alpha), upper(alpha) for each level."""
+        with np.errstate(divide="ignore", invalid="ignore"):  # underflowed tails: not admitted
+            r_low = np.abs(self.g / self.lower - 1.0)
+            r_up = np.abs(self.gu / self.upper - 1.0)
+        r_low = np.where(self.lower > 0, r_low, 0.0)
+        r_up = np.where(self.upper > 0, r_up, 0.0)
+        # Lower: admitted k >= the first with L >= alpha; upper: k <= the last with U >= alpha.
+        suffix = np.maximum.accumulate(r_low[::-1])[::-1]
+        prefix = np.maximum.accumulate(r_up)
+        first = np.searchsorted(self.lower, alphas, side="left")
+        last = self.n - np.searchsorted(self.upper[::-1], alphas, side="left")
+        return suffix[np.minimum(first, self.n)], prefix[np.maximum(last, 0)]
+
+
 def cell_tail_errors(n, p, method, alphas, *, bound=None, full=False):
     """Lower and upper tail relative errors at one (n, p) for several levels.
 
@@ -291,7 +328,9 @@ def cell_tail_errors(n, p, method, alphas, *, bound=None, full=False):
         One value per level.
     """
     alphas = np.atleast_1d(np.asarray(alphas, dtype=np.float64))
-    if bound is None:
+    if n <= DIRECT_MAX and not full:
+        return Profile(n, p, method).tail_errors(alphas)
+    if bound is None and not full:
         bound = error_bound(n, p, method)
     lower = side_errors(Side(n, p, method, False), alphas, bound, full=full)
     upper = side_errors(Side(n, p, method, True), alphas, bound, full=full)

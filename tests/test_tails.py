@@ -73,13 +73,13 @@ def test_two_trials_by_hand():
     # n = 2, p = 1/2, normal_cc: mu = 1, sigma = 1/sqrt 2, z(k) = (k - 1/2) sqrt 2.
     # L = 1/4, 3/4, 1; G = Phi(-1/sqrt 2), Phi(1/sqrt 2), Phi(3/sqrt 2).
     # r(0) = 1 - 4 Phi(-0.7071) = 0.0410, r(1) = (4/3) Phi(0.7071) - 1 = 0.0137,
-    # r(2) = 1 - Phi(2.1213) = 0.0169. alpha <= 1/4 admits all three; 1/4 < alpha <= 3/4
+    # r(2) = 1 - Phi(2.1213) = 0.0169. alpha = 0.2 admits all three; 1/4 < alpha <= 3/4
     # leaves k = 1, 2.
     s = 1.0 / math.sqrt(2.0)
     r0 = 1.0 - 4.0 * _phi_cdf(-s)
     r1 = 4.0 / 3.0 * _phi_cdf(s) - 1.0
     r2 = 1.0 - _phi_cdf(3.0 * s)
-    assert_allclose(tail_error(2, 0.5, 0.25, tail="lower"), max(r0, r1, r2), rtol=1e-13)
+    assert_allclose(tail_error(2, 0.5, 0.2, tail="lower"), max(r0, r1, r2), rtol=1e-13)
     assert_allclose(tail_error(2, 0.5, 0.3, tail="lower"), max(r1, r2), rtol=1e-13)
     # p = 1/2 and normal_cc are symmetric: the upper tails give the same numbers.
     assert_allclose(tail_error(2, 0.5, 0.3, tail="upper"), max(r1, r2), rtol=1e-13)
