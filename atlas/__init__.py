@@ -29,6 +29,12 @@ _LAZY = {
     "tail_error": "atlas.tails",
     "test_size": "atlas.sizes",
     "TestSize": "atlas.sizes",
+    "tail_verdict": "atlas.decisions",
+    "size_verdict": "atlas.decisions",
+    "tail_min_n": "atlas.decisions",
+    "size_min_n": "atlas.decisions",
+    "best_tail_method": "atlas.decisions",
+    "best_size_method": "atlas.decisions",
 }
 
 __all__ = [
@@ -39,6 +45,8 @@ __all__ = [
     "Verdict",
     "__version__",
     "best_method_map",
+    "best_size_method",
+    "best_tail_method",
     "build_atlas",
     "compare_map",
     "error_map",
@@ -48,7 +56,11 @@ __all__ = [
     "rule_audit",
     "save_atlas",
     "save_figure",
+    "size_min_n",
+    "size_verdict",
     "tail_error",
+    "tail_min_n",
+    "tail_verdict",
     "test_size",
     "threshold_table",
     "worst_error",
