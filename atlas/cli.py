@@ -725,6 +725,10 @@ def _build_parser():
     _add_query_commands(commands)
     _add_build_commands(commands)
     _add_output_commands(commands)
+    # Tail p-values and test sizes (issue 11): their commands live in atlas/cli_decisions.py.
+    from atlas.cli_decisions import add_commands as _add_decision_commands
+
+    _add_decision_commands(commands)
     return parser
 
 

@@ -333,6 +333,14 @@ class MinN:
         )
 
 
+def _renamed_n(value, name):
+    """check_n for another integer argument, its messages naming ``name``."""
+    try:
+        return check_n(value)
+    except ValueError as error:
+        raise ValueError(str(error).replace("`n`", f"`{name}`")) from None
+
+
 def _ladder(dense_to, n_max):
     """Every integer to ``dense_to``, then n about 5% apart, and ``n_max``; increasing."""
     points = list(range(1, min(dense_to, n_max) + 1))
@@ -349,8 +357,8 @@ def _ladder(dense_to, n_max):
 
 def _min_n(passes, n_max, dense_to):
     """Search the ladder from the top down for the largest failing n."""
-    n_max = int(_one(n_max, check_n, "n_max", "integer"))
-    dense_to = int(_one(dense_to, check_n, "dense_to", "integer"))
+    n_max = int(_one(n_max, lambda v: _renamed_n(v, "n_max"), "n_max", "integer"))
+    dense_to = int(_one(dense_to, lambda v: _renamed_n(v, "dense_to"), "dense_to", "integer"))
     points = _ladder(dense_to, n_max)
     previous = None
     for i in range(len(points) - 1, -1, -1):
