@@ -111,27 +111,31 @@ def _far_reject(side, level):
 
 
 def _rejected(side, levels, bound):
-    """For each level, (j1, j2, extra): all j <= j1 rejected, j in (j1, j2] rejected where
-    A(j) <= level (their mass is ``extra``), none beyond j2; and the exact test's size."""
-    approx_size = np.empty(levels.size)
-    exact_size = np.empty(levels.size)
-    ends = []
-    j_exact = side.last_at_most(levels)
-    low = side.last_at_most(levels - bound)
-    high = side.last_at_most(levels + bound)
-    for i, level in enumerate(levels):
-        exact_size[i] = float(side.exact(j_exact[i])) if j_exact[i] >= 0 else 0.0
-        j1 = int(low[i]) if level - bound > 0 else -1
-        j1 = max(j1, _far_reject(side, level))
-        j2 = int(high[i])
-        total = float(side.exact(j1)) if j1 >= 0 else 0.0
-        for start in range(j1 + 1, j2 + 1, _BLOCK):
-            j = np.arange(start, min(j2 + 1, start + _BLOCK), dtype=np.int64)
-            hit = side.approx(j) <= level
-            total += float(side.mass(j[hit]).sum())
-        approx_size[i] = total
-        ends.append((j1, j2))
-    return approx_size, exact_size, ends
+    """Both sizes of one side's test at each level, and the ends (j1, j2) of its sums.
+
+    All j <= j1 are rejected, j in (j1, j2] where A(j) <= level, none beyond j2 (module notes).
+    """
+    m = levels.size
+    found = side.last_at_most(np.concatenate([levels, levels - bound, levels + bound]))
+    j_exact, low, high = found[:m], found[m : 2 * m], found[2 * m :]
+    exact_size = np.where(j_exact >= 0, side.exact(np.maximum(j_exact, 0)), 0.0)
+    j1 = np.maximum(np.where(levels - bound > 0, low, -1), _far_reject(side, levels.min()))
+    j2 = np.maximum(high, j1)
+    approx_size = np.where(j1 >= 0, side.exact(np.maximum(j1, 0)), 0.0)
+    first, last = int(j1.min()) + 1, int(j2.max())
+    if last - first < _BLOCK:
+        # One pass over the union of the counts in question, every level at once.
+        j = np.arange(first, last + 1, dtype=np.int64)
+        between = (j[None, :] > j1[:, None]) & (j[None, :] <= j2[:, None])
+        hit = between & (side.approx(j)[None, :] <= levels[:, None])
+        approx_size = approx_size + np.where(hit, side.mass(j)[None, :], 0.0).sum(axis=1)
+    else:
+        for i, level in enumerate(levels):
+            for start in range(int(j1[i]) + 1, int(j2[i]) + 1, _BLOCK):
+                j = np.arange(start, min(int(j2[i]) + 1, start + _BLOCK), dtype=np.int64)
+                hit = side.approx(j) <= level
+                approx_size[i] += float(side.mass(j[hit]).sum())
+    return approx_size, exact_size, list(zip(j1.tolist(), j2.tolist(), strict=True))
 
 
 def _overlap(n, p, method, level, lower_end, upper_end):
@@ -160,6 +164,32 @@ def _profile_sizes(profile, alphas, alternative):
         exact = (profile.lower <= level) | (profile.upper <= level)
     mass = profile.mass[None, :]
     return np.where(hit, mass, 0.0).sum(axis=1), np.where(exact, mass, 0.0).sum(axis=1)
+
+
+def cell_all_sizes(n, p, method, alphas, *, bound=None):
+    """Both sizes of every alternative at one (n, p0): {alternative: (size, exact_size)}.
+
+    The one-sided tests at alpha and the two-sided test's sides at alpha/2 share one pass per
+    side.
+    """
+    alphas = np.atleast_1d(np.asarray(alphas, dtype=np.float64))
+    if n <= DIRECT_MAX:
+        profile = Profile(n, p, method)
+        return {alt: _profile_sizes(profile, alphas, alt) for alt in ALTERNATIVES}
+    if bound is None:
+        bound = error_bound(n, p, method)
+    m = alphas.size
+    levels = np.concatenate([alphas, alphas / 2.0])
+    lower = _rejected(Side(n, p, method, False), levels, bound)
+    upper = _rejected(Side(n, p, method, True), levels, bound)
+    out = {"less": (lower[0][:m], lower[1][:m]), "greater": (upper[0][:m], upper[1][:m])}
+    size = lower[0][m:] + upper[0][m:]
+    for i, level in enumerate(levels[m:]):
+        lo_end, up_end = lower[2][m + i], upper[2][m + i]
+        if lo_end[1] >= n - up_end[1]:
+            size[i] -= _overlap(n, p, method, level, lo_end, up_end)
+    out["two-sided"] = (size, lower[1][m:] + upper[1][m:])
+    return out
 
 
 def cell_sizes(n, p, method, alphas, alternative, *, bound=None):

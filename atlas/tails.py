@@ -177,39 +177,46 @@ class Side:
         guess = np.where(np.isfinite(guess), guess, n / 2.0)
         guess = np.clip(guess, -1, n).astype(np.int64)
 
-        def below(j):
+        def below(j, xs):
             inside = (j >= 0) & (j <= n)
             t = self.exact(np.clip(j, 0, n))
-            hit = (t < x) if strict else (t <= x)
+            hit = (t < xs) if strict else (t <= xs)
             return np.where(inside, hit, j < 0)
 
         lo = guess - 1
-        hi = guess
-        step = np.ones_like(lo)
-        # Grow down until T(lo) <= x (or lo = -1), up until T(hi) > x (or hi = n + 1).
-        while True:
-            bad = (lo > -1) & ~below(lo)
-            if not bad.any():
-                break
-            hi = np.where(bad, lo, hi)
-            lo = np.where(bad, np.maximum(lo - step, -1), lo)
-            step = np.where(bad, 2 * step, step)
-        step = np.ones_like(hi)
-        while True:
-            bad = (hi <= n) & below(hi)
-            if not bad.any():
-                break
-            lo = np.where(bad, hi, lo)
-            hi = np.where(bad, np.minimum(hi + step, n + 1), hi)
-            step = np.where(bad, 2 * step, step)
-        while True:
-            open_ = hi - lo > 1
-            if not open_.any():
-                break
-            mid = (lo + hi) // 2
-            hit = below(mid) & open_
-            lo = np.where(hit, mid, lo)
-            hi = np.where(open_ & ~hit, mid, hi)
+        hi = guess.copy()
+        # A negative x has no j with T(j) <= x (T >= 0): the answer is -1 at once.
+        lo[x < 0] = -1
+        hi[x < 0] = 0
+        # Grow down until T(lo) <= x (or lo = -1), up until T(hi) > x (or hi = n + 1), each
+        # step twice the last; then halve. Only the unsettled entries are evaluated.
+        idx = np.flatnonzero(lo > -1)
+        step = np.ones(idx.size, dtype=np.int64)
+        while idx.size:
+            bad = ~below(lo[idx], x[idx])
+            idx, step = idx[bad], step[bad]
+            hi[idx] = lo[idx]
+            lo[idx] = np.maximum(lo[idx] - step, -1)
+            step = 2 * step
+            keep = lo[idx] > -1
+            idx, step = idx[keep], step[keep]
+        idx = np.flatnonzero(hi <= n)
+        step = np.ones(idx.size, dtype=np.int64)
+        while idx.size:
+            bad = below(hi[idx], x[idx])
+            idx, step = idx[bad], step[bad]
+            lo[idx] = hi[idx]
+            hi[idx] = np.minimum(hi[idx] + step, n + 1)
+            step = 2 * step
+            keep = hi[idx] <= n
+            idx, step = idx[keep], step[keep]
+        idx = np.flatnonzero(hi - lo > 1)
+        while idx.size:
+            mid = (lo[idx] + hi[idx]) // 2
+            hit = below(mid, x[idx])
+            lo[idx[hit]] = mid[hit]
+            hi[idx[~hit]] = mid[~hit]
+            idx = idx[hi[idx] - lo[idx] > 1]
         return np.minimum(lo, n)
 
 
