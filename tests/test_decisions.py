@@ -123,7 +123,7 @@ def test_best_methods_ranked():
         ),
         (
             lambda: decisions.tail_min_n(0.1, 0.01, 0.1, n_max=0),
-            r"^`n` must be an integer >= 1; got 0\.$",
+            r"^`n_max` must be an integer >= 1; got 0\.$",
         ),
         (
             lambda: decisions.best_tail_method(100, 0.1, 0.01, methods=()),
