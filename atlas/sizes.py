@@ -24,13 +24,15 @@ approximate test, with c the bound of :func:`atlas.tails.error_bound` on |T(j) -
 - no j with T(j) > alpha + c is rejected;
 - every j between is evaluated.
 
-Up to n = 2048 every count is evaluated in one vectorised pass instead
-(:class:`atlas.tails.Profile`), which costs less than the bound.
-
 So size = T(j1) + the sum of b over the evaluated j with A(j) <= alpha, j1 the last certainly
-rejected j; nothing is sampled. The two-sided set is the union of the two one-sided sets at
-alpha/2; where they could meet (only when alpha + 2c >= 1, at very small n), the counts in both
-are evaluated and counted once.
+rejected j; nothing is sampled. For the methods whose G increases with k at every k
+(``normal_cc``, ``normal``: Phi of an increasing score; ``poisson``: a CDF), the rejected counts
+between are a run, whose end is found by halving, and the size is T at that end. Up to n = 2048
+every count is evaluated in one vectorised pass instead (:class:`atlas.tails.Profile`), which
+costs less than the bound.
+
+The two-sided set is the union of the two one-sided sets at alpha/2; where they could meet (only
+when alpha + 2c >= 1, at very small n), the counts in both are evaluated and counted once.
 
 Accuracy
 --------
@@ -53,6 +55,9 @@ __all__ = ["ALTERNATIVES", "TestSize", "check_alternative", "test_size"]
 ALTERNATIVES = ("two-sided", "less", "greater")
 
 _BLOCK = 1 << 16
+#: Methods whose G(k) increases with k at every k (a normal CDF of an increasing score, or the
+#: Poisson CDF): their rejection regions are runs, found by halving.
+MONOTONE = ("normal_cc", "normal", "poisson")
 _FAR_SIGMAS = 9.0
 _FAR_MARGIN = 10.0
 
@@ -121,6 +126,19 @@ def _rejected(side, levels, bound):
     exact_size = np.where(j_exact >= 0, side.exact(np.maximum(j_exact, 0)), 0.0)
     j1 = np.maximum(np.where(levels - bound > 0, low, -1), _far_reject(side, levels.min()))
     j2 = np.maximum(high, j1)
+    if side.method in MONOTONE:
+        # A increases with j: the rejected counts are the run j <= j*, j* the last j of
+        # [j1, j2] with A(j) <= level, found by halving; the size is T(j*).
+        lo, hi = j1.copy(), j2 + 1  # A(lo) <= level (or lo = -1); every j >= hi is kept
+        idx = np.flatnonzero(hi - lo > 1)
+        while idx.size:
+            mid = (lo[idx] + hi[idx]) // 2
+            hit = side.approx(mid) <= levels[idx]
+            lo[idx[hit]] = mid[hit]
+            hi[idx[~hit]] = mid[~hit]
+            idx = idx[hi[idx] - lo[idx] > 1]
+        approx_size = np.where(lo >= 0, side.exact(np.maximum(lo, 0)), 0.0)
+        return approx_size, exact_size, list(zip(j1.tolist(), j2.tolist(), strict=True))
     approx_size = np.where(j1 >= 0, side.exact(np.maximum(j1, 0)), 0.0)
     first, last = int(j1.min()) + 1, int(j2.max())
     if last - first < _BLOCK:

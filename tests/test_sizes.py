@@ -180,3 +180,19 @@ def test_errors(kwargs, message):
     args = {"n": 50, "p0": 0.1, "alpha": 0.05} | kwargs
     with pytest.raises(ValueError, match=message):
         sizes.test_size(args.pop("n"), args.pop("p0"), args.pop("alpha"), **args)
+
+
+@pytest.mark.parametrize("method", METHODS)
+def test_all_alternatives_at_once(method):
+    # cell_all_sizes shares one pass per side between the alternatives; it must give what
+    # each alternative gives alone (up to the order of the sums), and what every k gives.
+    alphas = np.array([0.1, 0.05, 0.01, 0.001])
+    for n, p in ((3000, 0.3), (20000, 0.02), (5000, 0.97)):
+        together = sizes.cell_all_sizes(n, p, method, alphas)
+        for alternative in ALTERNATIVES:
+            alone = sizes.cell_sizes(n, p, method, alphas, alternative)
+            assert_allclose(together[alternative], alone, rtol=1e-13, atol=1e-300)
+            for i, a in enumerate(alphas):
+                size, exact = every_k(n, p, a, method, alternative)  # every k
+                assert_allclose(together[alternative][0][i], size, rtol=1e-11, atol=1e-300)
+                assert_allclose(together[alternative][1][i], exact, rtol=1e-11, atol=1e-300)
