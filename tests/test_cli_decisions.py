@@ -6,6 +6,11 @@ against mpmath and hand-worked cases in test_tails.py and test_sizes.py; the iss
 """
 
 import json
+import pathlib
+import re
+import shlex
+import subprocess
+import sys
 
 import pytest
 
@@ -149,3 +154,38 @@ def test_user_mistakes(capsys, argv, message):
 def test_missing_options_are_usage_errors(capsys):
     code, _, err = run(capsys, ["size", "--n", "10", "--alpha", "0.05"])
     assert code == 2 and "--p0" in err
+
+
+# ---- the README's section, as typed --------------------------------------------------------
+
+
+def _readme_blocks():
+    """The fenced blocks of the README's section on tails and tests, as (language, text)."""
+    text = (pathlib.Path(atlas.__file__).parent.parent / "README.md").read_text()
+    section = text.split("## Tail p-values and test sizes", 1)[1].split("\n## ", 1)[0]
+    return re.findall(r"```(\w*)\n(.*?)```", section, flags=re.S)
+
+
+def test_readme_python_runs_as_typed(tmp_path):
+    # The README's Python block runs in a fresh interpreter and prints what the README shows.
+    (language, code), (_, shown) = _readme_blocks()[:2]
+    assert language == "python"
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          timeout=300, cwd=tmp_path)  # fmt: skip
+    assert done.returncode == 0, done.stderr[-2000:]
+    assert done.stdout == shown
+
+
+def test_readme_commands_print_what_is_shown(capsys):
+    # Each "$ approx-atlas ..." of the README's command block, run in-process, prints the lines
+    # shown under it ("$ echo $?" shows its exit status).
+    shown = _readme_blocks()[2][1]
+    runs = re.split(r"^\$ approx-atlas ", shown, flags=re.M)[1:]
+    assert len(runs) == 5
+    for run_text in runs:
+        command, _, rest = run_text.partition("\n")
+        output, _, status = rest.partition("$ echo $?\n")
+        code = main(shlex.split(command))
+        out, _ = capsys.readouterr()
+        assert out.strip() == output.strip()
+        assert code == (int(status) if status else 0)
