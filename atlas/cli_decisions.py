@@ -287,6 +287,26 @@ def _cmd_size_compare(args):
     return 0
 
 
+def demo_lines(n, p0, *, alpha=0.05, tail_alpha=0.01, rel_tol=0.1):
+    """The demo's questions about p-values: hold the lot when the upper one-sided p-value of
+    the defects found is at most ``alpha`` (H0: the claimed rate ``p0``)."""
+    from atlas import decisions
+
+    size = decisions.size_verdict(n, p0, alpha, alternative="greater")
+    tail = decisions.tail_verdict(n, p0, tail_alpha, rel_tol, tail="upper")
+    best = decisions.best_size_method(n, p0, alpha, alternative="greater")[0]
+    return [
+        f"  release or hold: holding the lot when the normal_cc p-value P(X >= x) is at most "
+        f"{_percent(alpha)} holds a lot at the claimed rate {_percent(size.size)} of the time "
+        f"(exact p-values: {_percent(size.exact_size)}; best shortcut {best[0]}, "
+        f"{_percent(best[1])}); upper-tail p-values of at least {format_p(tail_alpha)} are off "
+        f"by up to {_percent(tail.error)}",
+        f"  next: approx-atlas size --n {n} --p0 {format_p(p0)} --alpha {format_p(alpha)} "
+        f"--alternative greater; approx-atlas tail --n {n} --p {format_p(p0)} --alpha "
+        f"{format_p(tail_alpha)} --tail upper",
+    ]
+
+
 def add_commands(commands):
     """Register the tail and size commands on the ``approx-atlas`` subparsers."""
     methods = ", ".join(METHODS)

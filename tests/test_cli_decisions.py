@@ -189,3 +189,21 @@ def test_readme_commands_print_what_is_shown(capsys):
         out, _ = capsys.readouterr()
         assert out.strip() == output.strip()
         assert code == (int(status) if status else 0)
+
+
+def test_demo_asks_about_p_values(capsys):
+    # The demo's lot (n = 80, claimed rate 0.025): the upper one-sided test at 5% with
+    # normal_cc p-values, and the upper-tail p-values of at least 0.01 (definition: the API).
+    from atlas.cli_decisions import demo_lines
+
+    lines = demo_lines(80, 0.025)
+    size = atlas.test_size(80, 0.025, 0.05, alternative="greater")
+    error = atlas.tail_error(80, 0.025, 0.01, tail="upper")
+    assert f"at the claimed rate {100 * size.size:.4g}% of the time" in lines[0]
+    assert f"(exact p-values: {100 * size.exact_size:.4g}%;" in lines[0]
+    assert f"are off by up to {100 * error:.4g}%" in lines[0]
+    assert lines[1].startswith("  next: approx-atlas size --n 80 --p0 0.025 --alpha 0.05")
+    # Each suggested command runs.
+    for command in lines[1].removeprefix("  next: ").split("; "):
+        assert main(shlex.split(command)[1:]) == 0
+    capsys.readouterr()
