@@ -35,6 +35,8 @@ _LAZY = {
     "size_min_n": "atlas.decisions",
     "best_tail_method": "atlas.decisions",
     "best_size_method": "atlas.decisions",
+    "tail_rule_audit": "atlas.decision_rules",
+    "size_rule_audit": "atlas.decision_rules",
 }
 
 __all__ = [
@@ -57,9 +59,11 @@ __all__ = [
     "save_atlas",
     "save_figure",
     "size_min_n",
+    "size_rule_audit",
     "size_verdict",
     "tail_error",
     "tail_min_n",
+    "tail_rule_audit",
     "tail_verdict",
     "test_size",
     "threshold_table",

@@ -287,6 +287,59 @@ def _cmd_size_compare(args):
     return 0
 
 
+def _cmd_rules(args, audit, what_option, what):
+    """Print (or write as JSON) the rule audit of tails or sizes."""
+    levels = None
+    if args.alpha is not None:
+        levels = [parse_probability(x, "--alpha") for x in str(args.alpha).split(",")]
+    options = {"method": args.method, what_option: what}
+    if levels is not None:
+        options["alpha"] = levels
+    if args.n_grid is not None:
+        options["n"] = args.n_grid
+    if args.p_grid is not None:
+        options["p"] = args.p_grid
+    rows = audit(args.rule, **options)
+    if args.json:
+        _print_json(
+            {
+                "grid": rows[0].grid,
+                "rows": [
+                    {
+                        "rule": r.rule,
+                        "name": r.name,
+                        "method": r.method,
+                        what_option: r.what,
+                        "alpha": r.alpha,
+                        "cells": r.cells,
+                        "worst": r.worst,
+                        "worst_n": r.worst_n,
+                        "worst_p": r.worst_p,
+                        "exact_size": r.exact_size,
+                        "explain": r.explain(),
+                    }
+                    for r in rows
+                ],
+                "source": "computed",
+            }
+        )
+        return 0
+    print("\n".join([f"audit grid: {rows[0].grid}"] + [r.explain() for r in rows]))
+    return 0
+
+
+def _cmd_tail_rules(args):
+    from atlas.decision_rules import tail_rule_audit
+
+    return _cmd_rules(args, tail_rule_audit, "tail", args.tail)
+
+
+def _cmd_size_rules(args):
+    from atlas.decision_rules import size_rule_audit
+
+    return _cmd_rules(args, size_rule_audit, "alternative", args.alternative)
+
+
 def demo_lines(n, p0, *, alpha=0.05, tail_alpha=0.01, rel_tol=0.1):
     """The demo's questions about p-values: hold the lot when the upper one-sided p-value of
     the defects found is at most ``alpha`` (H0: the claimed rate ``p0``)."""
@@ -425,3 +478,34 @@ def add_commands(commands):
     alternative_option(size_cmp)
     json_option(size_cmp)
     size_cmp.set_defaults(handler=_cmd_size_compare, names=common | {"p": "--p0"})
+
+    def audit_options(sub, levels):
+        sub.add_argument(
+            "--rule",
+            action="append",
+            help="a rule in n, p and q, such as 'n*p >= 5 and n*q >= 5'; may be "
+            "repeated (default: the classic rules)",
+        )
+        sub.add_argument("--alpha", help=f"levels, comma-separated (default {levels})")
+        sub.add_argument(
+            "--n-grid", help="the audit grid's n spec (default 1:100,log:100:100000:41)"
+        )
+        sub.add_argument(
+            "--p-grid", help="the audit grid's p spec (default logit:0.001:0.999:41,0.5)"
+        )
+        method(sub)
+        json_option(sub)
+
+    audit_names = common | {"rules": "--rule", "n": "--n-grid", "p": "--p-grid"}
+    tail_rules = commands.add_parser(
+        "tail-rules", help="the worst tail relative error each rule of thumb admits"
+    )
+    audit_options(tail_rules, "0.05,0.01,0.001,0.0001")
+    tail_option(tail_rules)
+    tail_rules.set_defaults(handler=_cmd_tail_rules, names=audit_names)
+    size_rules = commands.add_parser(
+        "size-rules", help="the largest test size each rule of thumb admits"
+    )
+    audit_options(size_rules, "0.1,0.05,0.01,0.001")
+    alternative_option(size_rules)
+    size_rules.set_defaults(handler=_cmd_size_rules, names=audit_names)
