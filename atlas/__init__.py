@@ -37,6 +37,8 @@ _LAZY = {
     "best_size_method": "atlas.decisions",
     "tail_rule_audit": "atlas.decision_rules",
     "size_rule_audit": "atlas.decision_rules",
+    "tail_table": "atlas.decision_tables",
+    "size_table": "atlas.decision_tables",
 }
 
 __all__ = [
@@ -60,10 +62,12 @@ __all__ = [
     "save_figure",
     "size_min_n",
     "size_rule_audit",
+    "size_table",
     "size_verdict",
     "tail_error",
     "tail_min_n",
     "tail_rule_audit",
+    "tail_table",
     "tail_verdict",
     "test_size",
     "threshold_table",

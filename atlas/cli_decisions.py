@@ -15,7 +15,7 @@ every number is computed exactly on demand.
 """
 
 from atlas import METHODS
-from atlas.cli import _number, _print_json
+from atlas.cli import _check_format, _check_output, _emit, _number, _print_json
 from atlas.notation import format_p, parse_probability
 
 _P_FORMS = "a number (0.05), a fraction (1/20) or a percentage (5%%)"
@@ -340,6 +340,37 @@ def _cmd_size_rules(args):
     return _cmd_rules(args, size_rule_audit, "alternative", args.alternative)
 
 
+def _list(text, option):
+    return [parse_probability(x, option) for x in str(text).split(",")]
+
+
+def _cmd_tail_table(args):
+    """Print (or write) the minimum n for each p and relative tolerance."""
+    from atlas.decision_tables import FORMATS, tail_table
+
+    _check_format(args.format, FORMATS)
+    tols, ps = _list(args.rel_tol, "--rel-tol"), _list(args.p, "--p")
+    alpha = parse_probability(args.alpha, "--alpha")
+    _check_output(args)
+    table = tail_table(tols, ps, alpha=alpha, method=args.method, tail=args.tail,
+                       n_max=_number(args.n_max), dense_to=_number(args.dense_to))  # fmt: skip
+    return _emit(table.render(args.format), args.output)
+
+
+def _cmd_size_table(args):
+    """Print (or write) the minimum n for each p0 and largest size."""
+    from atlas.decision_tables import FORMATS, size_table
+
+    _check_format(args.format, FORMATS)
+    limits, ps = _list(args.max_size, "--max-size"), _list(args.p0, "--p0")
+    alpha = parse_probability(args.alpha, "--alpha")
+    _check_output(args)
+    table = size_table(limits, ps, alpha=alpha, method=args.method,
+                       alternative=args.alternative, n_max=_number(args.n_max),
+                       dense_to=_number(args.dense_to))  # fmt: skip
+    return _emit(table.render(args.format), args.output)
+
+
 def demo_lines(n, p0, *, alpha=0.05, tail_alpha=0.01, rel_tol=0.1):
     """The demo's questions about p-values: hold the lot when the upper one-sided p-value of
     the defects found is at most ``alpha`` (H0: the claimed rate ``p0``)."""
@@ -509,3 +540,38 @@ def add_commands(commands):
     audit_options(size_rules, "0.1,0.05,0.01,0.001")
     alternative_option(size_rules)
     size_rules.set_defaults(handler=_cmd_size_rules, names=audit_names)
+
+    def table_output(sub):
+        sub.add_argument("--format", default="md", help="csv, md (default) or json")
+        sub.add_argument("-o", "--output", metavar="FILE", help="write FILE instead of printing")
+        sub.add_argument("--force", action="store_true", help="replace FILE if it exists")
+
+    table_names = common | {"rel_tols": "--rel-tol", "max_sizes": "--max-size", "path": "-o",
+                            "ps": "--p"}  # fmt: skip
+    tail_tab = commands.add_parser(
+        "tail-table", help="the minimum n for each p and relative tolerance of the tails"
+    )
+    tail_tab.add_argument("--rel-tol", default="0.5,0.2,0.1,0.05",
+                          help="relative tolerances (0.5,0.2,0.1,0.05)")  # fmt: skip
+    tail_tab.add_argument("--p", default="0.01,0.05,0.1,0.2,0.5",
+                          help=f"p values (0.01,0.05,0.1,0.2,0.5), each {_P_FORMS}")  # fmt: skip
+    tail_tab.add_argument("--alpha", default="0.01", help=alpha_tail + " (default 0.01)")
+    tail_option(tail_tab)
+    method(tail_tab)
+    ladder(tail_tab)
+    table_output(tail_tab)
+    tail_tab.set_defaults(handler=_cmd_tail_table, names=table_names | {"p": "--p"})
+
+    size_tab = commands.add_parser(
+        "size-table", help="the minimum n for each p0 and largest size of the test"
+    )
+    size_tab.add_argument("--max-size", default="0.06,0.055,0.0525",
+                          help="largest sizes (0.06,0.055,0.0525)")  # fmt: skip
+    size_tab.add_argument("--p0", default="0.01,0.05,0.1,0.2,0.5",
+                          help=f"p0 values (0.01,0.05,0.1,0.2,0.5), each {_P_FORMS}")  # fmt: skip
+    size_tab.add_argument("--alpha", default="0.05", help=alpha_test + " (default 0.05)")
+    alternative_option(size_tab)
+    method(size_tab)
+    ladder(size_tab)
+    table_output(size_tab)
+    size_tab.set_defaults(handler=_cmd_size_table, names=table_names | {"p": "--p0", "ps": "--p0"})

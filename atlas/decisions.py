@@ -355,20 +355,45 @@ def _ladder(dense_to, n_max):
     return sorted(set(points))
 
 
-def _min_n(passes, n_max, dense_to):
-    """Search the ladder from the top down for the largest failing n."""
+def min_ns(value, limits, n_max, dense_to):
+    """For each limit, the smallest n from which ``value(n) <= limit`` at every checked n.
+
+    The ladder is searched from the top down, each n evaluated once for all the limits, until
+    every limit has met a failing n (or the bottom is reached).
+
+    Parameters
+    ----------
+    value : callable
+        n -> the metric at n.
+    limits : sequence of float
+    n_max, dense_to : int
+        As for :func:`tail_min_n`.
+
+    Returns
+    -------
+    list of MinN
+        One per limit.
+    """
     n_max = int(_one(n_max, lambda v: _renamed_n(v, "n_max"), "n_max", "integer"))
     dense_to = int(_one(dense_to, lambda v: _renamed_n(v, "dense_to"), "dense_to", "integer"))
     points = _ladder(dense_to, n_max)
-    previous = None
+    previous = [None] * len(limits)
+    pending = list(range(len(limits)))
     for i in range(len(points) - 1, -1, -1):
-        if not passes(points[i]):
-            previous = points[i]
+        if not pending:
             break
-    if previous == n_max:
-        return MinN(None, previous, dense_to, n_max, False)
-    answer = points[0] if previous is None else points[points.index(previous) + 1]
-    return MinN(answer, previous, dense_to, n_max, answer <= dense_to)
+        got = value(points[i])
+        for j in [j for j in pending if not got <= limits[j]]:
+            previous[j] = points[i]
+            pending.remove(j)
+    out = []
+    for failing in previous:
+        if failing == n_max:
+            out.append(MinN(None, failing, dense_to, n_max, False))
+            continue
+        answer = points[0] if failing is None else points[points.index(failing) + 1]
+        out.append(MinN(answer, failing, dense_to, n_max, answer <= dense_to))
+    return out
 
 
 def tail_min_n(
@@ -397,7 +422,7 @@ def tail_min_n(
     _, p = _point(1, p)
     alpha, rel_tol = _alpha(alpha), check_rel_tol(rel_tol)
     method, tail = check_method(method), check_tail(tail)
-    return _min_n(lambda n: _tail_value(n, p, alpha, method, tail) <= rel_tol, n_max, dense_to)
+    return min_ns(lambda n: _tail_value(n, p, alpha, method, tail), [rel_tol], n_max, dense_to)[0]
 
 
 def size_min_n(
@@ -433,10 +458,10 @@ def size_min_n(
     max_size = _max_size(max_size, alpha)
     method, alternative = check_method(method), check_alternative(alternative)
 
-    def passes(n):
-        return float(cell_sizes(n, p0, method, [alpha], alternative)[0][0]) <= max_size
+    def size(n):
+        return float(cell_sizes(n, p0, method, [alpha], alternative)[0][0])
 
-    return _min_n(passes, n_max, dense_to)
+    return min_ns(size, [max_size], n_max, dense_to)[0]
 
 
 def _methods(methods):
