@@ -39,6 +39,8 @@ _LAZY = {
     "size_rule_audit": "atlas.decision_rules",
     "tail_table": "atlas.decision_tables",
     "size_table": "atlas.decision_tables",
+    "tail_error_maps": "atlas.decision_charts",
+    "size_chart": "atlas.decision_charts",
 }
 
 __all__ = [
@@ -60,11 +62,13 @@ __all__ = [
     "rule_audit",
     "save_atlas",
     "save_figure",
+    "size_chart",
     "size_min_n",
     "size_rule_audit",
     "size_table",
     "size_verdict",
     "tail_error",
+    "tail_error_maps",
     "tail_min_n",
     "tail_rule_audit",
     "tail_table",

@@ -15,7 +15,7 @@ every number is computed exactly on demand.
 """
 
 from atlas import METHODS
-from atlas.cli import _check_format, _check_output, _emit, _number, _print_json
+from atlas.cli import _check_format, _check_output, _emit, _number, _Options, _print_json
 from atlas.notation import format_p, parse_probability
 
 _P_FORMS = "a number (0.05), a fraction (1/20) or a percentage (5%%)"
@@ -371,6 +371,40 @@ def _cmd_size_table(args):
     return _emit(table.render(args.format), args.output)
 
 
+def _chart_target(args):
+    """Refuse a bad extension or an existing -o before any computation."""
+    from atlas import figures
+
+    with _Options(path="-o"):
+        figures.figure_format(args.output)
+    _check_output(args)
+
+
+def _cmd_tail_chart(args):
+    """Draw the maps of the tail relative error, one panel per level."""
+    from atlas import figures
+    from atlas.decision_charts import MAP_N, MAP_P, tail_error_maps
+
+    _chart_target(args)
+    levels = _list(args.alpha, "--alpha")
+    fig = tail_error_maps(method=args.method, tail=args.tail, alphas=levels,
+                          n=args.n_grid or MAP_N, p=args.p_grid or MAP_P)  # fmt: skip
+    print(figures.save_figure(fig, args.output))
+    return 0
+
+
+def _cmd_size_chart(args):
+    """Draw the test's size against the nominal level."""
+    from atlas import figures
+    from atlas.decision_charts import size_chart
+
+    p0 = parse_probability(args.p0, "--p0")
+    _chart_target(args)
+    fig = size_chart(_number(args.n), p0, method=args.method, alternative=args.alternative)
+    print(figures.save_figure(fig, args.output))
+    return 0
+
+
 def demo_lines(n, p0, *, alpha=0.05, tail_alpha=0.01, rel_tol=0.1):
     """The demo's questions about p-values: hold the lot when the upper one-sided p-value of
     the defects found is at most ``alpha`` (H0: the claimed rate ``p0``)."""
@@ -575,3 +609,36 @@ def add_commands(commands):
     ladder(size_tab)
     table_output(size_tab)
     size_tab.set_defaults(handler=_cmd_size_table, names=table_names | {"p": "--p0", "ps": "--p0"})
+
+    def chart_output(sub):
+        sub.add_argument("-o", "--output", required=True, metavar="FILE",
+                         help="the figure: .png, .svg or .pdf")  # fmt: skip
+        sub.add_argument("--force", action="store_true", help="replace FILE if it exists")
+
+    tail_chart = commands.add_parser(
+        "tail-chart", help="maps of the tail relative error over (n, p), one per level"
+    )
+    tail_chart.add_argument(
+        "--alpha",
+        default="0.05,0.01,0.001,0.0001",
+        help="levels, one panel each, at most four (0.05,0.01,0.001,0.0001)",
+    )
+    tail_chart.add_argument("--n-grid", help="the map's n spec (default log:5:100000:41)")
+    tail_chart.add_argument("--p-grid", help="the map's p spec (default "
+                                             "logit:0.001:0.999:41,0.5)")  # fmt: skip
+    tail_option(tail_chart)
+    method(tail_chart)
+    chart_output(tail_chart)
+    tail_chart.set_defaults(handler=_cmd_tail_chart,
+                            names=common | {"n": "--n-grid", "p": "--p-grid", "alphas": "--alpha",
+                                            "path": "-o"})  # fmt: skip
+
+    size_chart = commands.add_parser(
+        "size-chart", help="the test's size against the nominal level, beside the exact test's"
+    )
+    size_chart.add_argument("--n", required=True, help="number of trials, n >= 1")
+    size_chart.add_argument("--p0", required=True, help=f"the null hypothesis' p: {_P_FORMS}")
+    alternative_option(size_chart)
+    method(size_chart)
+    chart_output(size_chart)
+    size_chart.set_defaults(handler=_cmd_size_chart, names=common | {"path": "-o"})
