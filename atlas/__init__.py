@@ -41,6 +41,8 @@ _LAZY = {
     "size_table": "atlas.decision_tables",
     "tail_error_maps": "atlas.decision_charts",
     "size_chart": "atlas.decision_charts",
+    "write_decision_page": "atlas.decision_pages",
+    "write_decision_sheet": "atlas.decision_pages",
 }
 
 __all__ = [
@@ -77,6 +79,8 @@ __all__ = [
     "threshold_table",
     "worst_error",
     "worst_interval",
+    "write_decision_page",
+    "write_decision_sheet",
     "write_sheet",
     "write_wiki",
 ]

@@ -405,6 +405,32 @@ def _cmd_size_chart(args):
     return 0
 
 
+def _cmd_decision_page(args):
+    """Write the wiki page for p-values and tests into a directory."""
+    from atlas.decision_pages import write_decision_page
+    from atlas.files import check_directory_target
+
+    with _Options(path="-o", directory="-o"):
+        check_directory_target(args.output, overwrite=args.force)
+    from atlas.approximations import check_method
+
+    check_method(args.method)
+    for path in write_decision_page(args.output, method=args.method, overwrite=args.force):
+        print(path)
+    return 0
+
+
+def _cmd_decision_sheet(args):
+    """Write the printable PDF for p-values and tests."""
+    from atlas.decision_pages import write_decision_sheet
+
+    if not str(args.output).lower().endswith(".pdf"):
+        raise ValueError(f"`-o` must end in '.pdf'; got {args.output!r}.")
+    _check_output(args)
+    print(write_decision_sheet(args.output, method=args.method))
+    return 0
+
+
 def demo_lines(n, p0, *, alpha=0.05, tail_alpha=0.01, rel_tol=0.1):
     """The demo's questions about p-values: hold the lot when the upper one-sided p-value of
     the defects found is at most ``alpha`` (H0: the claimed rate ``p0``)."""
@@ -642,3 +668,24 @@ def add_commands(commands):
     method(size_chart)
     chart_output(size_chart)
     size_chart.set_defaults(handler=_cmd_size_chart, names=common | {"path": "-o"})
+
+    page = commands.add_parser(
+        "decision-page", help="write the wiki page for p-values and tests (HTML, Markdown, SVG)"
+    )
+    page.add_argument(
+        "-o",
+        "--output",
+        required=True,
+        metavar="DIR",
+        help="the page's directory: new, empty, or with --force an earlier page's",
+    )
+    page.add_argument("--force", action="store_true", help="replace an earlier page's directory")
+    method(page)
+    page.set_defaults(handler=_cmd_decision_page, names=common | {"path": "-o"})
+    sheet = commands.add_parser(
+        "decision-sheet", help="write the printable PDF for p-values and tests"
+    )
+    sheet.add_argument("-o", "--output", required=True, metavar="FILE", help="the PDF")
+    sheet.add_argument("--force", action="store_true", help="replace FILE if it exists")
+    method(sheet)
+    sheet.set_defaults(handler=_cmd_decision_sheet, names=common | {"path": "-o"})

@@ -47,6 +47,8 @@ error r therefore carries an error of about (1 + r) 1e-12 at most, plus, at a le
 within a relative 1e-13 of some T(j), the question of whether that tail is admitted.
 """
 
+import warnings
+
 import numpy as np
 
 from atlas.approximations import approximate_cdf, check_method
@@ -172,7 +174,9 @@ class Side:
         x = np.atleast_1d(np.asarray(x, dtype=np.float64))
         n = self.n
         q = 1.0 - self.p if self.upper else self.p  # a guess only: rounding does not matter
-        with np.errstate(all="ignore"):
+        with np.errstate(all="ignore"), warnings.catch_warnings():
+            # Boost warns where it gives up on a quantile: the guess is checked anyway.
+            warnings.simplefilter("ignore", RuntimeWarning)
             guess = _binom_ppf(np.clip(x, 1e-300, 1.0), n, q)
         guess = np.where(np.isfinite(guess), guess, n / 2.0)
         guess = np.clip(guess, -1, n).astype(np.int64)
