@@ -31,7 +31,13 @@ notes show every G monotone): there |T(j') - A(j')| <= (1 - T(j)) + |1 - A(j)| f
 last point j = n is always evaluated. Near the mean the relative error is of the order of the
 absolute one, so the scan ends within a few sigma of the mean at worst (a few thousand integers
 at n = 10^6) and, for the far tails that matter, usually within a fraction of a sigma of j_alpha.
-``full=True`` evaluates every admitted j instead; the tests compare the two. Up to n =
+When every error found is below ``FLOOR`` = 1e-11, the scan also stops once c / T(j) <= 1e-11:
+the result is then exact to within an absolute 1e-11, which is below the rounding noise of
+relative errors of tails (F itself carries about 1e-14 absolute at n = 10^6, 1e-13 at 10^8, so
+a relative error of a tail of 0.05 is uncertain by about 1e-12 there). This matters only where
+the approximation is accurate to rounding (peizer_pratt at p = 1/2, large n), where the scan
+would otherwise run to the far side. ``full=True`` evaluates every admitted j instead; the
+tests compare the two. Up to n =
 ``DIRECT_MAX`` (2048) every count is evaluated in one vectorised pass (:class:`Profile`, tails
 summed from the pmf), which costs less than the bound.
 
@@ -43,8 +49,9 @@ never as one minus the other): tests/test_tails.py measures it against mpmath in
 terms (about 1e-13 down to tails of 1e-300 at n up to 10^4). A is the method's own formula for
 the lower tail and :func:`atlas.complements.approximate_upper` for the upper one, accurate in
 relative terms (for the Edgeworth forms, to an absolute 1e-16 of their two terms). The returned
-error r therefore carries an error of about (1 + r) 1e-12 at most, plus, at a level alpha
-within a relative 1e-13 of some T(j), the question of whether that tail is admitted.
+error r therefore carries an error of about (1 + r) 1e-12 at most (1e-11 absolute where the
+noise floor ended the scan), plus, at a level alpha within a relative 1e-13 of some T(j), the
+question of whether that tail is admitted.
 """
 
 import warnings
@@ -68,6 +75,9 @@ TAILS = ("lower", "upper", "both")
 
 #: Up to this n every count is evaluated and the engine's bound c is not needed.
 DIRECT_MAX = 2048
+#: Relative errors below this are rounding noise (F carries 1e-14 absolute at n = 10^6 and
+#: 1e-13 at 10^8): the scan does not go on to find a maximum smaller than it.
+FLOOR = 1e-11
 _MARGIN_REL = 1e-9
 _MARGIN_ABS = 1e-12
 _FAR_SIGMAS = 9.0
@@ -289,7 +299,7 @@ def side_errors(side, alphas, bound, *, full=False):
         if j0 - 1 >= far:
             tail = (1.0 - float(t[-1])) + abs(1.0 - float(a[-1]))
             limit = min(limit, tail / t_next)
-        if (limit <= best).all():
+        if (limit <= np.maximum(best, FLOOR)).all():
             # The last point j = n is evaluated in every case (its G is set apart by some
             # methods); the rest cannot raise any level's maximum.
             r_last = abs(float(side.approx(n)) / float(side.exact(n)) - 1.0)
