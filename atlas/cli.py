@@ -329,9 +329,17 @@ def _cmd_demo(args):
         f"  normal_cc is within {tol_text} at p = {p_text} {from_n}",
         f"  next: approx-atlas query --n {n} --p {p_text} --tol {tol_text}; approx-atlas "
         f"compare --n {n} --p {p_text}",
+    ] + _decision_demo_lines(n, p) + [
         f"  caution: {caution}",
     ]))  # fmt: skip
     return 0
+
+
+def _decision_demo_lines(n, p):
+    """The demo's questions about p-values and tests (atlas/cli_decisions.py)."""
+    from atlas.cli_decisions import demo_lines
+
+    return demo_lines(n, p)
 
 
 def _method_help(default="normal_cc"):
@@ -728,6 +736,11 @@ def _build_parser():
     _add_build_commands(commands)
     _add_output_commands(commands)
     add_coverage_commands(commands)  # confidence intervals for p (atlas/cli_coverage.py)
+    # Tail p-values and test sizes: their commands live in atlas/cli_decisions.py, which uses
+    # this module's helpers, so it is imported here rather than at the top.
+    from atlas.cli_decisions import add_commands as add_decision_commands
+
+    add_decision_commands(commands)
     return parser
 
 

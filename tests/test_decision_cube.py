@@ -1,0 +1,65 @@
+"""Tests of atlas.decision_cube: the tail and test-size variables as a Dataset on their grid.
+
+Source of every expected value: "definition", recomputed by atlas.tail_error / atlas.test_size
+(tested against mpmath in test_tails.py and test_sizes.py), stored as float32 (7 digits).
+"""
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+import atlas
+from atlas.decision_cube import attach, decision_dataset
+
+METHODS = ("normal_cc", "edgeworth_cc")
+
+
+@pytest.fixture(scope="module")
+def ds():
+    return decision_dataset("10,50,3000", "0.1,0.5", methods=METHODS)
+
+
+def test_values_are_the_metrics(ds):
+    for method in METHODS:
+        for tail in ("lower", "upper"):
+            got = ds.tail_error.sel(approximation=method, tail=tail, tail_level=0.01)
+            expected = atlas.tail_error([[10], [50], [3000]], [0.1, 0.5], 0.01, method=method,
+                                        tail=tail)  # fmt: skip
+            assert_allclose(got.values, expected, rtol=1e-6)  # float32
+        for alternative in ("two-sided", "less", "greater"):
+            t = atlas.test_size([[10], [50], [3000]], [0.1, 0.5], 0.05, method=method,
+                                alternative=alternative)  # fmt: skip
+            got = ds.test_size.sel(approximation=method, alternative=alternative, test_level=0.05)
+            assert_allclose(got.values, t.size, rtol=1e-6)
+            exact = ds.exact_test_size.sel(alternative=alternative, test_level=0.05)
+            assert_allclose(exact.values, t.exact_size, rtol=1e-15)
+
+
+def test_every_attribute_explains_itself(ds):
+    for name in ("tail_error", "test_size", "exact_test_size"):
+        attrs = ds[name].attrs
+        assert attrs["units"] == "1" and attrs["long_name"] and len(attrs["description"]) > 80
+    assert "computed exactly on demand" in ds.attrs["decision_note"]
+    # Every index increasing, as the atlas file requires.
+    for dim in ("approximation", "tail", "tail_level", "alternative", "test_level",
+                "decision_n", "decision_p"):  # fmt: skip
+        values = ds[dim].values
+        assert all(a < b for a, b in zip(values[:-1], values[1:], strict=True)), dim
+    assert list(ds.alternative.values) == ["greater", "less", "two-sided"]
+
+
+def test_workers_give_the_same_values(ds):
+    again = decision_dataset("10,50,3000", "0.1,0.5", methods=METHODS, workers=2)
+    assert again.identical(ds)
+
+
+def test_attach_to_an_atlas(ds):
+    cube = atlas.build_atlas(n="10,50", p="0.5", methods=",".join(METHODS), progress=False)
+    merged = attach(cube, ds)
+    assert "interval_error" in merged and "tail_error" in merged
+    assert merged.attrs["decision_note"] == ds.attrs["decision_note"]
+    assert merged.attrs["title"] == cube.attrs["title"]
+    other = decision_dataset("10", "0.5", methods=["normal_cc"])
+    with pytest.raises(ValueError, match=r"^`decision_ds` must hold the atlas's approximations"):
+        attach(cube, other)
+    assert np.isfinite(merged.tail_error.values).all()
