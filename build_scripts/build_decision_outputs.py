@@ -51,11 +51,11 @@ def _rules_json(rows):
     return json.dumps(record, allow_nan=False, indent=1) + "\n"
 
 
-def main():
+def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--output", type=Path, default=ROOT / "outputs", help="the directory")
     parser.add_argument("--method", default="normal_cc")
-    args = parser.parse_args()
+    args = parser.parse_args(argv)
     out, method = args.output, args.method
     out.mkdir(parents=True, exist_ok=True)
     start = time.perf_counter()

@@ -29,6 +29,7 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))  # this checkout's atlas, not an installed copy
+sys.path.insert(1, str(Path(__file__).resolve().parent))  # build_decision_outputs beside it
 
 from atlas import charts, coverage_pages, figures, files, sheets, tables  # noqa: E402
 from atlas.engine import METRICS  # noqa: E402
@@ -102,6 +103,11 @@ def main(argv=None):
 
     for path in written:
         print(f"{path.stat().st_size / 1024:9.1f} KB  {path.relative_to(out.parent)}")
+    # The tail p-value and test-size charts and tables: the wiki page replaced the directory
+    # above, so they are written again after it (their own script prints its list).
+    import build_decision_outputs
+
+    build_decision_outputs.main(["--output", str(out)])
     total = sum(p.stat().st_size for p in written) / 1024**2
     print(f"{len(written)} files, {total:.1f} MB, in {time.perf_counter() - started:.0f} s "
           f"from {atlas.path}")  # fmt: skip
