@@ -37,8 +37,10 @@ is not used, as it loses up to 0.1 there.
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import special
 
-from atlas.approximations import METHODS, approximate_cdf, check_method
+from atlas import asymptotic
+from atlas.approximations import METHODS, approximate_cdf, check_method, offset
 
 try:
     # The ufuncs behind scipy.stats.binom (Boost's incomplete beta), called directly to skip the
@@ -75,6 +77,9 @@ class Evaluation:
         float64 arrays of shape (len(methods), len(p)).
     lo, hi : numpy.ndarray
         int64 arrays of the same shape: the worst interval [a, b] for the interval metric.
+    interval_accuracy, cdf_accuracy : numpy.ndarray
+        float64 arrays of the same shape: bounds on the absolute error of ``interval`` and
+        ``cdf`` as computed (see :func:`accuracy_model`).
     """
 
     methods: tuple
@@ -82,6 +87,8 @@ class Evaluation:
     cdf: np.ndarray
     lo: np.ndarray
     hi: np.ndarray
+    interval_accuracy: np.ndarray
+    cdf_accuracy: np.ndarray
 
 
 N_MAX = 10**15
@@ -184,21 +191,46 @@ def _windows(n, p, methods):
     return lo, hi, ends
 
 
-def _deviation(k, n, p, method, sign):
-    """sign * D(k) = sign * (F(k) - G(k)) for integer arrays k, with p broadcast against k."""
-    return sign * (_binom_cdf(k, n, p) - approximate_cdf(k, n, p, method))
+_NORMAL_FAMILY = {"normal_cc": 1, "edgeworth_cc": 2, "edgeworth2_cc": 3}
 
 
-def _cdf_rows(n, p, lo, hi, *, recurrence=False):
+def _deviation(k, n, p, method, order):
+    """D(k) = F(k) - G(k) from the asymptotic expansion of F (wide windows), p broadcast to k.
+
+    For the normal family G is Phi(z) minus the first terms of the same expansion, so D is the
+    rest of the series, computed directly: -phi(z) sum_{e = first}^{order} sigma^-e P_e(z),
+    relative to its own size. For the other methods D = (Phi(z) - G) - phi(z) sum_{e=1}^{order}.
+    """
+    kf = k.astype(np.float64)
+    q = 1.0 - p
+    sigma = np.sqrt(n * p * q)
+    z = offset(kf + 0.5, np.float64(n), p, q) / sigma
+    density = np.exp(-0.5 * z * z) / np.sqrt(2.0 * np.pi)
+    first = _NORMAL_FAMILY.get(method)
+    if first is not None:
+        if first > order:
+            return np.zeros(z.shape)
+        return -density * asymptotic.series(z, sigma, p, first, order)
+    head = special.ndtr(z) - approximate_cdf(k, n, p, method)
+    return head - density * asymptotic.series(z, sigma, p, 1, order)
+
+
+def _orders(sigma):
+    """The order of the expansion for each sigma: the remainder falls below about 1e-20.
+
+    The first omitted term is about sigma^-(order+1) times coefficients below 0.05 (see
+    :func:`atlas.asymptotic.remainder_bound`, which states the bound actually used). At least
+    order 4, so that the D of ``edgeworth2_cc`` (from order 3 on) has two terms.
+    """
+    sigma = np.asarray(sigma)
+    return np.select([sigma >= 1e4, sigma >= 2e3], [4, 5], asymptotic.ORDER)
+
+
+def _cdf_rows(n, p, lo, hi):
     """F(k) at every integer of [lo_r, hi_r] for each row r, padded to a rectangle.
 
     F is summed upward from F(lo - 1): one incomplete-beta call per row and one pmf per integer,
-    since the pmf costs a few per cent of a CDF call near the mean at large n. With
-    ``recurrence`` the pmf after the first of each row comes from the ratio
-    pmf(k + 1) / pmf(k) = (n - k) p / ((k + 1) q), each ratio rounded independently, so the
-    relative error of the j-th value grows like sqrt(j) ulps (below 1e-14 for the 2048 values
-    of the widest bracket); rows whose first pmf is below 1e-280 use the direct pmf, so that
-    nothing underflows.
+    since the pmf costs a few per cent of a CDF call near the mean at large n.
 
     Returns
     -------
@@ -209,18 +241,7 @@ def _cdf_rows(n, p, lo, hi, *, recurrence=False):
     k = lo[:, None] + np.arange(width)[None, :]
     valid = k <= hi[:, None]
     k = np.minimum(k, hi[:, None])
-    pcol = p[:, None]
-    if recurrence:
-        first = _binom_pmf(lo, n, p)
-        kf = k[:, :-1].astype(np.float64)
-        ratio = ((n - kf) * pcol) / ((kf + 1.0) * (1.0 - pcol))
-        pmf = np.cumprod(np.concatenate([first[:, None], ratio], axis=1), axis=1)
-        tiny = first < 1e-280
-        if tiny.any():
-            pmf[tiny] = _binom_pmf(k[tiny], n, pcol[tiny])
-        pmf = np.where(valid, pmf, 0.0)
-    else:
-        pmf = np.where(valid, _binom_pmf(k, n, pcol), 0.0)
+    pmf = np.where(valid, _binom_pmf(k, n, p[:, None]), 0.0)
     start = np.where(lo > 0, _binom_cdf(lo - 1, n, p), 0.0)
     return k, valid, start[:, None] + np.cumsum(pmf, axis=1)
 
@@ -272,11 +293,15 @@ def _nested_search(n, p, lo, hi, methods):
     c_lo = _sample_coordinate((lo - mu) / sigma)
     c_hi = _sample_coordinate((hi - mu) / sigma)
     counts = np.minimum(np.maximum(np.ceil(c_hi - c_lo), 32), 8192).astype(np.int64) + 1
-    if counts.size > 1 and (counts != counts[0]).any():
+    # Rows are grouped by sample count and by the order of the expansion, both functions of the
+    # row alone.
+    orders = _orders(sigma)
+    key = counts * 16 + orders
+    if key.size > 1 and (key != key[0]).any():
         shape = (len(methods), p.size)
         out = _extremes(shape)
-        for c in np.unique(counts):
-            rows = counts == c
+        for c in np.unique(key):
+            rows = key == c
             got = _nested_search(n, p[rows], lo[rows], hi[rows], methods)
             for whole, part in zip(out, got, strict=True):
                 whole[:, rows] = part
@@ -287,21 +312,21 @@ def _nested_search(n, p, lo, hi, methods):
     coarse = np.round(mu[:, None] + sigma[:, None] * t).astype(np.int64)
     coarse = np.minimum(np.maximum(coarse, lo[:, None]), hi[:, None])
     pcol = p[:, None]
-    coarse_cdf = _binom_cdf(coarse, n, pcol)
+    order = int(orders[0])
     shape = (len(methods), p.size)
     out = _extremes(shape)
     p2 = np.concatenate([p, p])
     coarse2 = np.concatenate([coarse, coarse])
     for i, method in enumerate(methods):
-        d = coarse_cdf - approximate_cdf(coarse, n, pcol, method)
+        d = _deviation(coarse, n, pcol, method, order)
         # Maxima of D and maxima of -D (the minima of D) are refined together.
-        value, where = _refine(n, p2, coarse2, np.concatenate([d, -d]), method)
+        value, where = _refine(n, p2, coarse2, np.concatenate([d, -d]), method, order)
         out[0][i], out[1][i] = value[: p.size], where[: p.size]
         out[2][i], out[3][i] = -value[p.size :], where[p.size :]
     return out
 
 
-def _refine(n, p, coarse, sd, method):
+def _refine(n, p, coarse, sd, method, order):
     """Refine the best local maxima of sampled s D to the exact integer maximum of s D.
 
     Rows of ``sd`` hold s D on the ``coarse`` points, with s = +1 for the first half of the rows
@@ -340,13 +365,16 @@ def _refine(n, p, coarse, sd, method):
         wide = np.flatnonzero(upper - lower >= FULL_LIMIT)
         span = (upper[wide] - lower[wide]).astype(np.float64)
         pts = np.round(lower[wide][:, None] + steps[None, :] * span[:, None]).astype(np.int64)
-        vals = _deviation(pts, n, prow[wide][:, None], method, srow[wide])
+        vals = srow[wide] * _deviation(pts, n, prow[wide][:, None], method, order)
         j = np.argmax(vals, axis=1)
         h = np.arange(wide.size)
         lower[wide] = pts[h, np.maximum(j - 1, 0)]
         upper[wide] = pts[h, np.minimum(j + 1, _REFINE_POINTS - 1)]
-    k, valid, cdf = _cdf_rows(n, prow, lower, upper, recurrence=True)
-    vals = np.where(valid, srow * (cdf - approximate_cdf(k, n, prow[:, None], method)), -np.inf)
+    width = int((upper - lower).max()) + 1
+    k = lower[:, None] + np.arange(width)[None, :]
+    valid = k <= upper[:, None]
+    k = np.minimum(k, upper[:, None])
+    vals = np.where(valid, srow * _deviation(k, n, prow[:, None], method, order), -np.inf)
     j = np.argmax(vals, axis=1)
     h = np.arange(j.size)
     value = np.full((rows, take), -np.inf)
@@ -433,7 +461,36 @@ def _evaluate(n, p, methods, full=False):
         first, last = np.minimum(hi_k, lo_k), np.maximum(hi_k, lo_k)
         a[i] = np.where(first == last, np.minimum(np.maximum(first, 0), n), first + 1)
         b[i] = np.where(first == last, np.minimum(np.maximum(last, 0), n), last)
-    return Evaluation(methods, interval, cdf, a, b)
+    d_accuracy = _deviation_accuracy(n, p, methods, narrow, np.maximum(np.abs(dmax), np.abs(dmin)))
+    return Evaluation(methods, interval, cdf, a, b, 2.0 * d_accuracy, d_accuracy)
+
+
+# The accuracy model (see accuracy_model for the statement and the measurements behind it).
+G_ROUNDING = 1e-15
+_SUM_ERROR = (2e-15, 1e-16)
+_SERIES_ROUNDING = 64 * np.finfo(np.float64).eps
+
+
+def _deviation_accuracy(n, p, methods, narrow, size):
+    """Bound on |D computed - D| at every k, shape (len(methods), len(p)); see accuracy_model."""
+    sigma = np.sqrt(n * p * (1.0 - p))
+    f_error = np.empty(p.size)
+    f_error[narrow] = _SUM_ERROR[0] + _SUM_ERROR[1] * sigma[narrow]
+    wide = np.flatnonzero(~narrow)
+    if wide.size:
+        orders = _orders(sigma[wide])
+        for order in np.unique(orders):
+            rows = wide[orders == order]
+            f_error[rows] = asymptotic.remainder_bound(sigma[rows], p[rows], int(order))
+    out = np.empty((len(methods), p.size))
+    for i, method in enumerate(methods):
+        # Wide windows, normal family: D is the series itself, rounded relative to its size;
+        # otherwise G (and Phi(z)) are rounded absolutely.
+        g_error = np.where(narrow, G_ROUNDING, 2.0 * G_ROUNDING)
+        if method in _NORMAL_FAMILY:
+            g_error = np.where(narrow, G_ROUNDING, _SERIES_ROUNDING * size[i])
+        out[i] = f_error + g_error
+    return out
 
 
 def evaluate_cells(n, p, method):
