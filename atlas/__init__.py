@@ -8,7 +8,13 @@ stays light and never imports matplotlib, dask or netCDF4.
 __version__ = "0.1.0"
 
 from atlas.approximations import METHODS  # noqa: E402 - __version__ first: submodules read it
-from atlas.engine import METRICS, worst_error, worst_interval  # noqa: E402
+from atlas.engine import (  # noqa: E402
+    METRICS,
+    WorstError,
+    is_resolved,
+    worst_error,
+    worst_interval,
+)
 
 _LAZY = {
     "build_atlas": "atlas.build",
@@ -33,12 +39,14 @@ __all__ = [
     "METRICS",
     "Atlas",
     "Verdict",
+    "WorstError",
     "__version__",
     "best_method_map",
     "build_atlas",
     "compare_map",
     "error_map",
     "gain_map",
+    "is_resolved",
     "open_atlas",
     "parse_rule",
     "rule_audit",

@@ -34,7 +34,9 @@ sum to 2.5e-14 at n = 10^6 and 1.6e-13 at n = 10^8 (k near the mean); ``scipy.sp
 is not used, as it loses up to 0.1 there.
 """
 
+import numbers
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 from scipy import special
@@ -56,6 +58,7 @@ METRICS = ("interval", "cdf")
 
 TAIL_TOL = 1e-17
 FULL_LIMIT = 2048
+BRACKET_LIMIT = 64
 _START_SIGMAS = 9.0
 _START_MARGIN = 10.0
 _CORE_SIGMAS = 4.0
@@ -94,14 +97,42 @@ class Evaluation:
 N_MAX = 10**15
 
 
+def _real_array(value, name, what):
+    """``value`` as a numpy array of real numbers, or TypeError naming ``name``.
+
+    Strings, bytes, booleans and complex numbers are refused rather than converted: numpy would
+    parse '0.3', drop the imaginary part of 0.3+1j and read True as 1.
+    """
+    arr = np.asarray(value)
+    if arr.dtype.kind == "O":  # e.g. Fraction or Decimal objects: real numbers are accepted
+        flat = arr.ravel().tolist()
+        if all(isinstance(x, numbers.Real) and not isinstance(x, bool) for x in flat):
+            return np.array(flat, dtype=np.float64).reshape(arr.shape)
+    if arr.dtype.kind not in "iuf":
+        bad = value
+        if arr.ndim:  # name the first element that is not a real number
+            items = np.asarray(value, dtype=object).ravel()
+            bad = next(
+                (x for x in items if not isinstance(x, numbers.Real) or isinstance(x, bool)),
+                items[0],
+            )
+        raise TypeError(f"`{name}` must be {what}; got {_show(bad)}.")
+    return arr
+
+
 def check_n(n):
-    """Return ``n`` as an int64 array, or raise ValueError naming the bad value."""
+    """Return ``n`` as an int64 array, or raise naming the bad value.
+
+    Raises
+    ------
+    TypeError
+        For strings, booleans, complex numbers and other non-numbers.
+    ValueError
+        For numbers that are not integers from 1 to N_MAX.
+    """
     if type(n) is int and 1 <= n <= N_MAX:  # the common scalar case, without numpy's checks
         return np.int64(n)
-    arr = np.asarray(n)
-    numeric = np.issubdtype(arr.dtype, np.integer) or np.issubdtype(arr.dtype, np.floating)
-    if arr.dtype == bool or not numeric:
-        raise ValueError(f"`n` must be an integer >= 1; got {_show(n)}.")
+    arr = _real_array(n, "n", "an integer >= 1")
     flat = arr.ravel().astype(np.float64)
     bad = ~np.isfinite(flat) | (flat < 1) | (flat != np.round(flat)) | (flat > N_MAX)
     if bad.any():
@@ -113,13 +144,18 @@ def check_n(n):
 
 
 def check_p(p):
-    """Return ``p`` as a float64 array, or raise ValueError naming the bad value."""
+    """Return ``p`` as a float64 array, or raise naming the bad value.
+
+    Raises
+    ------
+    TypeError
+        For strings, booleans, complex numbers and other non-numbers.
+    ValueError
+        For numbers outside the open interval (0, 1), and NaN.
+    """
     if type(p) is float and 0.0 < p < 1.0:
         return np.float64(p)
-    try:
-        arr = np.asarray(p, dtype=np.float64)
-    except (TypeError, ValueError):
-        raise ValueError(f"`p` must be in the open interval (0, 1); got {_show(p)}.") from None
+    arr = _real_array(p, "p", "a real number in the open interval (0, 1)").astype(np.float64)
     flat = arr.ravel()
     bad = ~((flat > 0.0) & (flat < 1.0))
     if bad.any():
@@ -191,28 +227,35 @@ def _windows(n, p, methods):
     return lo, hi, ends
 
 
+_SQRT_2PI = np.sqrt(2.0 * np.pi)
 _NORMAL_FAMILY = {"normal_cc": 1, "edgeworth_cc": 2, "edgeworth2_cc": 3}
 
 
-def _deviation(k, n, p, method, order):
+def _series_coefficients(n, p, method, order):
+    """Hermite coefficients of the part of F - G that the series gives, one row per p.
+
+    Shape (len(p), 1, 3 order), ready to broadcast against (len(p), points) arrays of k.
+    """
+    sigma = np.sqrt(n * p * (1.0 - p))
+    first = _NORMAL_FAMILY.get(method, 1)
+    return asymptotic.coefficients(sigma, p, first, order)[:, None, :]
+
+
+def _deviation(k, n, p, method, gamma):
     """D(k) = F(k) - G(k) from the asymptotic expansion of F (wide windows), p broadcast to k.
 
-    For the normal family G is Phi(z) minus the first terms of the same expansion, so D is the
-    rest of the series, computed directly: -phi(z) sum_{e = first}^{order} sigma^-e P_e(z),
-    relative to its own size. For the other methods D = (Phi(z) - G) - phi(z) sum_{e=1}^{order}.
+    ``gamma`` holds the rows' coefficients from :func:`_series_coefficients`. For the normal
+    family G is Phi(z) minus the first terms of the same expansion, so D is the rest of the
+    series, computed directly: -phi(z) sum_{e = first}^{order} sigma^-e P_e(z), relative to its
+    own size. For the other methods D = (Phi(z) - G) - phi(z) sum_{e=1}^{order} sigma^-e P_e(z).
     """
-    kf = k.astype(np.float64)
     q = 1.0 - p
     sigma = np.sqrt(n * p * q)
-    z = offset(kf + 0.5, np.float64(n), p, q) / sigma
-    density = np.exp(-0.5 * z * z) / np.sqrt(2.0 * np.pi)
-    first = _NORMAL_FAMILY.get(method)
-    if first is not None:
-        if first > order:
-            return np.zeros(z.shape)
-        return -density * asymptotic.series(z, sigma, p, first, order)
-    head = special.ndtr(z) - approximate_cdf(k, n, p, method)
-    return head - density * asymptotic.series(z, sigma, p, 1, order)
+    z = offset(k.astype(np.float64) + 0.5, np.float64(n), p, q) / sigma
+    tail = -np.exp(-0.5 * z * z) / _SQRT_2PI * asymptotic.hermite_sum(z, gamma)
+    if method in _NORMAL_FAMILY:
+        return tail
+    return (special.ndtr(z) - approximate_cdf(k, n, p, method)) + tail
 
 
 def _orders(sigma):
@@ -223,7 +266,7 @@ def _orders(sigma):
     order 4, so that the D of ``edgeworth2_cc`` (from order 3 on) has two terms.
     """
     sigma = np.asarray(sigma)
-    return np.select([sigma >= 1e4, sigma >= 2e3], [4, 5], asymptotic.ORDER)
+    return np.select([sigma >= 1e4, sigma >= 400], [4, 5], asymptotic.ORDER)
 
 
 def _cdf_rows(n, p, lo, hi):
@@ -318,15 +361,17 @@ def _nested_search(n, p, lo, hi, methods):
     p2 = np.concatenate([p, p])
     coarse2 = np.concatenate([coarse, coarse])
     for i, method in enumerate(methods):
-        d = _deviation(coarse, n, pcol, method, order)
+        gamma = _series_coefficients(n, p, method, order)
+        d = _deviation(coarse, n, pcol, method, gamma)
         # Maxima of D and maxima of -D (the minima of D) are refined together.
-        value, where = _refine(n, p2, coarse2, np.concatenate([d, -d]), method, order)
+        gamma2 = np.concatenate([gamma, gamma])
+        value, where = _refine(n, p2, coarse2, np.concatenate([d, -d]), method, gamma2)
         out[0][i], out[1][i] = value[: p.size], where[: p.size]
         out[2][i], out[3][i] = -value[p.size :], where[p.size :]
     return out
 
 
-def _refine(n, p, coarse, sd, method, order):
+def _refine(n, p, coarse, sd, method, gamma):
     """Refine the best local maxima of sampled s D to the exact integer maximum of s D.
 
     Rows of ``sd`` hold s D on the ``coarse`` points, with s = +1 for the first half of the rows
@@ -359,13 +404,14 @@ def _refine(n, p, coarse, sd, method, order):
     lower = coarse[row_idx, np.maximum(idx - 1, 0)]
     upper = coarse[row_idx, np.minimum(idx + 1, count - 1)]
     prow = p[row_idx]
+    grow = gamma[row_idx]
     srow = sign[row_idx][:, None]
     steps = np.linspace(0.0, 1.0, _REFINE_POINTS)
-    while (upper - lower >= FULL_LIMIT).any():
-        wide = np.flatnonzero(upper - lower >= FULL_LIMIT)
+    while (upper - lower >= BRACKET_LIMIT).any():
+        wide = np.flatnonzero(upper - lower >= BRACKET_LIMIT)
         span = (upper[wide] - lower[wide]).astype(np.float64)
         pts = np.round(lower[wide][:, None] + steps[None, :] * span[:, None]).astype(np.int64)
-        vals = srow[wide] * _deviation(pts, n, prow[wide][:, None], method, order)
+        vals = srow[wide] * _deviation(pts, n, prow[wide][:, None], method, grow[wide])
         j = np.argmax(vals, axis=1)
         h = np.arange(wide.size)
         lower[wide] = pts[h, np.maximum(j - 1, 0)]
@@ -374,7 +420,7 @@ def _refine(n, p, coarse, sd, method, order):
     k = lower[:, None] + np.arange(width)[None, :]
     valid = k <= upper[:, None]
     k = np.minimum(k, upper[:, None])
-    vals = np.where(valid, srow * _deviation(k, n, prow[:, None], method, order), -np.inf)
+    vals = np.where(valid, srow * _deviation(k, n, prow[:, None], method, grow), -np.inf)
     j = np.argmax(vals, axis=1)
     h = np.arange(j.size)
     value = np.full((rows, take), -np.inf)
@@ -394,18 +440,22 @@ def evaluate(n, p, *, methods=METHODS, full=False):
         Number of trials, n >= 1.
     p : array_like of float
         One-dimensional success probabilities, each 0 < p < 1.
-    methods : sequence of str, optional
-        Methods from :data:`atlas.METHODS`; all of them by default.
+    methods : str or sequence of str, optional
+        Methods from :data:`atlas.METHODS` (a single name counts as one method); all of them by
+        default.
     full : bool, optional
         Evaluate every integer of the window even when it is wide (slow; for checking the search).
 
     Returns
     -------
     Evaluation
-        Arrays of shape (len(methods), len(p)).
+        Arrays of shape (len(methods), len(p)), each error with its accuracy (see the module
+        notes, "Accuracy").
 
     Raises
     ------
+    TypeError
+        For n or p that are not real numbers (strings, complex numbers, booleans).
     ValueError
         For n that is not an integer >= 1, p outside (0, 1), or an unknown method.
 
@@ -426,6 +476,8 @@ def evaluate(n, p, *, methods=METHODS, full=False):
     p = np.atleast_1d(check_p(p)).astype(np.float64)
     if p.ndim != 1:
         raise ValueError(f"`p` must be one-dimensional here; got shape {p.shape}.")
+    if isinstance(methods, str):  # one method named on its own, not a sequence of letters
+        methods = (methods,)
     return _evaluate(int(n_arr), p, tuple(check_method(m) for m in methods), full)
 
 
@@ -493,7 +545,7 @@ def _deviation_accuracy(n, p, methods, narrow, size):
     return out
 
 
-def evaluate_cells(n, p, method):
+def evaluate_cells(n, p, method, *, accuracy=False):
     """Errors of one method at cells given as flat arrays of n and p, in any order.
 
     Cells are grouped by n and each distinct (n, p) is computed once, with the p of one n in
@@ -507,14 +559,16 @@ def evaluate_cells(n, p, method):
         Checked p of the cells, the same length.
     method : str
         A checked method name.
+    accuracy : bool, optional
+        Also return the accuracy of ``interval`` and of ``cdf``.
 
     Returns
     -------
     tuple of numpy.ndarray
-        ``interval``, ``cdf``, ``lo``, ``hi`` for each cell, in the cells' order.
+        ``interval``, ``cdf``, ``lo``, ``hi`` for each cell, in the cells' order; with
+        ``accuracy``, then ``interval_accuracy`` and ``cdf_accuracy``.
     """
-    interval, cdf = np.empty(n.size), np.empty(n.size)
-    a, b = np.empty(n.size, np.int64), np.empty(n.size, np.int64)
+    kinds = (float, float, np.int64, np.int64, float, float)
     order = np.lexsort((p, n))
     n_sorted, p_sorted = n[order], p[order]
     # Starts of runs of equal (n, p), and starts of runs of equal n among them.
@@ -524,37 +578,82 @@ def evaluate_cells(n, p, method):
     firsts = np.flatnonzero(new_cell)
     cell_n, cell_p = n_sorted[firsts], p_sorted[firsts]
     bounds = np.flatnonzero(np.r_[True, cell_n[1:] != cell_n[:-1], True])
-    results = [np.empty(firsts.size), np.empty(firsts.size)]
-    results += [np.empty(firsts.size, np.int64), np.empty(firsts.size, np.int64)]
+    results = [np.empty(firsts.size, kind) for kind in kinds]
     for start, stop in zip(bounds[:-1], bounds[1:], strict=True):
         ev = _evaluate(int(cell_n[start]), cell_p[start:stop], (method,))
-        for whole, part in zip(results, (ev.interval, ev.cdf, ev.lo, ev.hi), strict=True):
+        parts = (ev.interval, ev.cdf, ev.lo, ev.hi, ev.interval_accuracy, ev.cdf_accuracy)
+        for whole, part in zip(results, parts, strict=True):
             whole[start:stop] = part[0]
-    for out, values in zip((interval, cdf, a, b), results, strict=True):
-        out[order] = values[cell_of]
-    return interval, cdf, a, b
+    out = [np.empty(n.size, kind) for kind in kinds]
+    for whole, values in zip(out, results, strict=True):
+        whole[order] = values[cell_of]
+    return tuple(out) if accuracy else tuple(out[:4])
 
 
 def _broadcast_evaluate(n, p, method):
-    """Evaluate one method over broadcast n and p."""
+    """Evaluate one method over broadcast n and p: interval, cdf, lo, hi and the accuracies."""
     n_arr = check_n(n)
     p_arr = check_p(p)
     method = check_method(method)
     if n_arr.ndim == 0 and p_arr.ndim == 0:  # one cell: skip the grouping
         ev = _evaluate(int(n_arr), p_arr.reshape(1).astype(np.float64), (method,))
-        return tuple(np.asarray(x[0, 0]) for x in (ev.interval, ev.cdf, ev.lo, ev.hi))
+        parts = (ev.interval, ev.cdf, ev.lo, ev.hi, ev.interval_accuracy, ev.cdf_accuracy)
+        return tuple(np.asarray(x[0, 0]) for x in parts)
     n_b, p_b = np.broadcast_arrays(n_arr, p_arr)
-    flat = evaluate_cells(n_b.ravel(), p_b.ravel().astype(np.float64), method)
+    if n_b.size == 0:  # empty input: empty results of the broadcast shape
+        kinds = (float, float, np.int64, np.int64, float, float)
+        return tuple(np.empty(n_b.shape, kind) for kind in kinds)
+    flat = evaluate_cells(n_b.ravel(), p_b.ravel().astype(np.float64), method, accuracy=True)
     return tuple(x.reshape(n_b.shape) for x in flat)
 
 
-def worst_error(n, p, *, method="normal_cc", metric="interval"):
+class WorstError(NamedTuple):
+    """A worst-case error with the bound on its absolute error (see :func:`worst_error`)."""
+
+    error: float | np.ndarray
+    accuracy: float | np.ndarray
+
+
+RESOLUTION_FACTOR = 3.0
+
+
+def is_resolved(error, accuracy, *, factor=RESOLUTION_FACTOR):
+    """Whether an error is resolved: larger than ``factor`` times its accuracy.
+
+    An error that is not resolved is below the resolution of the computation: its true value
+    lies in [error - accuracy, error + accuracy], which is no better than "less than
+    error + accuracy", and should be reported that way, never as a precise number.
+
+    Parameters
+    ----------
+    error, accuracy : float or array_like
+        A worst-case error and its accuracy, e.g. from ``worst_error(...,
+        return_accuracy=True)``.
+    factor : float, optional
+        How many times its accuracy the error must exceed; default 3.
+
+    Returns
+    -------
+    bool or numpy.ndarray of bool
+
+    Examples
+    --------
+    >>> is_resolved(*worst_error(10**6, 0.3, return_accuracy=True))
+    True
+    >>> is_resolved(*worst_error(10**15, 0.5, method="camp_paulson", return_accuracy=True))
+    False
+    """
+    out = np.asarray(error) > factor * np.asarray(accuracy)
+    return bool(out) if out.ndim == 0 else out
+
+
+def worst_error(n, p, *, method="normal_cc", metric="interval", return_accuracy=False):
     """Exact worst-case error of an approximation to Bin(n, p).
 
     Parameters
     ----------
     n : int or array_like of int
-        Number of trials, n >= 1.
+        Number of trials, 1 <= n <= 10^15.
     p : float or array_like of float
         Success probability, 0 < p < 1. Broadcast against ``n``.
     method : str, optional
@@ -562,16 +661,25 @@ def worst_error(n, p, *, method="normal_cc", metric="interval"):
     metric : {"interval", "cdf"}, optional
         ``"interval"`` (default): the largest error of any interval probability P(a <= X <= b);
         ``"cdf"``: the largest error of P(X <= k).
+    return_accuracy : bool, optional
+        Return a :class:`WorstError` ``(error, accuracy)`` instead of the error alone.
 
     Returns
     -------
-    float or numpy.ndarray
-        A float for scalar inputs, else an array of the broadcast shape.
+    float or numpy.ndarray or WorstError
+        A float for scalar inputs, else an array of the broadcast shape (empty for empty
+        input). With ``return_accuracy``, the pair (error, accuracy) of such values: the
+        computed error differs from the exact one by at most ``accuracy`` (see the module
+        notes, "Accuracy", for the basis), and :func:`is_resolved` says whether it is
+        meaningful as a number.
 
     Raises
     ------
+    TypeError
+        If n or p is not a real number (a string, a complex number, a boolean).
     ValueError
-        If n is not an integer >= 1, p is outside (0, 1) or NaN, or method or metric is unknown.
+        If n is not an integer from 1 to 10^15, p is outside (0, 1) or NaN, or method or
+        metric is unknown.
 
     Notes
     -----
@@ -583,11 +691,16 @@ def worst_error(n, p, *, method="normal_cc", metric="interval"):
     0.005372
     >>> worst_error([10, 20], [[0.5], [0.1]]).shape
     (2, 2)
+    >>> error, accuracy = worst_error(10**12, 0.3, return_accuracy=True)
+    >>> f"{error:.4g}", accuracy < 1e-15
+    ('8.394e-08', True)
     """
     check_metric(metric)
-    interval, cdf, _, _ = _broadcast_evaluate(n, p, method)
-    out = interval if metric == "interval" else cdf
-    return float(out) if out.ndim == 0 else out
+    interval, cdf, _, _, interval_acc, cdf_acc = _broadcast_evaluate(n, p, method)
+    out, acc = (interval, interval_acc) if metric == "interval" else (cdf, cdf_acc)
+    if out.ndim == 0:
+        out, acc = float(out), float(acc)
+    return WorstError(out, acc) if return_accuracy else out
 
 
 def worst_interval(n, p, *, method="normal_cc"):
@@ -615,7 +728,7 @@ def worst_interval(n, p, *, method="normal_cc"):
     >>> worst_interval(10, 0.5)
     (2, 8)
     """
-    _, _, a, b = _broadcast_evaluate(n, p, method)
+    _, _, a, b, _, _ = _broadcast_evaluate(n, p, method)
     if a.ndim == 0:
         return int(a), int(b)
     return a, b
