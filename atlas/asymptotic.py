@@ -175,9 +175,12 @@ def coefficients(sigma, p, first, last):
         if e not in tables:
             continue
         index, matrix = tables[e]
-        powers = w[..., None] ** np.arange(matrix.shape[1])
+        # Horner in w, elementwise (a matrix product could round differently with the batch).
+        values = np.broadcast_to(matrix[:, -1], (*w.shape, len(index)))
+        for column in range(matrix.shape[1] - 2, -1, -1):
+            values = values * w[..., None] + matrix[:, column]
         scale = eps**e * (d if e % 2 else 1.0)
-        gamma[..., index] += (powers @ matrix.T) * scale[..., None]
+        gamma[..., index] += values * scale[..., None]
     return gamma
 
 

@@ -17,21 +17,53 @@ How the extremes are found, and why it is exact
    tails (each is a normal or Poisson CDF there, or a Hermite polynomial times phi beyond its last
    turning point, which lies below |z| = 3). Both bounds are computed for every cell and must be
    below ``TAIL_TOL`` = 1e-17; so the omitted k change neither metric by more than 1e-17.
-2. *Narrow windows* (at most ``FULL_LIMIT`` integers) are evaluated at every integer, many p at
-   once: F from the binomial pmf summed upward from F(lo - 1).
-3. *Wide windows* (large sigma) use a nested search. D is sampled every sigma/4 within 4 sigma
-   of the mean and every sigma/2 beyond: to leading orders every method's D is a sum of Hermite
-   polynomials times phi, smooth on the scale of sigma, whose turning points lie within about
-   4.2 sigma. The three best local maxima of the samples (and of -D) are bracketed by their
-   neighbouring samples; candidates that cannot beat the best sample by their curvature are
-   dropped; a bracket wider than ``FULL_LIMIT`` is resampled and narrowed; and every integer of
-   the final brackets is evaluated, F summed from one incomplete-beta value by the pmf ratio
-   recurrence. The test suite checks the search against every-integer evaluation of the same
-   windows.
+2. *Narrow windows* (at most ``FULL_LIMIT`` integers, so sigma below about 113) are evaluated at
+   every integer, many p at once: F from Boost's incomplete beta at lo - 1 (``scipy.stats.binom``)
+   and the binomial pmf summed upward from there.
+3. *Wide windows* (larger sigma) use a nested search on D computed from the lattice Edgeworth
+   expansion of F (:mod:`atlas.asymptotic`), not from Boost, whose absolute error grows like
+   sqrt(n) (table below) and reaches the size of the errors measured. D is sampled every
+   sigma/4 within 4 sigma of the mean and every sigma/2 beyond: every method's D is a sum of
+   Hermite polynomials times phi, smooth on the scale of sigma, whose turning points lie within
+   about 4.2 sigma. The three best local maxima of the samples (and of -D) are bracketed by
+   their neighbouring samples; candidates that cannot beat the best sample by their curvature
+   are dropped; a bracket wider than ``BRACKET_LIMIT`` integers is resampled and narrowed; and
+   every integer of the final brackets is evaluated. The test suite checks the search against
+   every-integer evaluation of the same windows.
 
-F comes from ``scipy.stats.binom`` (Boost's incomplete beta), which agrees with a 40-digit mpmath
-sum to 2.5e-14 at n = 10^6 and 1.6e-13 at n = 10^8 (k near the mean); ``scipy.special.bdtr``
-is not used, as it loses up to 0.1 there.
+Accuracy
+--------
+Every value comes with a bound on its absolute error (``Evaluation.interval_accuracy`` and
+``cdf_accuracy``; ``worst_error(..., return_accuracy=True)``). For the computed D at each k,
+
+    |D computed - D| <= eps_F + eps_G + TAIL_TOL,
+
+and the metrics inherit 2 (eps_F + eps_G + TAIL_TOL) for ``interval`` (a difference of two
+values of D) and eps_F + eps_G + TAIL_TOL for ``cdf``; the search finds the exact integer
+extremes of the computed D, so it adds nothing. The terms:
+
+- eps_F, narrow windows: 2e-15 + 1e-16 sigma. Measured against 50-digit mpmath sums, the summed
+  F errs by at most 4.0e-15 (sigma = 104, n = 52,000, p = 0.3), 3.0e-15 (sigma = 100 at
+  n = 10^8, 10^12, 10^15 with small p) and 2.7e-16 (sigma = 10, n = 10^15), 2.5 to 3 times less.
+- eps_F, wide windows: :func:`atlas.asymptotic.remainder_bound` at the order used (4 to 6, by
+  sigma: see :func:`_orders`): 4 times the largest size of the next two terms. Measured against
+  the mpmath Beta-integral values of ``tests/data/large_n_references.json`` at sigma = 30 to
+  10^4, the remainder of the expansion is at most 1.6 times its first omitted term. The bound is
+  below 2e-16 for every wide window and below 1e-19 from sigma = 400.
+- eps_G: the rounding of G, 1e-15 (the largest difference from the mpmath formulas measured
+  over n = 1 to 10^15 and p down to 5e-324 is 7.8e-16, ``tests/test_approximations.py``), twice
+  that in wide windows for the methods outside the normal family, where D = (Phi(z) - G) + series.
+  For ``normal_cc``, ``edgeworth_cc`` and ``edgeworth2_cc`` in wide windows D is the tail of the
+  series itself, with no G subtracted, and eps_G is 64 units in the last place of max |D|.
+
+Boost's absolute error in F near the mean (largest over p = 0.5, 0.3, 0.001, 1e-6 and
+z = -3..3; ``build_scripts/make_large_n_references.py``), the reason for the expansion:
+
+    n      10^6     10^8     10^9     10^10    10^12    10^13    10^14    10^15
+    error  2.5e-14  1.6e-13  6.4e-13  2.6e-12  2.6e-11  6.4e-11  1.6e-10  6.5e-10
+
+A value is resolved (:func:`is_resolved`) when it exceeds ``RESOLUTION_FACTOR`` = 3 times its
+accuracy; otherwise it is only known to be below error + accuracy.
 """
 
 import numbers
@@ -155,7 +187,7 @@ def check_p(p):
     """
     if type(p) is float and 0.0 < p < 1.0:
         return np.float64(p)
-    arr = _real_array(p, "p", "a real number in the open interval (0, 1)").astype(np.float64)
+    arr = _real_array(p, "p", "in the open interval (0, 1)").astype(np.float64)
     flat = arr.ravel()
     bad = ~((flat > 0.0) & (flat < 1.0))
     if bad.any():
@@ -284,7 +316,21 @@ def _cdf_rows(n, p, lo, hi):
     k = lo[:, None] + np.arange(width)[None, :]
     valid = k <= hi[:, None]
     k = np.minimum(k, hi[:, None])
-    pmf = np.where(valid, _binom_pmf(k, n, p[:, None]), 0.0)
+    # Mean below 1 (so lo = 0): pmf(0) = exp(n log1p(-p)) and the ratio recurrence
+    # pmf(k + 1) = pmf(k) (n - k) p / ((k + 1) q). Boost's pmf errs by up to 5e-14 at k = 0 for
+    # p below 1e-200 and overflows inside ibeta_derivative near p = 1e-308; the recurrence
+    # multiplies a few rounded ratios onto terms that fall off at least like mu^k / k!.
+    small = n * p < 1.0
+    pmf = np.empty(k.shape)
+    if small.any():
+        ps = p[small][:, None]
+        kf = k[small][:, :-1].astype(np.float64)
+        ratio = ((n - kf) * ps) / ((kf + 1.0) * (1.0 - ps))
+        first = np.exp(n * np.log1p(-ps))
+        pmf[small] = np.cumprod(np.concatenate([first, ratio], axis=1), axis=1)
+    if not small.all():
+        pmf[~small] = _binom_pmf(k[~small], n, p[~small][:, None])
+    pmf = np.where(valid, pmf, 0.0)
     start = np.where(lo > 0, _binom_cdf(lo - 1, n, p), 0.0)
     return k, valid, start[:, None] + np.cumsum(pmf, axis=1)
 
@@ -517,14 +563,14 @@ def _evaluate(n, p, methods, full=False):
     return Evaluation(methods, interval, cdf, a, b, 2.0 * d_accuracy, d_accuracy)
 
 
-# The accuracy model (see accuracy_model for the statement and the measurements behind it).
+# The accuracy model (the module notes, "Accuracy", state it and the measurements behind it).
 G_ROUNDING = 1e-15
 _SUM_ERROR = (2e-15, 1e-16)
 _SERIES_ROUNDING = 64 * np.finfo(np.float64).eps
 
 
 def _deviation_accuracy(n, p, methods, narrow, size):
-    """Bound on |D computed - D| at every k, shape (len(methods), len(p)); see accuracy_model."""
+    """Bound on |D computed - D| at every k, shape (len(methods), len(p)): the module notes."""
     sigma = np.sqrt(n * p * (1.0 - p))
     f_error = np.empty(p.size)
     f_error[narrow] = _SUM_ERROR[0] + _SUM_ERROR[1] * sigma[narrow]
@@ -541,7 +587,7 @@ def _deviation_accuracy(n, p, methods, narrow, size):
         g_error = np.where(narrow, G_ROUNDING, 2.0 * G_ROUNDING)
         if method in _NORMAL_FAMILY:
             g_error = np.where(narrow, G_ROUNDING, _SERIES_ROUNDING * size[i])
-        out[i] = f_error + g_error
+        out[i] = f_error + g_error + TAIL_TOL
     return out
 
 

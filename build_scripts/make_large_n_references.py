@@ -23,17 +23,16 @@ Three sets are written:
     The worst-case interval and CDF errors of every method at n = 10^9, 10^10, 10^12 and
     10^15, p = 0.5, 0.3 and 0.001. D(k) = F(k) - G(k), G from the mpmath formulas of
     ``make_reference_values.py`` (same definitions, REFERENCES.md); the Poisson CDF by the same
-  quadrature of its Gamma integral, P(Y <= j) = P(T > lambda), T ~ Gamma(j + 1). D is sampled at
-    k = round(mu + t sigma), t = -7..7 in steps of 1/2, and each sampled local maximum of D and
-    of -D is refined by a golden-section search over the integers of its bracket until the
-    bracket is narrower than max(3, sigma 1e-4) integers. D is smooth on the scale of sigma
-    (its second difference is about D / sigma^2), so the located value is within 1e-7 of the
-    extreme, relatively. Beyond |t| = 7, |D| <= F + G (or 1 - F + 1 - G) and both tails fall
-    off like the normal tail; every extreme found lies within |t| < 4.
+    quadrature of its Gamma integral, P(Y <= j) = P(T > lambda), T ~ Gamma(j + 1). D is sampled
+    at k = round(mu + t sigma), t = -7..7 in steps of 1/2; each sampled local maximum of D and
+    of -D is refined by golden-section search over the integers of its bracket down to
+    max(3, sigma 1e-4) integers (D is smooth on the scale of sigma, so the value found is within
+    1e-8 of the extreme, relatively). Beyond |t| = 7, |D| <= F + G
+    (or 1 - F + 1 - G), and both tails fall off like the normal tail.
 ``expansion_checks``
     F(k) at sigma = 30 .. 10^4 for checking the engine's asymptotic expansion of F.
 
-Run from the repository root (about 15 minutes on one core)::
+Run from the repository root (about 15 minutes on one quiet core)::
 
     .venv/bin/python build_scripts/make_large_n_references.py
 """
@@ -57,7 +56,6 @@ from make_reference_values import ALL_METHODS, Cell, approximation_single  # noq
 DPS = 40
 SPLITS = (-40, -20, -10, -6, -3, -1.5, 0, 1.5, 3, 6, 10, 20, 40)
 CUT = 60
-GOLDEN = (mp.sqrt(5) - 1) / 2
 
 CDF_N = tuple(10**e for e in range(4, 16))
 CDF_P = (0.5, 0.3, 0.001, 1e-6)
@@ -69,8 +67,7 @@ EXPANSION_P = (0.5, 0.3, 0.001)
 EXPANSION_SIGMA = (30, 100, 300, 1000, 10000)
 EXPANSION_Z = (-4.0, -2.0, -1.0, 0.0, 0.5, 1.0, 2.0, 4.0)
 
-WORST_N = (10**9, 10**10, 10**12, 10**15)
-WORST_P = (0.5, 0.3, 0.001)
+WORST_CELLS = tuple((n, p) for n in (10**15, 10**12, 10**10, 10**9) for p in (0.3, 0.5, 0.001))
 SAMPLE_T = tuple(x / 2 for x in range(-14, 15))
 
 
@@ -195,6 +192,30 @@ def expansion_checks():
     return rows
 
 
+def refine(f, a, c, stop):
+    """An integer maximum of a smooth unimodal f on [a, c], by golden-section search.
+
+    The search stops when the bracket is narrower than ``stop`` integers and then takes the best
+    of its ends and middle (every integer when it is at most 3 wide). D is smooth on the scale of sigma (its second difference is about
+    D / sigma^2), so with ``stop`` = sigma 1e-4 the value found is within 1e-8 of the extreme,
+    relatively.
+    """
+    golden = (mp.sqrt(5) - 1) / 2
+    lo, hi = a, c
+    while hi - lo > stop:
+        x1 = hi - int(golden * (hi - lo))
+        x2 = lo + int(golden * (hi - lo))
+        if x1 >= x2:
+            x2 = x1 + 1
+        if f(x1) >= f(x2):
+            hi = x2
+        else:
+            lo = x1
+    candidates = range(lo, hi + 1) if hi - lo <= 3 else (lo, (lo + hi) // 2, hi)
+    best = max(candidates, key=f)
+    return best, f(best)
+
+
 def worst_cell(n, p):
     """Worst-case errors of every method at (n, p) by sampling and golden-section refinement."""
     c = Cell(n, p)
@@ -221,24 +242,14 @@ def worst_cell(n, p):
             for j in range(1, len(ks) - 1):
                 if not (vals[j] >= vals[j - 1] and vals[j] >= vals[j + 1]):
                     continue
-                lo, hi = ks[j - 1], ks[j + 1]
-                while hi - lo > stop:
-                    x1 = hi - int(GOLDEN * (hi - lo))
-                    x2 = lo + int(GOLDEN * (hi - lo))
-                    if x1 == x2:
-                        x2 += 1
-                    if sign * d(x1, i) >= sign * d(x2, i):
-                        hi = x2
-                    else:
-                        lo = x1
-                for k in range(lo, hi + 1):
-                    v = sign * d(k, i)
-                    if best_val is None or v > best_val:
-                        best_val, best_k = v, k
+                k, v = refine(lambda k, s=sign, m=i: s * d(k, m), ks[j - 1], ks[j + 1], stop)
+                if best_val is None or v > best_val:
+                    best_val, best_k = v, k
             if best_val is None:  # monotone samples: take the best sample
                 j = max(range(len(ks)), key=lambda j: vals[j])
                 best_val, best_k = vals[j], ks[j]
             found[sign] = (sign * best_val, best_k)
+        print(f"    {method}: {len(cache_f)} F values so far", flush=True)
         (d_max, k_max), (d_min, k_min) = found[1], found[-1]
         out.append(
             {
@@ -292,18 +303,25 @@ def main(argv=None):
     print(f"[{time.time() - start:.0f}s] cdf points and expansion checks done", flush=True)
     worst = []
     runs = []
+    write(args.output, start, checks, points, expansion, worst, runs)
     if not args.skip_worst:
-        for n in WORST_N:
-            for p in WORST_P:
-                t0 = time.time()
-                rows, count = worst_cell(n, p)
-                worst.extend(rows)
-                runs.append({"n": n, "p": p, "cdf_evaluations": count})
-                print(
-                    f"[{time.time() - start:.0f}s] worst n={n:.0e} p={p:g}: {count} F values "
-                    f"in {time.time() - t0:.0f}s",
-                    flush=True,
-                )
+        for n, p in WORST_CELLS:
+            t0 = time.time()
+            rows, count = worst_cell(n, p)
+            worst.extend(rows)
+            runs.append({"n": n, "p": p, "cdf_evaluations": count})
+            print(
+                f"[{time.time() - start:.0f}s] worst n={n:.0e} p={p:g}: {count} F values "
+                f"in {time.time() - t0:.0f}s",
+                flush=True,
+            )
+            write(args.output, start, checks, points, expansion, worst, runs)
+    print(f"wrote {args.output} in {time.time() - start:.0f}s")
+    return 0
+
+
+def write(path, start, checks, points, expansion, worst, runs):
+    """Write everything computed so far (the file is complete after the last cell)."""
     import scipy
 
     payload = {
@@ -323,7 +341,7 @@ def main(argv=None):
             ),
             "search": (
                 "D sampled at k = round(mu + t sigma), t = -7..7 step 1/2; each local extreme "
-                "refined by golden section over integers to a bracket of max(3, 1e-4 sigma)"
+                "refined by golden section over the integers to a bracket of max(3, 1e-4 sigma)"
             ),
             "approximations": "mpmath formulas of build_scripts/make_reference_values.py",
             "p": "the exact binary value of the IEEE double p",
@@ -335,9 +353,7 @@ def main(argv=None):
         "worst": worst,
         "worst_runs": runs,
     }
-    write_json_atomic(args.output, payload)
-    print(f"wrote {args.output} in {time.time() - start:.0f}s")
-    return 0
+    write_json_atomic(path, payload)
 
 
 if __name__ == "__main__":
