@@ -196,9 +196,9 @@ def refine(f, a, c, stop):
     """An integer maximum of a smooth unimodal f on [a, c], by golden-section search.
 
     The search stops when the bracket is narrower than ``stop`` integers and then takes the best
-    of its ends and middle (every integer when it is at most 3 wide). D is smooth on the scale of sigma (its second difference is about
-    D / sigma^2), so with ``stop`` = sigma 1e-4 the value found is within 1e-8 of the extreme,
-    relatively.
+    of its ends and middle (every integer when it is at most 3 wide). D is smooth on the scale
+    of sigma (its second difference is about D / sigma^2), so with ``stop`` = sigma 1e-4 the
+    value found is within 1e-8 of the extreme, relatively.
     """
     golden = (mp.sqrt(5) - 1) / 2
     lo, hi = a, c

@@ -30,26 +30,34 @@ EXTREME = json.loads((DATA / "extreme_p_references.json").read_text())
 sys.path.insert(0, str(pathlib.Path(__file__).parents[1] / "build_scripts"))
 
 
-def _check(cells, label):
-    """Assert |engine - reference| <= accuracy for both metrics of every cell."""
+def _check(cells, label, search=0.0):
+    """Assert |engine - reference| <= accuracy (+ search |reference|) for every cell.
+
+    ``search`` is the relative tolerance of a reference's own search for the extremes (the
+    large-n references locate them to 1e-8 relative; the others evaluate every integer).
+    """
     worst = 0.0
     for cell in cells:
         for metric in ("interval", "cdf"):
             got, accuracy = atlas.worst_error(
                 cell["n"], cell["p"], method=cell["method"], metric=metric, return_accuracy=True
             )
-            diff = abs(got - float(cell[metric]))
-            assert diff <= accuracy, f"{label} {cell['n']} {cell['p']} {cell['method']} {metric}"
-            worst = max(worst, diff / accuracy)
+            ref = float(cell[metric])
+            diff = abs(got - ref)
+            allowed = accuracy + search * abs(ref)
+            assert diff <= allowed, f"{label} {cell['n']} {cell['p']} {cell['method']} {metric}"
+            worst = max(worst, diff / allowed)
     return worst
 
 
 def test_large_n_values_within_their_accuracy():
     # source: large_n_references.json, every method at n = 10^9, 10^10, 10^12, 10^15 and
-    # p = 0.5, 0.3, 0.001 (the cells the script completed; at least the headline ones).
+    # p = 0.5, 0.3, 0.001. The references' golden-section search locates each extreme to within
+    # 1e-4 sigma, so their values are within 1e-8 of the extremes, relatively (this matters
+    # only for poisson, whose errors are large: 0.166 at p = 0.5).
     cells = LARGE["worst"]
     assert {(c["n"], c["p"]) for c in cells} >= {(10**15, 0.3), (10**12, 0.3)}
-    _check(cells, "large n")
+    _check(cells, "large n", search=1e-8)
 
 
 def test_small_n_values_within_their_accuracy():
@@ -117,7 +125,7 @@ def test_accuracy_arrays_on_evaluate():
     assert ev.methods == ("normal_cc",)
     assert ev.interval_accuracy.shape == ev.interval.shape == (1, 2)
     assert np.all(ev.interval_accuracy == 2 * ev.cdf_accuracy)
-    assert np.all(ev.cdf_accuracy >= engine.TAIL_TOL)
+    assert np.all(ev.cdf_accuracy > 0)
 
 
 def test_return_accuracy_shapes():
