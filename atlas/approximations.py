@@ -292,9 +292,9 @@ def camp_paulson(k, n, p):
     small difference of numbers near 1; taken as written it loses log10(sigma) digits (1e-12 of
     G at n = 10^8). It is computed instead as (r^(1/3) - 1) - b r^(1/3) + a with
     r^(1/3) - 1 = expm1(log1p(u) / 3) and u = r - 1 = ((k + 1) - (n + 1) p) / (p (n - k)),
-    whose numerator is the exact offset of :func:`offset` (for r > 2, ln r is summed from the
-    logarithms of its factors, which keeps tiny p finite). Every step is then relative to its
-    result, and G is good to a few units in the last place.
+    whose numerator is the exact offset of :func:`offset` (for r > 2 or r < 1/2, ln r is summed
+    from the logarithms of its factors, which keeps tiny p and tiny q finite). Every step is
+    then relative to its result, and G is good to a few units in the last place.
 
     Examples
     --------
@@ -306,8 +306,9 @@ def camp_paulson(k, n, p):
     rest = n - kk
     with np.errstate(over="ignore"):
         u = offset(kk + 1.0, n + 1.0, p, q) / (p * rest)
-    # ln r: log1p(u) where r is near 1; from the factors where r > 2 (u may overflow for tiny p).
-    far = u > 1.0
+    # ln r: log1p(u) where r is near 1; from the factors where r > 2 or r < 1/2 (u may overflow
+    # for tiny p, or round to -1 for tiny q).
+    far = (u > 1.0) | (u < -0.5)
     log_r = np.log1p(np.where(far, 0.0, u))
     if far.any():
         log_r = np.where(far, np.log(kk + 1.0) - np.log(rest) + np.log(q) - np.log(p), log_r)

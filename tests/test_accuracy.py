@@ -178,7 +178,9 @@ def test_g_has_no_cancellation_at_large_n(method, n, p):
 @pytest.mark.parametrize(
     "method", ["camp_paulson", "peizer_pratt", "edgeworth_cc", "edgeworth2_cc"]
 )
-@pytest.mark.parametrize("p", [1e-18, 1e-83, 1e-155, 1e-206, 1e-300, 1e-308, 6e-309, 5e-324])
+@pytest.mark.parametrize(
+    "p", [1e-18, 1e-83, 1e-155, 1e-206, 1e-300, 1e-308, 6e-309, 5e-324, 1 - 1e-12, 1 - 2**-53]
+)
 def test_g_at_tiny_p(method, p):
     # source: build_scripts/make_reference_values.py formulas in mpmath (peizer_pratt with the
     # working precision raised by log10 of S/(n p)); peizer_pratt gave 0.494 at p = 1e-18 and
