@@ -251,17 +251,42 @@ def poisson(k, n, p):
     # k < 0, where the CDF is 0.
     big, small = _two_product(n[low], p[low])
     j = np.maximum(k[low], 0.0)
-    below = special.pdtr(j, big)
-    pmf = below - np.where(j > 0, special.pdtr(np.maximum(j - 1.0, 0.0), big), 0.0)
-    out[low] = np.where(k[low] < 0, 0.0, below - small * pmf)
+    below = special.pdtr(j, big) - small * _poisson_pmf(j, big)
+    out[low] = np.where(k[low] < 0, 0.0, below)
     high = ~low
     # P(Y >= n - k) = sf(n - k - 1); the count of failures has mean n q.
     big, small = _two_product(n[high], q[high])
     m = np.maximum(n[high] - k[high] - 1.0, 0.0)
-    above = special.pdtrc(m, big)
-    pmf = special.pdtr(m, big) - np.where(m > 0, special.pdtr(np.maximum(m - 1.0, 0.0), big), 0.0)
-    out[high] = np.where(n[high] - k[high] - 1.0 < 0, 1.0, above + small * pmf)
+    above = special.pdtrc(m, big) + small * _poisson_pmf(m, big)
+    out[high] = np.where(n[high] - k[high] - 1.0 < 0, 1.0, above)
     return out
+
+
+def _poisson_pmf(j, mu):
+    """Poisson pmf at integers j >= 0, to about 1e-8 relative (enough for the mean's correction).
+
+    ln pmf = -j (t - log1p(t)) - stirlerr(j) - ln(2 pi j) / 2 with t = (mu - j) / j, where
+    stirlerr(j) = ln j! - (j + 1/2) ln j + j - ln(2 pi) / 2 = 1/(12 j) - 1/(360 j^3) + ...;
+    t - log1p(t) by its series for |t| < 1e-3. Avoids ln j! of huge j, whose rounding alone
+    would be several units at j = 10^15 (Loader 2000, "Fast and accurate computation of binomial
+    probabilities").
+    """
+    j = np.asarray(j, dtype=np.float64)
+    jj = np.maximum(j, 1.0)
+    t = (mu - jj) / jj
+    small_t = np.abs(t) < 1e-3
+    ts = np.where(small_t, t, 0.0)
+    series = ts * ts * (0.5 - ts * (1.0 / 3.0 - ts * (0.25 - ts * (0.2 - ts / 6.0))))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        direct = t - np.log1p(np.where(small_t, 0.0, t))
+    gap = np.where(small_t, series, direct)
+    stirling = np.where(
+        jj >= 15,
+        1.0 / (12.0 * jj) - 1.0 / (360.0 * jj**3) + 1.0 / (1260.0 * jj**5),
+        special.gammaln(jj + 1.0) - (jj + 0.5) * np.log(jj) + jj - 0.5 * np.log(2.0 * np.pi),
+    )
+    log_pmf = -jj * gap - stirling - 0.5 * np.log(2.0 * np.pi * jj)
+    return np.where(j < 1.0, np.exp(-mu), np.exp(log_pmf))
 
 
 def _at_ends(k, n, value):

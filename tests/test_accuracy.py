@@ -87,8 +87,9 @@ def test_normal_cc_at_one_trillion_to_three_digits():
     assert atlas.is_resolved(got, accuracy)
     ref = _reference(10**12, 0.5, "normal_cc")
     got, accuracy = atlas.worst_error(10**12, 0.5, return_accuracy=True)
-    assert abs(got - ref) <= accuracy
-    assert not atlas.is_resolved(got, accuracy) or abs(got - ref) <= 1e-3 * ref
+    # the reference's own search is good to 1e-8 relative (see the large-n test above)
+    assert abs(got - ref) <= accuracy + 1e-8 * ref
+    assert not atlas.is_resolved(got, accuracy) or f"{got:.3g}" == f"{ref:.3g}"
 
 
 def test_headline_methods_resolved_at_large_n():
