@@ -14,7 +14,13 @@ from atlas.confidence import (  # noqa: E402 - numpy and scipy only, as the engi
     expected_width,
     min_coverage,
 )
-from atlas.engine import METRICS, worst_error, worst_interval  # noqa: E402
+from atlas.engine import (  # noqa: E402
+    METRICS,
+    WorstError,
+    is_resolved,
+    worst_error,
+    worst_interval,
+)
 
 _LAZY = {
     "build_atlas": "atlas.build",
@@ -65,6 +71,7 @@ __all__ = [
     "Atlas",
     "TestSize",
     "Verdict",
+    "WorstError",
     "__version__",
     "best_method_map",
     "best_size_method",
@@ -81,6 +88,7 @@ __all__ = [
     "expected_width",
     "gain_map",
     "min_coverage",
+    "is_resolved",
     "open_atlas",
     "open_coverage_cube",
     "parse_rule",

@@ -26,7 +26,15 @@ method at p != 1/2) and is exact in floating point when p > 1/2 (1 - p is then e
 import numpy as np
 from scipy import special
 
-from atlas.approximations import _moments, _offset, _phi, _pp_g, check_method
+from atlas.approximations import (
+    _moments,
+    _phi,
+    camp_paulson_score,
+    check_method,
+    offset,
+    peizer_pratt_score,
+    poisson_complement,
+)
 
 __all__ = ["approximate_upper"]
 
@@ -39,25 +47,25 @@ def _ends(k, n, value):
 
 def _normal_cc(j, n, p):
     k, n, p, q, mu, sigma = _moments(j, n, p)
-    return special.ndtr(-_offset(k + 0.5, n, p, q) / sigma)
+    return special.ndtr(-offset(k + 0.5, n, p, q) / sigma)
 
 
 def _normal(j, n, p):
     k, n, p, q, mu, sigma = _moments(j, n, p)
-    return special.ndtr(-_offset(k, n, p, q) / sigma)
+    return special.ndtr(-offset(k, n, p, q) / sigma)
 
 
 def _edgeworth_cc(j, n, p):
     # G = Phi(z) - (q - p)/(6 sigma) (z^2 - 1) phi(z), so 1 - G = Phi(-z) + the same term.
     k, n, p, q, mu, sigma = _moments(j, n, p)
-    z = _offset(k + 0.5, n, p, q) / sigma
+    z = offset(k + 0.5, n, p, q) / sigma
     return special.ndtr(-z) + (q - p) / (6.0 * sigma) * (z * z - 1.0) * _phi(z)
 
 
 def _edgeworth2_cc(j, n, p):
     # The complement of atlas.approximations.edgeworth2_cc, term by term.
     k, n, p, q, mu, sigma = _moments(j, n, p)
-    z = _offset(k + 0.5, n, p, q) / sigma
+    z = offset(k + 0.5, n, p, q) / sigma
     z2 = z * z
     g1 = (q - p) / sigma
     g2 = (1.0 - 6.0 * p * q) / (sigma * sigma)
@@ -72,42 +80,20 @@ def _edgeworth2_cc(j, n, p):
     )
 
 
-def _poisson(j, n, p):
-    k, n, p, q, mu, sigma = np.broadcast_arrays(*_moments(j, n, p))
-    out = np.empty(k.shape)
-    low = p <= 0.5
-    # G(j) = P(Y <= j), Y ~ Poisson(n p): 1 - G(j) = P(Y > j) = pdtrc(j, mu); G(-1) = 0.
-    jl = k[low]
-    out[low] = np.where(jl < 0, 1.0, special.pdtrc(np.maximum(jl, 0.0), mu[low]))
-    high = ~low
-    # G(j) = P(Y >= n - j), Y ~ Poisson(n q): 1 - G(j) = P(Y <= n - j - 1); 0 when n - j <= 0.
-    m = n[high] - k[high] - 1.0
-    out[high] = np.where(m < 0, 0.0, special.pdtr(np.maximum(m, 0.0), (n * q)[high]))
-    return out
-
-
 def _camp_paulson(j, n, p):
-    # The score of atlas.approximations.camp_paulson; 1 - Phi(w) = Phi(-w).
-    k, n, p, q, mu, sigma = _moments(j, n, p)
-    kk = np.clip(k, 0.0, n - 1.0)
-    r3 = np.cbrt((kk + 1.0) * q / (p * (n - kk)))
-    a = 1.0 / (9.0 * (n - kk))
-    b = 1.0 / (9.0 * (kk + 1.0))
-    value = special.ndtr(-((1.0 - b) * r3 - (1.0 - a)) / np.sqrt(b * r3 * r3 + a))
-    return _ends(k + 1.0, n, value)
+    # 1 - Phi(w) = Phi(-w), w the score of atlas.approximations.camp_paulson.
+    k = np.asarray(j, dtype=np.float64)
+    return _ends(
+        k + 1.0, np.asarray(n, dtype=np.float64), special.ndtr(-camp_paulson_score(j, n, p))
+    )
 
 
 def _peizer_pratt(j, n, p):
-    # The score z' of atlas.approximations.peizer_pratt; 1 - Phi(z') = Phi(-z').
-    k, n, p, q, mu, sigma = _moments(j, n, p)
-    kk = np.clip(k, 0.0, n - 1.0)
-    s = kk + 0.5
-    t = n - kk - 0.5
-    centre = _offset(kk, n, p, q) + (2.0 / 3.0 - p / 3.0)
-    d = centre + 0.02 * (q / (kk + 1.0) - p / (n - kk) + (q - 0.5) / (n + 1.0))
-    spread = (1.0 + q * _pp_g(s / mu) + p * _pp_g(t / (n * q))) / ((n + 1.0 / 6.0) * p * q)
-    value = special.ndtr(-d * np.sqrt(spread))
-    return _ends(k + 1.0, n, value)
+    # 1 - Phi(z') = Phi(-z'), z' the score of atlas.approximations.peizer_pratt.
+    k = np.asarray(j, dtype=np.float64)
+    return _ends(
+        k + 1.0, np.asarray(n, dtype=np.float64), special.ndtr(-peizer_pratt_score(j, n, p))
+    )
 
 
 _COMPLEMENTS = {
@@ -115,7 +101,7 @@ _COMPLEMENTS = {
     "edgeworth_cc": _edgeworth_cc,
     "edgeworth2_cc": _edgeworth2_cc,
     "normal": _normal,
-    "poisson": _poisson,
+    "poisson": poisson_complement,
     "camp_paulson": _camp_paulson,
     "peizer_pratt": _peizer_pratt,
 }

@@ -17,28 +17,66 @@ How the extremes are found, and why it is exact
    tails (each is a normal or Poisson CDF there, or a Hermite polynomial times phi beyond its last
    turning point, which lies below |z| = 3). Both bounds are computed for every cell and must be
    below ``TAIL_TOL`` = 1e-17; so the omitted k change neither metric by more than 1e-17.
-2. *Narrow windows* (at most ``FULL_LIMIT`` integers) are evaluated at every integer, many p at
-   once: F from the binomial pmf summed upward from F(lo - 1).
-3. *Wide windows* (large sigma) use a nested search. D is sampled every sigma/4 within 4 sigma
-   of the mean and every sigma/2 beyond: to leading orders every method's D is a sum of Hermite
-   polynomials times phi, smooth on the scale of sigma, whose turning points lie within about
-   4.2 sigma. The three best local maxima of the samples (and of -D) are bracketed by their
-   neighbouring samples; candidates that cannot beat the best sample by their curvature are
-   dropped; a bracket wider than ``FULL_LIMIT`` is resampled and narrowed; and every integer of
-   the final brackets is evaluated, F summed from one incomplete-beta value by the pmf ratio
-   recurrence. The test suite checks the search against every-integer evaluation of the same
-   windows.
+2. *Narrow windows* (at most ``FULL_LIMIT`` integers, so sigma below about 113) are evaluated at
+   every integer, many p at once: F from Boost's incomplete beta at lo - 1 (``scipy.stats.binom``)
+   and the binomial pmf summed upward from there.
+3. *Wide windows* (larger sigma) use a nested search on D computed from the lattice Edgeworth
+   expansion of F (:mod:`atlas.asymptotic`), not from Boost, whose absolute error grows like
+   sqrt(n) (table below) and reaches the size of the errors measured. D is sampled every
+   sigma/4 within 4 sigma of the mean and every sigma/2 beyond: every method's D is a sum of
+   Hermite polynomials times phi, smooth on the scale of sigma, whose turning points lie within
+   about 4.2 sigma. The three best local maxima of the samples (and of -D) are bracketed by
+   their neighbouring samples; candidates that cannot beat the best sample by their curvature
+   are dropped; a bracket wider than ``BRACKET_LIMIT`` integers is resampled and narrowed; and
+   every integer of the final brackets is evaluated. The test suite checks the search against
+   every-integer evaluation of the same windows.
 
-F comes from ``scipy.stats.binom`` (Boost's incomplete beta), which agrees with a 40-digit mpmath
-sum to 2.5e-14 at n = 10^6 and 1.6e-13 at n = 10^8 (k near the mean); ``scipy.special.bdtr``
-is not used, as it loses up to 0.1 there.
+Accuracy
+--------
+Every value comes with a bound on its absolute error (``Evaluation.interval_accuracy`` and
+``cdf_accuracy``; ``worst_error(..., return_accuracy=True)``). For the computed D at each k,
+
+    |D computed - D| <= eps_F + eps_G,
+
+and the metrics inherit 2 (eps_F + eps_G) for ``interval`` (a difference of two values of D)
+and eps_F + eps_G for ``cdf``, plus what the omitted tails (|D| <= TAIL_TOL there) could add:
+max(0, TAIL_TOL - max D) + max(0, TAIL_TOL + min D) for ``interval``, max(0, TAIL_TOL - max |D|)
+for ``cdf``, nothing once the extremes exceed 1e-17. The search finds the exact integer
+extremes of the computed D, so it adds nothing. The terms:
+
+- eps_F, narrow windows: 2e-15 + 1e-16 sigma. Measured against 50-digit mpmath sums, the summed
+  F errs by at most 4.0e-15 (sigma = 104, n = 52,000, p = 0.3), 3.0e-15 (sigma = 100 at
+  n = 10^8, 10^12, 10^15 with small p) and 2.7e-16 (sigma = 10, n = 10^15), 2.5 to 3 times less.
+- eps_F, wide windows: :func:`atlas.asymptotic.remainder_bound` at the order used (4 to 6, by
+  sigma: see :func:`_orders`): 4 times the largest size of the next two terms. Measured against
+  the mpmath Beta-integral values of ``tests/data/large_n_references.json`` at sigma = 30 to
+  10^4, the remainder of the expansion is at most 1.6 times its first omitted term. The bound is
+  below 2e-16 for every wide window and below 1e-19 from sigma = 400.
+- eps_G: the rounding of G, 1e-15 (the largest difference from the mpmath formulas measured
+  over n = 1 to 10^15 and p down to 5e-324 is 7.8e-16, ``tests/test_approximations.py``), twice
+  that in wide windows for the methods outside the normal family, where D = (Phi(z) - G) + series.
+  For ``normal_cc``, ``edgeworth_cc`` and ``edgeworth2_cc`` in wide windows D is the tail of the
+  series itself, with no G subtracted, and eps_G is 64 units in the last place of max |D|.
+
+Boost's absolute error in F near the mean (largest over p = 0.5, 0.3, 0.001, 1e-6 and
+z = -3..3; ``build_scripts/make_large_n_references.py``), the reason for the expansion:
+
+    n      10^6     10^8     10^9     10^10    10^12    10^13    10^14    10^15
+    error  2.5e-14  1.6e-13  6.4e-13  2.6e-12  2.6e-11  6.4e-11  1.6e-10  6.5e-10
+
+A value is resolved (:func:`is_resolved`) when it exceeds ``RESOLUTION_FACTOR`` = 3 times its
+accuracy; otherwise it is only known to be below error + accuracy.
 """
 
+import numbers
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
+from scipy import special
 
-from atlas.approximations import METHODS, approximate_cdf, check_method
+from atlas import asymptotic
+from atlas.approximations import METHODS, approximate_cdf, check_method, offset
 
 try:
     # The ufuncs behind scipy.stats.binom (Boost's incomplete beta), called directly to skip the
@@ -54,6 +92,7 @@ METRICS = ("interval", "cdf")
 
 TAIL_TOL = 1e-17
 FULL_LIMIT = 2048
+BRACKET_LIMIT = 64
 _START_SIGMAS = 9.0
 _START_MARGIN = 10.0
 _CORE_SIGMAS = 4.0
@@ -75,6 +114,9 @@ class Evaluation:
         float64 arrays of shape (len(methods), len(p)).
     lo, hi : numpy.ndarray
         int64 arrays of the same shape: the worst interval [a, b] for the interval metric.
+    interval_accuracy, cdf_accuracy : numpy.ndarray
+        float64 arrays of the same shape: bounds on the absolute error of ``interval`` and
+        ``cdf`` as computed (see :func:`accuracy_model`).
     """
 
     methods: tuple
@@ -82,19 +124,49 @@ class Evaluation:
     cdf: np.ndarray
     lo: np.ndarray
     hi: np.ndarray
+    interval_accuracy: np.ndarray
+    cdf_accuracy: np.ndarray
 
 
 N_MAX = 10**15
 
 
+def _real_array(value, name, what):
+    """``value`` as a numpy array of real numbers, or TypeError naming ``name``.
+
+    Strings, bytes, booleans and complex numbers are refused rather than converted: numpy would
+    parse '0.3', drop the imaginary part of 0.3+1j and read True as 1.
+    """
+    arr = np.asarray(value)
+    if arr.dtype.kind == "O":  # e.g. Fraction or Decimal objects: real numbers are accepted
+        flat = arr.ravel().tolist()
+        if all(isinstance(x, numbers.Real) and not isinstance(x, bool) for x in flat):
+            return np.array(flat, dtype=np.float64).reshape(arr.shape)
+    if arr.dtype.kind not in "iuf":
+        bad = value
+        if arr.ndim:  # name the first element that is not a real number
+            items = np.asarray(value, dtype=object).ravel()
+            bad = next(
+                (x for x in items if not isinstance(x, numbers.Real) or isinstance(x, bool)),
+                items[0],
+            )
+        raise TypeError(f"`{name}` must be {what}; got {_show(bad)}.")
+    return arr
+
+
 def check_n(n):
-    """Return ``n`` as an int64 array, or raise ValueError naming the bad value."""
+    """Return ``n`` as an int64 array, or raise naming the bad value.
+
+    Raises
+    ------
+    TypeError
+        For strings, booleans, complex numbers and other non-numbers.
+    ValueError
+        For numbers that are not integers from 1 to N_MAX.
+    """
     if type(n) is int and 1 <= n <= N_MAX:  # the common scalar case, without numpy's checks
         return np.int64(n)
-    arr = np.asarray(n)
-    numeric = np.issubdtype(arr.dtype, np.integer) or np.issubdtype(arr.dtype, np.floating)
-    if arr.dtype == bool or not numeric:
-        raise ValueError(f"`n` must be an integer >= 1; got {_show(n)}.")
+    arr = _real_array(n, "n", "an integer >= 1")
     flat = arr.ravel().astype(np.float64)
     bad = ~np.isfinite(flat) | (flat < 1) | (flat != np.round(flat)) | (flat > N_MAX)
     if bad.any():
@@ -106,13 +178,18 @@ def check_n(n):
 
 
 def check_p(p):
-    """Return ``p`` as a float64 array, or raise ValueError naming the bad value."""
+    """Return ``p`` as a float64 array, or raise naming the bad value.
+
+    Raises
+    ------
+    TypeError
+        For strings, booleans, complex numbers and other non-numbers.
+    ValueError
+        For numbers outside the open interval (0, 1), and NaN.
+    """
     if type(p) is float and 0.0 < p < 1.0:
         return np.float64(p)
-    try:
-        arr = np.asarray(p, dtype=np.float64)
-    except (TypeError, ValueError):
-        raise ValueError(f"`p` must be in the open interval (0, 1); got {_show(p)}.") from None
+    arr = _real_array(p, "p", "in the open interval (0, 1)").astype(np.float64)
     flat = arr.ravel()
     bad = ~((flat > 0.0) & (flat < 1.0))
     if bad.any():
@@ -184,21 +261,53 @@ def _windows(n, p, methods):
     return lo, hi, ends
 
 
-def _deviation(k, n, p, method, sign):
-    """sign * D(k) = sign * (F(k) - G(k)) for integer arrays k, with p broadcast against k."""
-    return sign * (_binom_cdf(k, n, p) - approximate_cdf(k, n, p, method))
+_SQRT_2PI = np.sqrt(2.0 * np.pi)
+_NORMAL_FAMILY = {"normal_cc": 1, "edgeworth_cc": 2, "edgeworth2_cc": 3}
 
 
-def _cdf_rows(n, p, lo, hi, *, recurrence=False):
+def _series_coefficients(n, p, method, order):
+    """Hermite coefficients of the part of F - G that the series gives, one row per p.
+
+    Shape (len(p), 1, 3 order), ready to broadcast against (len(p), points) arrays of k.
+    """
+    sigma = np.sqrt(n * p * (1.0 - p))
+    first = _NORMAL_FAMILY.get(method, 1)
+    return asymptotic.coefficients(sigma, p, first, order)[:, None, :]
+
+
+def _deviation(k, n, p, method, gamma):
+    """D(k) = F(k) - G(k) from the asymptotic expansion of F (wide windows), p broadcast to k.
+
+    ``gamma`` holds the rows' coefficients from :func:`_series_coefficients`. For the normal
+    family G is Phi(z) minus the first terms of the same expansion, so D is the rest of the
+    series, computed directly: -phi(z) sum_{e = first}^{order} sigma^-e P_e(z), relative to its
+    own size. For the other methods D = (Phi(z) - G) - phi(z) sum_{e=1}^{order} sigma^-e P_e(z).
+    """
+    q = 1.0 - p
+    sigma = np.sqrt(n * p * q)
+    z = offset(k.astype(np.float64) + 0.5, np.float64(n), p, q) / sigma
+    tail = -np.exp(-0.5 * z * z) / _SQRT_2PI * asymptotic.hermite_sum(z, gamma)
+    if method in _NORMAL_FAMILY:
+        return tail
+    return (special.ndtr(z) - approximate_cdf(k, n, p, method)) + tail
+
+
+def _orders(sigma):
+    """The order of the expansion for each sigma: the remainder falls below about 1e-20.
+
+    The first omitted term is about sigma^-(order+1) times coefficients below 0.05 (see
+    :func:`atlas.asymptotic.remainder_bound`, which states the bound actually used). At least
+    order 4, so that the D of ``edgeworth2_cc`` (from order 3 on) has two terms.
+    """
+    sigma = np.asarray(sigma)
+    return np.select([sigma >= 1e4, sigma >= 400], [4, 5], asymptotic.ORDER)
+
+
+def _cdf_rows(n, p, lo, hi):
     """F(k) at every integer of [lo_r, hi_r] for each row r, padded to a rectangle.
 
     F is summed upward from F(lo - 1): one incomplete-beta call per row and one pmf per integer,
-    since the pmf costs a few per cent of a CDF call near the mean at large n. With
-    ``recurrence`` the pmf after the first of each row comes from the ratio
-    pmf(k + 1) / pmf(k) = (n - k) p / ((k + 1) q), each ratio rounded independently, so the
-    relative error of the j-th value grows like sqrt(j) ulps (below 1e-14 for the 2048 values
-    of the widest bracket); rows whose first pmf is below 1e-280 use the direct pmf, so that
-    nothing underflows.
+    since the pmf costs a few per cent of a CDF call near the mean at large n.
 
     Returns
     -------
@@ -209,18 +318,21 @@ def _cdf_rows(n, p, lo, hi, *, recurrence=False):
     k = lo[:, None] + np.arange(width)[None, :]
     valid = k <= hi[:, None]
     k = np.minimum(k, hi[:, None])
-    pcol = p[:, None]
-    if recurrence:
-        first = _binom_pmf(lo, n, p)
-        kf = k[:, :-1].astype(np.float64)
-        ratio = ((n - kf) * pcol) / ((kf + 1.0) * (1.0 - pcol))
-        pmf = np.cumprod(np.concatenate([first[:, None], ratio], axis=1), axis=1)
-        tiny = first < 1e-280
-        if tiny.any():
-            pmf[tiny] = _binom_pmf(k[tiny], n, pcol[tiny])
-        pmf = np.where(valid, pmf, 0.0)
-    else:
-        pmf = np.where(valid, _binom_pmf(k, n, pcol), 0.0)
+    # Mean below 1 (so lo = 0): pmf(0) = exp(n log1p(-p)) and the ratio recurrence
+    # pmf(k + 1) = pmf(k) (n - k) p / ((k + 1) q). Boost's pmf errs by up to 5e-14 at k = 0 for
+    # p below 1e-200 and overflows inside ibeta_derivative near p = 1e-308; the recurrence
+    # multiplies a few rounded ratios onto terms that fall off at least like mu^k / k!.
+    small = n * p < 1.0
+    pmf = np.empty(k.shape)
+    if small.any():
+        ps = p[small][:, None]
+        kf = k[small][:, :-1].astype(np.float64)
+        ratio = ((n - kf) * ps) / ((kf + 1.0) * (1.0 - ps))
+        first = np.exp(n * np.log1p(-ps))
+        pmf[small] = np.cumprod(np.concatenate([first, ratio], axis=1), axis=1)
+    if not small.all():
+        pmf[~small] = _binom_pmf(k[~small], n, p[~small][:, None])
+    pmf = np.where(valid, pmf, 0.0)
     start = np.where(lo > 0, _binom_cdf(lo - 1, n, p), 0.0)
     return k, valid, start[:, None] + np.cumsum(pmf, axis=1)
 
@@ -272,11 +384,15 @@ def _nested_search(n, p, lo, hi, methods):
     c_lo = _sample_coordinate((lo - mu) / sigma)
     c_hi = _sample_coordinate((hi - mu) / sigma)
     counts = np.minimum(np.maximum(np.ceil(c_hi - c_lo), 32), 8192).astype(np.int64) + 1
-    if counts.size > 1 and (counts != counts[0]).any():
+    # Rows are grouped by sample count and by the order of the expansion, both functions of the
+    # row alone.
+    orders = _orders(sigma)
+    key = counts * 16 + orders
+    if key.size > 1 and (key != key[0]).any():
         shape = (len(methods), p.size)
         out = _extremes(shape)
-        for c in np.unique(counts):
-            rows = counts == c
+        for c in np.unique(key):
+            rows = key == c
             got = _nested_search(n, p[rows], lo[rows], hi[rows], methods)
             for whole, part in zip(out, got, strict=True):
                 whole[:, rows] = part
@@ -287,21 +403,23 @@ def _nested_search(n, p, lo, hi, methods):
     coarse = np.round(mu[:, None] + sigma[:, None] * t).astype(np.int64)
     coarse = np.minimum(np.maximum(coarse, lo[:, None]), hi[:, None])
     pcol = p[:, None]
-    coarse_cdf = _binom_cdf(coarse, n, pcol)
+    order = int(orders[0])
     shape = (len(methods), p.size)
     out = _extremes(shape)
     p2 = np.concatenate([p, p])
     coarse2 = np.concatenate([coarse, coarse])
     for i, method in enumerate(methods):
-        d = coarse_cdf - approximate_cdf(coarse, n, pcol, method)
+        gamma = _series_coefficients(n, p, method, order)
+        d = _deviation(coarse, n, pcol, method, gamma)
         # Maxima of D and maxima of -D (the minima of D) are refined together.
-        value, where = _refine(n, p2, coarse2, np.concatenate([d, -d]), method)
+        gamma2 = np.concatenate([gamma, gamma])
+        value, where = _refine(n, p2, coarse2, np.concatenate([d, -d]), method, gamma2)
         out[0][i], out[1][i] = value[: p.size], where[: p.size]
         out[2][i], out[3][i] = -value[p.size :], where[p.size :]
     return out
 
 
-def _refine(n, p, coarse, sd, method):
+def _refine(n, p, coarse, sd, method, gamma):
     """Refine the best local maxima of sampled s D to the exact integer maximum of s D.
 
     Rows of ``sd`` hold s D on the ``coarse`` points, with s = +1 for the first half of the rows
@@ -334,19 +452,23 @@ def _refine(n, p, coarse, sd, method):
     lower = coarse[row_idx, np.maximum(idx - 1, 0)]
     upper = coarse[row_idx, np.minimum(idx + 1, count - 1)]
     prow = p[row_idx]
+    grow = gamma[row_idx]
     srow = sign[row_idx][:, None]
     steps = np.linspace(0.0, 1.0, _REFINE_POINTS)
-    while (upper - lower >= FULL_LIMIT).any():
-        wide = np.flatnonzero(upper - lower >= FULL_LIMIT)
+    while (upper - lower >= BRACKET_LIMIT).any():
+        wide = np.flatnonzero(upper - lower >= BRACKET_LIMIT)
         span = (upper[wide] - lower[wide]).astype(np.float64)
         pts = np.round(lower[wide][:, None] + steps[None, :] * span[:, None]).astype(np.int64)
-        vals = _deviation(pts, n, prow[wide][:, None], method, srow[wide])
+        vals = srow[wide] * _deviation(pts, n, prow[wide][:, None], method, grow[wide])
         j = np.argmax(vals, axis=1)
         h = np.arange(wide.size)
         lower[wide] = pts[h, np.maximum(j - 1, 0)]
         upper[wide] = pts[h, np.minimum(j + 1, _REFINE_POINTS - 1)]
-    k, valid, cdf = _cdf_rows(n, prow, lower, upper, recurrence=True)
-    vals = np.where(valid, srow * (cdf - approximate_cdf(k, n, prow[:, None], method)), -np.inf)
+    width = int((upper - lower).max()) + 1
+    k = lower[:, None] + np.arange(width)[None, :]
+    valid = k <= upper[:, None]
+    k = np.minimum(k, upper[:, None])
+    vals = np.where(valid, srow * _deviation(k, n, prow[:, None], method, grow), -np.inf)
     j = np.argmax(vals, axis=1)
     h = np.arange(j.size)
     value = np.full((rows, take), -np.inf)
@@ -366,18 +488,22 @@ def evaluate(n, p, *, methods=METHODS, full=False):
         Number of trials, n >= 1.
     p : array_like of float
         One-dimensional success probabilities, each 0 < p < 1.
-    methods : sequence of str, optional
-        Methods from :data:`atlas.METHODS`; all of them by default.
+    methods : str or sequence of str, optional
+        Methods from :data:`atlas.METHODS` (a single name counts as one method); all of them by
+        default.
     full : bool, optional
         Evaluate every integer of the window even when it is wide (slow; for checking the search).
 
     Returns
     -------
     Evaluation
-        Arrays of shape (len(methods), len(p)).
+        Arrays of shape (len(methods), len(p)), each error with its accuracy (see the module
+        notes, "Accuracy").
 
     Raises
     ------
+    TypeError
+        For n or p that are not real numbers (strings, complex numbers, booleans).
     ValueError
         For n that is not an integer >= 1, p outside (0, 1), or an unknown method.
 
@@ -398,6 +524,8 @@ def evaluate(n, p, *, methods=METHODS, full=False):
     p = np.atleast_1d(check_p(p)).astype(np.float64)
     if p.ndim != 1:
         raise ValueError(f"`p` must be one-dimensional here; got shape {p.shape}.")
+    if isinstance(methods, str):  # one method named on its own, not a sequence of letters
+        methods = (methods,)
     return _evaluate(int(n_arr), p, tuple(check_method(m) for m in methods), full)
 
 
@@ -433,10 +561,45 @@ def _evaluate(n, p, methods, full=False):
         first, last = np.minimum(hi_k, lo_k), np.maximum(hi_k, lo_k)
         a[i] = np.where(first == last, np.minimum(np.maximum(first, 0), n), first + 1)
         b[i] = np.where(first == last, np.minimum(np.maximum(last, 0), n), last)
-    return Evaluation(methods, interval, cdf, a, b)
+    size = np.maximum(np.abs(dmax), np.abs(dmin))
+    d_accuracy = _deviation_accuracy(n, p, methods, narrow, size)
+    # The omitted tails hold |D| <= TAIL_TOL: they can raise max D only where it is below
+    # TAIL_TOL, and lower min D only where it is above -TAIL_TOL.
+    tails = np.maximum(TAIL_TOL - dmax, 0.0) + np.maximum(TAIL_TOL + dmin, 0.0)
+    interval_accuracy = 2.0 * d_accuracy + tails
+    cdf_accuracy = d_accuracy + np.maximum(TAIL_TOL - size, 0.0)
+    return Evaluation(methods, interval, cdf, a, b, interval_accuracy, cdf_accuracy)
 
 
-def evaluate_cells(n, p, method):
+# The accuracy model (the module notes, "Accuracy", state it and the measurements behind it).
+G_ROUNDING = 1e-15
+_SUM_ERROR = (2e-15, 1e-16)
+_SERIES_ROUNDING = 64 * np.finfo(np.float64).eps
+
+
+def _deviation_accuracy(n, p, methods, narrow, size):
+    """Bound on |D computed - D| at every k, shape (len(methods), len(p)): the module notes."""
+    sigma = np.sqrt(n * p * (1.0 - p))
+    f_error = np.empty(p.size)
+    f_error[narrow] = _SUM_ERROR[0] + _SUM_ERROR[1] * sigma[narrow]
+    wide = np.flatnonzero(~narrow)
+    if wide.size:
+        orders = _orders(sigma[wide])
+        for order in np.unique(orders):
+            rows = wide[orders == order]
+            f_error[rows] = asymptotic.remainder_bound(sigma[rows], p[rows], int(order))
+    out = np.empty((len(methods), p.size))
+    for i, method in enumerate(methods):
+        # Wide windows, normal family: D is the series itself, rounded relative to its size;
+        # otherwise G (and Phi(z)) are rounded absolutely.
+        g_error = np.where(narrow, G_ROUNDING, 2.0 * G_ROUNDING)
+        if method in _NORMAL_FAMILY:
+            g_error = np.where(narrow, G_ROUNDING, _SERIES_ROUNDING * size[i])
+        out[i] = f_error + g_error
+    return out
+
+
+def evaluate_cells(n, p, method, *, accuracy=False):
     """Errors of one method at cells given as flat arrays of n and p, in any order.
 
     Cells are grouped by n and each distinct (n, p) is computed once, with the p of one n in
@@ -450,14 +613,16 @@ def evaluate_cells(n, p, method):
         Checked p of the cells, the same length.
     method : str
         A checked method name.
+    accuracy : bool, optional
+        Also return the accuracy of ``interval`` and of ``cdf``.
 
     Returns
     -------
     tuple of numpy.ndarray
-        ``interval``, ``cdf``, ``lo``, ``hi`` for each cell, in the cells' order.
+        ``interval``, ``cdf``, ``lo``, ``hi`` for each cell, in the cells' order; with
+        ``accuracy``, then ``interval_accuracy`` and ``cdf_accuracy``.
     """
-    interval, cdf = np.empty(n.size), np.empty(n.size)
-    a, b = np.empty(n.size, np.int64), np.empty(n.size, np.int64)
+    kinds = (float, float, np.int64, np.int64, float, float)
     order = np.lexsort((p, n))
     n_sorted, p_sorted = n[order], p[order]
     # Starts of runs of equal (n, p), and starts of runs of equal n among them.
@@ -467,37 +632,82 @@ def evaluate_cells(n, p, method):
     firsts = np.flatnonzero(new_cell)
     cell_n, cell_p = n_sorted[firsts], p_sorted[firsts]
     bounds = np.flatnonzero(np.r_[True, cell_n[1:] != cell_n[:-1], True])
-    results = [np.empty(firsts.size), np.empty(firsts.size)]
-    results += [np.empty(firsts.size, np.int64), np.empty(firsts.size, np.int64)]
+    results = [np.empty(firsts.size, kind) for kind in kinds]
     for start, stop in zip(bounds[:-1], bounds[1:], strict=True):
         ev = _evaluate(int(cell_n[start]), cell_p[start:stop], (method,))
-        for whole, part in zip(results, (ev.interval, ev.cdf, ev.lo, ev.hi), strict=True):
+        parts = (ev.interval, ev.cdf, ev.lo, ev.hi, ev.interval_accuracy, ev.cdf_accuracy)
+        for whole, part in zip(results, parts, strict=True):
             whole[start:stop] = part[0]
-    for out, values in zip((interval, cdf, a, b), results, strict=True):
-        out[order] = values[cell_of]
-    return interval, cdf, a, b
+    out = [np.empty(n.size, kind) for kind in kinds]
+    for whole, values in zip(out, results, strict=True):
+        whole[order] = values[cell_of]
+    return tuple(out) if accuracy else tuple(out[:4])
 
 
 def _broadcast_evaluate(n, p, method):
-    """Evaluate one method over broadcast n and p."""
+    """Evaluate one method over broadcast n and p: interval, cdf, lo, hi and the accuracies."""
     n_arr = check_n(n)
     p_arr = check_p(p)
     method = check_method(method)
     if n_arr.ndim == 0 and p_arr.ndim == 0:  # one cell: skip the grouping
         ev = _evaluate(int(n_arr), p_arr.reshape(1).astype(np.float64), (method,))
-        return tuple(np.asarray(x[0, 0]) for x in (ev.interval, ev.cdf, ev.lo, ev.hi))
+        parts = (ev.interval, ev.cdf, ev.lo, ev.hi, ev.interval_accuracy, ev.cdf_accuracy)
+        return tuple(np.asarray(x[0, 0]) for x in parts)
     n_b, p_b = np.broadcast_arrays(n_arr, p_arr)
-    flat = evaluate_cells(n_b.ravel(), p_b.ravel().astype(np.float64), method)
+    if n_b.size == 0:  # empty input: empty results of the broadcast shape
+        kinds = (float, float, np.int64, np.int64, float, float)
+        return tuple(np.empty(n_b.shape, kind) for kind in kinds)
+    flat = evaluate_cells(n_b.ravel(), p_b.ravel().astype(np.float64), method, accuracy=True)
     return tuple(x.reshape(n_b.shape) for x in flat)
 
 
-def worst_error(n, p, *, method="normal_cc", metric="interval"):
+class WorstError(NamedTuple):
+    """A worst-case error with the bound on its absolute error (see :func:`worst_error`)."""
+
+    error: float | np.ndarray
+    accuracy: float | np.ndarray
+
+
+RESOLUTION_FACTOR = 3.0
+
+
+def is_resolved(error, accuracy, *, factor=RESOLUTION_FACTOR):
+    """Whether an error is resolved: larger than ``factor`` times its accuracy.
+
+    An error that is not resolved is below the resolution of the computation: its true value
+    lies in [error - accuracy, error + accuracy], which is no better than "less than
+    error + accuracy", and should be reported that way, never as a precise number.
+
+    Parameters
+    ----------
+    error, accuracy : float or array_like
+        A worst-case error and its accuracy, e.g. from ``worst_error(...,
+        return_accuracy=True)``.
+    factor : float, optional
+        How many times its accuracy the error must exceed; default 3.
+
+    Returns
+    -------
+    bool or numpy.ndarray of bool
+
+    Examples
+    --------
+    >>> is_resolved(*worst_error(10**6, 0.3, return_accuracy=True))
+    True
+    >>> is_resolved(*worst_error(10**15, 0.5, method="camp_paulson", return_accuracy=True))
+    False
+    """
+    out = np.asarray(error) > factor * np.asarray(accuracy)
+    return bool(out) if out.ndim == 0 else out
+
+
+def worst_error(n, p, *, method="normal_cc", metric="interval", return_accuracy=False):
     """Exact worst-case error of an approximation to Bin(n, p).
 
     Parameters
     ----------
     n : int or array_like of int
-        Number of trials, n >= 1.
+        Number of trials, 1 <= n <= 10^15.
     p : float or array_like of float
         Success probability, 0 < p < 1. Broadcast against ``n``.
     method : str, optional
@@ -505,16 +715,25 @@ def worst_error(n, p, *, method="normal_cc", metric="interval"):
     metric : {"interval", "cdf"}, optional
         ``"interval"`` (default): the largest error of any interval probability P(a <= X <= b);
         ``"cdf"``: the largest error of P(X <= k).
+    return_accuracy : bool, optional
+        Return a :class:`WorstError` ``(error, accuracy)`` instead of the error alone.
 
     Returns
     -------
-    float or numpy.ndarray
-        A float for scalar inputs, else an array of the broadcast shape.
+    float or numpy.ndarray or WorstError
+        A float for scalar inputs, else an array of the broadcast shape (empty for empty
+        input). With ``return_accuracy``, the pair (error, accuracy) of such values: the
+        computed error differs from the exact one by at most ``accuracy`` (see the module
+        notes, "Accuracy", for the basis), and :func:`is_resolved` says whether it is
+        meaningful as a number.
 
     Raises
     ------
+    TypeError
+        If n or p is not a real number (a string, a complex number, a boolean).
     ValueError
-        If n is not an integer >= 1, p is outside (0, 1) or NaN, or method or metric is unknown.
+        If n is not an integer from 1 to 10^15, p is outside (0, 1) or NaN, or method or
+        metric is unknown.
 
     Notes
     -----
@@ -526,11 +745,16 @@ def worst_error(n, p, *, method="normal_cc", metric="interval"):
     0.005372
     >>> worst_error([10, 20], [[0.5], [0.1]]).shape
     (2, 2)
+    >>> error, accuracy = worst_error(10**12, 0.3, return_accuracy=True)
+    >>> f"{error:.4g}", accuracy < 1e-15
+    ('8.394e-08', True)
     """
     check_metric(metric)
-    interval, cdf, _, _ = _broadcast_evaluate(n, p, method)
-    out = interval if metric == "interval" else cdf
-    return float(out) if out.ndim == 0 else out
+    interval, cdf, _, _, interval_acc, cdf_acc = _broadcast_evaluate(n, p, method)
+    out, acc = (interval, interval_acc) if metric == "interval" else (cdf, cdf_acc)
+    if out.ndim == 0:
+        out, acc = float(out), float(acc)
+    return WorstError(out, acc) if return_accuracy else out
 
 
 def worst_interval(n, p, *, method="normal_cc"):
@@ -558,7 +782,7 @@ def worst_interval(n, p, *, method="normal_cc"):
     >>> worst_interval(10, 0.5)
     (2, 8)
     """
-    _, _, a, b = _broadcast_evaluate(n, p, method)
+    _, _, a, b, _, _ = _broadcast_evaluate(n, p, method)
     if a.ndim == 0:
         return int(a), int(b)
     return a, b

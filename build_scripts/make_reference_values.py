@@ -106,6 +106,8 @@ def nstr(x, digits=SIG_DIGITS):
 
 
 def _phi_cdf(x):
+    if abs(x) > 10**6:  # mpmath's erfc overflows for huge arguments; Phi is 0 or 1 there
+        return mpf(0) if x < 0 else mpf(1)
     return mp.erfc(-x / mp.sqrt(2)) / 2
 
 
@@ -140,7 +142,7 @@ def normal_family(k, c):
     edgeworth2_cc = edgeworth_cc - phi(z) [g2/24 He3(z) + g1^2/72 He5(z)] + z phi(z)/(24 sigma^2).
     """
     z = (k + mpf("0.5") - c.mu) / c.sigma
-    big_phi = mp.erfc(-z / c.sqrt2) / 2
+    big_phi = _phi_cdf(z)
     small_phi = mp.exp(-z * z / 2) * c.inv_sqrt2pi
     z2 = z * z
     e1 = big_phi - c.g1 / 6 * (z2 - 1) * small_phi
@@ -156,7 +158,7 @@ def normal_family(k, c):
 
 def normal_plain(k, c):
     """Phi((k - mu)/sigma), no continuity correction."""
-    return mp.erfc(-((k - c.mu) / c.sigma) / c.sqrt2) / 2
+    return _phi_cdf((k - c.mu) / c.sigma)
 
 
 def camp_paulson(k, c):
@@ -204,7 +206,10 @@ def peizer_pratt(k, c):
         - (n + mpf(1) / 3) * p
         + mpf("0.02") * (q / (k + 1) - p / (n - k) + (q - mpf("0.5")) / (n + 1))
     )
-    with mp.extradps(20):
+    # For t = S/(n p) >> 1 (tiny p), g(t) = -1 + 2 ln t / t + ..., so 1 + q g cancels to
+    # about 1/t: the working precision is raised by log10 t digits (and likewise for T/(n q)).
+    big = max(s / (n * p), t / (n * q), mpf(1))
+    with mp.extradps(20 + int(mp.log10(big))):
         num = 1 + q * _pp_g(s / (n * p)) + p * _pp_g(t / (n * q))
         x = d * mp.sqrt(num / ((n + mpf(1) / 6) * p * q))
     return _phi_cdf(x)
