@@ -337,8 +337,8 @@ def _renamed_n(value, name):
     """check_n for another integer argument, its messages naming ``name``."""
     try:
         return check_n(value)
-    except ValueError as error:
-        raise ValueError(str(error).replace("`n`", f"`{name}`")) from None
+    except (ValueError, TypeError) as error:  # TypeError: a string, a boolean, a complex number
+        raise type(error)(str(error).replace("`n`", f"`{name}`")) from None
 
 
 def _ladder(dense_to, n_max):
