@@ -18,7 +18,7 @@ import sys
 from atlas import METHODS, METRICS, __version__
 from atlas.cli_coverage import add_coverage_commands
 from atlas.grid import DEFAULT_N_SPEC, DEFAULT_P_SPEC, describe_grid
-from atlas.notation import format_p, parse_probability, rounded
+from atlas.notation import format_beside, format_p, parse_probability, rounded
 
 PROG = "approx-atlas"
 _METHOD_LIST = ", ".join(METHODS)
@@ -266,7 +266,8 @@ def _cmd_min_n(args):
                  else "not every integer between the n evaluated: see the basis")  # fmt: skip
         lines = [f"{head}: from n = {answer.n:,} on ({scope})"]
         if failing is not None:
-            lines.append(f"  n = {failing[0]:,} is not within it (error {failing[1]:.7g})")
+            lines.append(f"  n = {failing[0]:,} is not within it (error "
+                         f"{format_beside(failing[1], tol)})")  # fmt: skip
     if args.p_range is not None:
         lines.append(f"  p checked: {answer.checked()}")
         lines.append(f"  decided at p = {format_p(decided.p)}")

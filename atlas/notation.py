@@ -21,6 +21,7 @@ __all__ = [
     "format_n",
     "format_p",
     "format_p_brief",
+    "format_beside",
     "parse_probability",
     "plural",
     "read_probability",
@@ -66,6 +67,22 @@ def format_p_brief(p, digits=4):
         digits += 1
         short = f"{float(p):.{digits}g}"
     return whole if float(short) == float(p) else f"≈{short}"
+
+
+def format_beside(value, other, digits=4):
+    """``value`` with the fewest significant digits (at least ``digits``) that tell it apart
+    from ``other``: an error just above a tolerance never reads as the tolerance itself.
+
+    Examples
+    --------
+    >>> format_beside(0.0010000123, 0.001), format_beside(0.0123456, 0.01)
+    ('0.00100001', '0.01235')
+    """
+    for d in range(digits, 18):
+        text = f"{float(value):.{d}g}"
+        if float(text) != float(other):
+            return text
+    return format_p(value)
 
 
 def format_n(n):

@@ -300,3 +300,11 @@ def test_audit_cells_keep_a_long_grid_p_short_and_marked():
     assert format_p_brief(0.0005) == "0.0005"  # a round p is shown whole, unmarked
     assert format_p_brief(0.99999994) == "≈0.9999999"  # never "≈1" for a p below 1
     assert format_p_brief(1e-7) == "1e-7"
+
+
+def test_an_error_just_above_a_tolerance_never_reads_as_it():
+    from atlas.notation import format_beside
+
+    assert format_beside(0.0010000001, 0.001) == "0.0010000001"  # 4 digits would read "0.001"
+    assert format_beside(0.01113827, 0.01) == "0.01114"
+    assert format_beside(0.5, 0.5) == "0.5"  # equal values: the value itself
