@@ -117,7 +117,7 @@ def describe_error(error, accuracy, digits=17):
         none below the accuracy's leading digit) and the accuracy rounded up; or, when the
         error is not above ``RESOLUTION_FACTOR`` times its accuracy,
         ``"below the resolution of the exact side (< 2e-15)"`` with error + accuracy rounded
-        up, the most the true value can be.
+        up, the most the true value can be. Without an accuracy (0), the error alone.
 
     Examples
     --------
@@ -126,6 +126,8 @@ def describe_error(error, accuracy, digits=17):
     >>> describe_error(1.1e-15, 6e-16)
     'below the resolution of the exact side (< 1.7e-15)'
     """
+    if not accuracy > 0.0:  # no accuracy known (a Verdict made by hand): the number alone
+        return f"{error:.{min(4, digits)}g}"
     if not is_resolved(error, accuracy):
         return f"below the resolution of the exact side (< {format_bound(error + accuracy)})"
     shown = format_value(error, accuracy, digits=min(4, digits))
