@@ -30,7 +30,7 @@ from atlas.chunks import (  # noqa: F401 - re-exported, see above
 )
 from atlas.engine import TAIL_TOL, check_n
 
-# The largest cube a build allocates: four arrays of 8 bytes per cell, 3.2 GB.
+# The largest cube a build allocates: six arrays of 8 bytes per cell, 4.8 GB.
 MAX_CELLS = 10**8
 
 

@@ -34,12 +34,14 @@ __all__ = ["CheckpointStore", "MANIFEST", "fingerprint_parts"]
 
 MANIFEST = "manifest.json"
 FORMAT = "approx-atlas checkpoint"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2  # 2: chunk files hold interval_accuracy and cdf_accuracy too
 _ARRAYS = {
     "interval_error": np.dtype(np.float64),
     "cdf_error": np.dtype(np.float64),
     "interval_lo": np.dtype(np.int64),
     "interval_hi": np.dtype(np.int64),
+    "interval_accuracy": np.dtype(np.float64),
+    "cdf_accuracy": np.dtype(np.float64),
 }
 _HOST = socket.gethostname().replace(".", "_")
 

@@ -158,8 +158,9 @@ def compute_chunk(n, p, methods):
     Returns
     -------
     dict
-        ``interval_error``, ``cdf_error``, ``interval_lo``, ``interval_hi`` of shape
-        (len(methods), len(n), len(p)).
+        ``interval_error``, ``cdf_error``, ``interval_lo``, ``interval_hi``,
+        ``interval_accuracy`` and ``cdf_accuracy`` (the engine's bounds on the absolute error of
+        the two errors, :class:`atlas.engine.Evaluation`), of shape (len(methods), len(n), len(p)).
     """
     n = np.asarray(n, dtype=np.int64)
     p = np.asarray(p, dtype=np.float64)
@@ -170,16 +171,20 @@ def compute_chunk(n, p, methods):
         out["cdf_error"][:, j] = ev.cdf
         out["interval_lo"][:, j] = ev.lo
         out["interval_hi"][:, j] = ev.hi
+        out["interval_accuracy"][:, j] = ev.interval_accuracy
+        out["cdf_accuracy"][:, j] = ev.cdf_accuracy
     return out
 
 
 def empty_arrays(shape):
-    """The four arrays of a cube (or of a chunk) of ``shape``, not yet filled."""
+    """The six arrays of a cube (or of a chunk) of ``shape``, not yet filled."""
     return {
         "interval_error": np.empty(shape),
         "cdf_error": np.empty(shape),
         "interval_lo": np.empty(shape, np.int64),
         "interval_hi": np.empty(shape, np.int64),
+        "interval_accuracy": np.empty(shape),
+        "cdf_accuracy": np.empty(shape),
     }
 
 

@@ -15,10 +15,10 @@ import argparse
 import re
 import sys
 
-from atlas import METHODS, METRICS, __version__
+from atlas import METHODS, METRICS, __version__, is_resolved
 from atlas.cli_coverage import add_coverage_commands
 from atlas.grid import DEFAULT_N_SPEC, DEFAULT_P_SPEC, describe_grid
-from atlas.notation import format_beside, format_p, parse_probability, rounded
+from atlas.notation import bound_up, format_beside, format_p, parse_probability, rounded
 
 PROG = "approx-atlas"
 _METHOD_LIST = ", ".join(METHODS)
@@ -172,27 +172,31 @@ def _cmd_query(args):
         _number(args.n), p, _number(args.tol), method=args.method, metric=args.metric
     )
     a, b = verdict.worst_interval
+    digits = _digits(atlas, verdict.source)
     if args.json:
-        digits = _digits(atlas, verdict.source)
         record = dataclasses.asdict(verdict)
         record["error"] = rounded(verdict.error, digits)
         record["margin"] = rounded(verdict.margin, digits)
+        record["accuracy"] = bound_up(verdict.accuracy)
         record["error_digits"] = digits
         record["worst_interval"] = [a, b]
-        record["explain"] = verdict.explain()
+        record["explain"] = verdict.explain(digits)
         record["atlas"] = None if atlas.path is None else str(atlas.path)
         _print_json(record)
     else:
+        from atlas.query import describe_error
+
         label = "worst interval" if verdict.metric == "interval" else "worst interval*"
         lines = [
             f"Bin(n={verdict.n}, p={format_p(verdict.p)}), {verdict.method}, {verdict.metric} "
             "error",
-            f"  error           {verdict.error:.4g}",
+            f"  error           {describe_error(verdict.error, verdict.accuracy, digits)}",
             f"  tolerance       {format_p(verdict.tol)}",
-            f"  margin          {verdict.margin:.4g}  (tolerance - error)",
+            f"  margin          {verdict.margin:.4g}  (tolerance - error - accuracy)",
             "  verdict         "
             + ("safe: the error is within the tolerance" if verdict.safe
-               else "UNSAFE: the error exceeds the tolerance"),
+               else "UNSAFE: the error exceeds the tolerance" if verdict.error > verdict.tol
+               else "UNSAFE: the error may exceed the tolerance (within its accuracy)"),
             f"  {label:<15} P({a} <= X <= {b})",
             f"  source          {_source_text(atlas, verdict.source, verdict.method)}",
         ]  # fmt: skip
@@ -286,37 +290,50 @@ def _cmd_compare(args):
     p = parse_probability(args.p, "--p")
     atlas = _open_atlas(args)
     n = _number(args.n)
-    ranking = atlas.best_method(n, p, metric=args.metric)
-    source = "atlas" if atlas.on_grid(n, p, method=ranking[0][0]) else "computed"
+    ranking = atlas.best_method(n, p, metric=args.metric, return_accuracy=True)
+    source = "atlas" if atlas.on_grid(n, p, method=ranking[0].method) else "computed"
+    digits = _digits(atlas, source)
     if args.json:
-        digits = _digits(atlas, source)
         _print_json({
             "n": int(n),
             "p": float(p),
             "metric": args.metric,
             "source": source,
             "error_digits": digits,
-            "ranking": [{"method": m, "error": rounded(e, digits)} for m, e in ranking],
+            "ranking": [{"method": r.method, "error": rounded(r.error, digits),
+                         "accuracy": bound_up(r.accuracy), "resolved": is_resolved(*r[1:3]),
+                         "rank": r.rank, "tied_with": list(r.tied_with)}
+                        for r in ranking],
         })  # fmt: skip
         return 0
+    from atlas.query import describe_error
+
     lines = [f"Bin(n={int(n)}, p={format_p(p)}), {args.metric} error, best first"]
-    lines += [f"  {i:>2}  {m:<14} {e:.3e}" for i, (m, e) in enumerate(ranking, start=1)]
-    lines.append(f"  source: {_source_text(atlas, source, ranking[0][0])}")
+    ties = any(r.tied_with for r in ranking)
+    for r in ranking:
+        rank = f"={r.rank}" if r.tied_with else f"{r.rank}"
+        lines.append(f"  {rank:>3}  {r.method:<14} {describe_error(r.error, r.accuracy, digits)}")
+    if ties:
+        lines.append("  =k: tied (errors differ by less than their accuracies): the same rank")
+    lines.append(f"  source: {_source_text(atlas, source, ranking[0].method)}")
     print("\n".join(lines))
     return 0
 
 
 def _cmd_demo(args):
     """Answer the main questions for an invented inspection lot, in a few lines."""
+    from atlas.query import describe_error
+
     atlas = _open_atlas(args)
     caution = atlas.attrs.get("comment")  # the caution stored in every atlas
     if not caution:
         from atlas.cube import CAUTION as caution
     n, p, tol = _DEMO["n"], _DEMO["p"], _DEMO["tol"]
     verdict = atlas.is_safe(n, p, tol)
-    best, best_error = atlas.best_method(n, p)[0]
+    best = atlas.best_method(n, p, return_accuracy=True)[0]
     smallest = atlas.min_n(p, tol)
-    within = "within" if best_error <= tol else "not within"
+    within = "within" if best.error + best.accuracy <= tol else "not within"
+    best_digits = _digits(atlas, "atlas" if atlas.on_grid(n, p, method=best.method) else "")
     from_n = f"from n = {smallest} on" if smallest is not None else "at no n of the atlas"
     if smallest is not None:
         from_n += " (every integer n, not only grid n)"
@@ -325,8 +342,9 @@ def _cmd_demo(args):
         f"Demo (an invented scenario): an incoming inspection lot of n = {n} fasteners with a "
         f"defect rate of p = {p_text}; every P(a <= X <= b), X ~ Bin({n}, {p_text}), wanted "
         f"within {tol_text}.",
-        f"  normal_cc: {verdict.explain()}",
-        f"  best method here: {best}, error {best_error:.3g} ({within} the tolerance)",
+        f"  normal_cc: {verdict.explain(_digits(atlas, verdict.source))}",
+        f"  best method here: {best.method}, error "
+        f"{describe_error(best.error, best.accuracy, best_digits)}, {within} the tolerance",
         f"  normal_cc is within {tol_text} at p = {p_text} {from_n}",
         f"  next: approx-atlas query --n {n} --p {p_text} --tol {tol_text}; approx-atlas "
         f"compare --n {n} --p {p_text}",

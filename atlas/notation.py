@@ -6,6 +6,9 @@ error is written with the digits its source holds.
 - :func:`error_digits`: the significant digits an error holds: 7 for a float32 atlas (what
   its ``error_precision`` attribute says), 17 for float64 (written as the shortest round trip).
 - :func:`rounded`: a float cut to those digits, for JSON.
+- :func:`value_digits`, :func:`format_value`: an error with no more digits than its accuracy
+  leaves it; :func:`bound_up`, :func:`format_bound`: a bound (an accuracy, an upper limit)
+  rounded *up* to a few digits, so that it stays a bound.
 - :func:`parse_probability`: a command-line p as a number, a fraction ``a/b`` or a percentage
   (:func:`read_probability` without the error).
 - :func:`plural`: "1 value", "2 values".
@@ -17,15 +20,19 @@ from fractions import Fraction
 __all__ = [
     "FLOAT32_DIGITS",
     "FLOAT64_DIGITS",
+    "bound_up",
     "error_digits",
+    "format_bound",
     "format_n",
     "format_p",
     "format_p_brief",
     "format_beside",
+    "format_value",
     "parse_probability",
     "plural",
     "read_probability",
     "rounded",
+    "value_digits",
 ]
 
 #: Significant digits of a float32 error (the atlas's ``error_precision`` attribute).
@@ -125,6 +132,59 @@ def rounded(value, digits):
     if value is None or digits >= FLOAT64_DIGITS or not math.isfinite(value):
         return value
     return float(f"{value:.{digits}g}")
+
+
+def bound_up(value, digits=2):
+    """``value`` rounded *up* to ``digits`` significant digits: never below ``value``.
+
+    >>> bound_up(1.6e-15), bound_up(1.61e-15), bound_up(3e-15, 1), bound_up(0.0)
+    (1.6e-15, 1.7e-15, 3e-15, 0.0)
+    """
+    value = float(value)
+    if not math.isfinite(value) or value <= 0.0:
+        return value
+    out = float(f"{value:.{digits}g}")
+    if out < value:  # rounded down: one unit of the last digit kept, then rounded again
+        unit = 10.0 ** (math.floor(math.log10(out)) - digits + 1)
+        out = float(f"{out + unit:.{digits}g}")
+        if out < value:  # pragma: no cover - guards the text rounding of out + unit
+            out = math.nextafter(value, math.inf)
+    return out
+
+
+def format_bound(value, digits=2):
+    """A bound for people: :func:`bound_up` written with those digits.
+
+    >>> format_bound(1.61e-15), format_bound(2.6e-15, 1)
+    ('1.7e-15', '3e-15')
+    """
+    return f"{bound_up(value, digits):.{digits}g}"
+
+
+def value_digits(value, accuracy, digits=FLOAT64_DIGITS):
+    """The significant digits ``value`` has when it is known to within ``accuracy``.
+
+    Those down to the place of the accuracy's leading digit, at least 1 and at most ``digits``
+    (the digits it is stored with).
+
+    >>> value_digits(0.04006076604127884, 3e-15), value_digits(2.654e-9, 6e-12, 7)
+    (14, 4)
+    """
+    value, accuracy = abs(float(value)), float(accuracy)
+    if not (math.isfinite(value) and value > 0.0) or not accuracy > 0.0:
+        return digits
+    has = math.floor(math.log10(value)) - math.floor(math.log10(accuracy)) + 1
+    return max(1, min(digits, has))
+
+
+def format_value(value, accuracy, digits=4):
+    """``value`` written with no more digits than it has (:func:`value_digits`), at most
+    ``digits``.
+
+    >>> format_value(0.04006076604127884, 3e-15), format_value(2.654321e-9, 6e-12)
+    ('0.04006', '2.654e-09')
+    """
+    return f"{float(value):.{value_digits(value, accuracy, digits)}g}"
 
 
 def parse_probability(text, option):

@@ -18,18 +18,28 @@ by every Atlas of the file and closed when the last of them is closed or garbage
 
 from dataclasses import dataclass
 from pathlib import Path
+from typing import NamedTuple
 
 import numpy as np
 
 from atlas import store
 from atlas.approximations import METHODS, check_method
-from atlas.engine import check_metric, check_n, check_p, evaluate, evaluate_cells
-from atlas.notation import error_digits, format_p
+from atlas.engine import (
+    WorstError,
+    check_metric,
+    check_n,
+    check_p,
+    evaluate,
+    evaluate_cells,
+    is_resolved,
+)
+from atlas.notation import error_digits, format_bound, format_p, format_value
 from atlas.thresholds import minimum_n, minimum_n_over
 
-__all__ = ["Atlas", "Verdict", "check_tol", "open_atlas"]
+__all__ = ["Atlas", "Ranked", "Verdict", "check_tol", "open_atlas", "tie_groups"]
 
 _VARIABLES = {"interval": "interval_error", "cdf": "cdf_error"}
+_ACCURACIES = {"interval": "interval_accuracy", "cdf": "cdf_accuracy"}
 
 
 def _show(value):
@@ -90,6 +100,40 @@ def _fmt(x):
     return f"{x:.3g}"
 
 
+def describe_error(error, accuracy, digits=17):
+    """An error for people, with its accuracy, or "below the resolution" when unresolved.
+
+    Parameters
+    ----------
+    error, accuracy : float
+        A worst-case error and the bound on its absolute error.
+    digits : int, optional
+        The significant digits the value is stored with (7 for float32, 17 for float64).
+
+    Returns
+    -------
+    str
+        ``"0.04006 (accuracy 3e-15)"``: the error with no more digits than it has (at most 4,
+        none below the accuracy's leading digit) and the accuracy rounded up; or, when the
+        error is not above ``RESOLUTION_FACTOR`` times its accuracy,
+        ``"below the resolution of the exact side (< 2e-15)"`` with error + accuracy rounded
+        up, the most the true value can be. Without an accuracy (0), the error alone.
+
+    Examples
+    --------
+    >>> describe_error(0.04006076604127884, 3e-15)
+    '0.04006 (accuracy 3e-15)'
+    >>> describe_error(1.1e-15, 6e-16)
+    'below the resolution of the exact side (< 1.7e-15)'
+    """
+    if not accuracy > 0.0:  # no accuracy known (a Verdict made by hand): the number alone
+        return f"{error:.{min(4, digits)}g}"
+    if not is_resolved(error, accuracy):
+        return f"below the resolution of the exact side (< {format_bound(error + accuracy)})"
+    shown = format_value(error, accuracy, digits=min(4, digits))
+    return f"{shown} (accuracy {format_bound(accuracy, digits=1)})"
+
+
 @dataclass(frozen=True)
 class Verdict:
     """The answer to "is the approximation within ``tol`` at (n, p)?".
@@ -97,13 +141,16 @@ class Verdict:
     Attributes
     ----------
     safe : bool
-        ``error <= tol``.
+        ``error + accuracy <= tol``: conservative, safe only when the largest value the true
+        error can have is within ``tol``.
     error : float
-        The exact worst-case error of ``method`` under ``metric`` at (n, p).
+        The exact worst-case error of ``method`` under ``metric`` at (n, p), as computed or
+        stored.
     tol : float
         The tolerance asked for.
     margin : float
-        ``tol - error``: positive when safe, negative by how much the error exceeds ``tol``.
+        ``tol - (error + accuracy)``: positive or zero when safe, negative by how much the
+        largest possible error exceeds ``tol``.
     method, metric : str
         What was measured.
     n : int
@@ -114,6 +161,12 @@ class Verdict:
     source : {"atlas", "computed"}
         ``"atlas"``: a stored cell of the cube; ``"computed"``: computed exactly by the engine
         because (n, p) is not a grid cell or the method is not stored.
+    accuracy : float
+        A bound on |error - true error|: the cube's ``interval_accuracy`` or ``cdf_accuracy``
+        for a stored cell (float32 rounding included), the engine's for a computed one.
+    resolved : bool
+        ``error > 3 * accuracy`` (:func:`atlas.is_resolved`); when False the error is below the
+        resolution of the exact side and only ``error + accuracy`` bounds it.
     """
 
     safe: bool
@@ -126,26 +179,87 @@ class Verdict:
     p: float
     worst_interval: tuple
     source: str
+    accuracy: float = 0.0
+    resolved: bool = True
 
-    def explain(self):
+    def explain(self, digits=17):
         """One line for people.
+
+        Parameters
+        ----------
+        digits : int, optional
+            The significant digits the error is stored with (the atlas's ``error_digits`` for
+            a stored cell); the error is shown with at most 4, and none below its accuracy.
 
         Examples
         --------
         >>> Verdict(False, 0.0244, 0.01, -0.0144, "normal_cc", "interval", 50, 0.1, (2, 6),
-        ...         "atlas").explain()
-        'n=50, p=0.1: normal_cc interval error 0.0244 <= tol 0.01? no (margin -0.0144); worst interval [2, 6]; from the atlas'
+        ...         "atlas", 3e-15, True).explain()
+        'n=50, p=0.1: normal_cc interval error 0.0244 (accuracy 3e-15) <= tol 0.01? no (margin -0.0144); worst interval [2, 6]; from the atlas'
 
         n and p are written so that they read back as the same numbers (p = 0.9999999 is not
-        written as 1); the error and margin to three significant digits.
+        written as 1); the margin to three significant digits. An error not above 3 times its
+        accuracy is written "below the resolution of the exact side (< X)", X = error +
+        accuracy rounded up.
         """  # noqa: E501 - a doctest's output line cannot be wrapped
         a, b = self.worst_interval
         where = "from the atlas" if self.source == "atlas" else "computed exactly (no atlas cell)"
         return (
             f"n={self.n}, p={format_p(self.p)}: {self.method} {self.metric} error "
-            f"{_fmt(self.error)} <= tol {format_p(self.tol)}? {'yes' if self.safe else 'no'} "
-            f"(margin {_fmt(self.margin)}); worst interval [{a}, {b}]; {where}"
+            f"{describe_error(self.error, self.accuracy, digits)} <= tol {format_p(self.tol)}? "
+            f"{'yes' if self.safe else 'no'} (margin {_fmt(self.margin)}); worst interval "
+            f"[{a}, {b}]; {where}"
         )
+
+
+class Ranked(NamedTuple):
+    """One method of a ranking (:meth:`Atlas.best_method` with ``return_accuracy=True``).
+
+    Attributes
+    ----------
+    method : str
+    error, accuracy : float
+        The error and the bound on its absolute error.
+    rank : int
+        1 + the number of methods ranked strictly better: tied methods share a rank
+        (1, 1, 3, ...).
+    tied_with : tuple of str
+        The other methods of its tie group, in ranking order.
+    """
+
+    method: str
+    error: float
+    accuracy: float
+    rank: int
+    tied_with: tuple
+
+
+def tie_groups(errors, accuracies):
+    """Group errors sorted in ranking order into ties.
+
+    Two neighbours in the order are tied when their errors differ by no more than the sum of
+    their accuracies (neither can be said to be smaller); a group is a run of such neighbours.
+
+    Parameters
+    ----------
+    errors, accuracies : sequence of float
+        In ranking order (errors non-decreasing).
+
+    Returns
+    -------
+    list of int
+        The rank of each entry: 1 + the index of the first entry of its group.
+
+    Examples
+    --------
+    >>> tie_groups([1e-15, 2e-15, 0.01], [2e-15, 2e-15, 1e-15])
+    [1, 1, 3]
+    """
+    ranks = []
+    for k, (error, accuracy) in enumerate(zip(errors, accuracies, strict=True)):
+        tied = k > 0 and error - errors[k - 1] <= accuracy + accuracies[k - 1]
+        ranks.append(ranks[-1] if tied else k + 1)
+    return ranks
 
 
 class Atlas:
@@ -322,7 +436,8 @@ class Atlas:
         return (n_axis[i] == n) & (p_axis[j] == p), i, j
 
     def _cells(self, n, p, method, metric, *, bounds=False):
-        """Errors (and worst intervals) at broadcast n and p, and the mask of cube cells."""
+        """Errors, their accuracies (and worst intervals) at broadcast n and p, and the mask of
+        cube cells: ``(values, accuracy, hit[, lo, hi])``."""
         n_arr, p_arr = check_n(n), check_p(p)
         check_metric(metric)
         method = check_method(method)
@@ -335,21 +450,23 @@ class Atlas:
         else:
             hit = np.zeros(n_flat.size, dtype=bool)
         variable = _VARIABLES[metric]
-        values = np.empty(n_flat.size)
+        values, accuracy = np.empty(n_flat.size), np.empty(n_flat.size)
         lo, hi = np.empty(n_flat.size, np.int64), np.empty(n_flat.size, np.int64)
         if hit.any():
             ih, jh = i[hit], j[hit]
             values[hit] = self._stored(variable, method)[ih, jh]
+            accuracy[hit] = self._stored(_ACCURACIES[metric], method)[ih, jh]
             if bounds:
                 lo[hit] = self._stored("interval_lo", method)[ih, jh]
                 hi[hit] = self._stored("interval_hi", method)[ih, jh]
         miss = ~hit
         if miss.any():
-            interval, cdf, lo[miss], hi[miss] = evaluate_cells(
-                n_flat[miss], p_flat[miss].astype(np.float64), method
+            interval, cdf, lo[miss], hi[miss], interval_acc, cdf_acc = evaluate_cells(
+                n_flat[miss], p_flat[miss].astype(np.float64), method, accuracy=True
             )
             values[miss] = interval if metric == "interval" else cdf
-        out = (values.reshape(shape), hit.reshape(shape))
+            accuracy[miss] = interval_acc if metric == "interval" else cdf_acc
+        out = (values.reshape(shape), accuracy.reshape(shape), hit.reshape(shape))
         if bounds:
             out += (lo.reshape(shape), hi.reshape(shape))
         return out
@@ -437,7 +554,7 @@ class Atlas:
             )
         return chosen
 
-    def error(self, n, p, *, method="normal_cc", metric="interval"):
+    def error(self, n, p, *, method="normal_cc", metric="interval", return_accuracy=False):
         """Exact worst-case error at broadcast n and p: from the cube on the grid, else computed.
 
         Parameters
@@ -452,11 +569,19 @@ class Atlas:
         metric : {"interval", "cdf"}, optional
             ``"interval"`` (default): the largest error of any P(a <= X <= b); ``"cdf"``: of
             any P(X <= k).
+        return_accuracy : bool, optional
+            Return an :class:`atlas.WorstError` ``(error, accuracy)`` instead of the error
+            alone, as :func:`atlas.worst_error` does.
 
         Returns
         -------
-        float or numpy.ndarray
-            A float for scalar n and p, else a float64 array of the broadcast shape.
+        float or numpy.ndarray or atlas.WorstError
+            A float for scalar n and p, else a float64 array of the broadcast shape. With
+            ``return_accuracy``, the pair (error, accuracy) of such values: ``accuracy`` bounds
+            |error - true error|, read from the cube's ``interval_accuracy`` or
+            ``cdf_accuracy`` for a stored cell (float32 rounding included) and the engine's
+            for a computed one; :func:`atlas.is_resolved` says whether the error is meaningful
+            as a number.
 
         Raises
         ------
@@ -476,9 +601,14 @@ class Atlas:
         >>> at = Atlas(build_atlas(n="10,20", p="0.5", methods="normal_cc", progress=False))
         >>> round(at.error(10, 0.5), 6), round(at.error(11, 0.5), 6)  # a cube cell, a computed one
         (0.005372, 0.005011)
+        >>> error, accuracy = at.error(10, 0.5, return_accuracy=True)
+        >>> accuracy < 1e-14
+        True
         """
-        values, _ = self._cells(n, p, method, metric)
-        return float(values) if values.ndim == 0 else values
+        values, accuracy, _ = self._cells(n, p, method, metric)
+        if values.ndim == 0:
+            values, accuracy = float(values), float(accuracy)
+        return WorstError(values, accuracy) if return_accuracy else values
 
     def safe(self, n, p, tol, *, method="normal_cc", metric="interval"):
         """Whether the error is within ``tol``, vectorised over n, p and tol.
@@ -493,7 +623,7 @@ class Atlas:
         Returns
         -------
         bool or numpy.ndarray of bool
-            ``error(n, p) <= tol``.
+            ``error(n, p) + accuracy <= tol``: conservative, as :attr:`Verdict.safe`.
 
         Raises
         ------
@@ -501,8 +631,8 @@ class Atlas:
             As for :meth:`error`, or for a tol that is not positive and finite.
         """
         tol = check_tol(tol)
-        values, _ = self._cells(n, p, method, metric)
-        out = values <= tol
+        values, accuracy, _ = self._cells(n, p, method, metric)
+        out = values + accuracy <= tol
         return bool(out) if out.ndim == 0 else out
 
     def is_safe(self, n, p, tol, *, method="normal_cc", metric="interval"):
@@ -522,7 +652,9 @@ class Atlas:
         Returns
         -------
         Verdict
-            ``safe`` is ``error <= tol``; ``margin`` is ``tol - error``.
+            ``safe`` is ``error + accuracy <= tol`` (conservative); ``margin`` is
+            ``tol - (error + accuracy)``; ``resolved`` says whether the error is above 3 times
+            its accuracy.
 
         Raises
         ------
@@ -535,24 +667,26 @@ class Atlas:
         >>> from atlas import build_atlas
         >>> at = Atlas(build_atlas(n="10,20", p="0.5", methods="normal_cc", progress=False))
         >>> v = at.is_safe(10, 0.5, 0.005)
-        >>> v.safe, round(v.error, 6), v.worst_interval, v.source
-        (False, 0.005372, (2, 8), 'atlas')
+        >>> v.safe, round(v.error, 6), v.worst_interval, v.source, v.resolved
+        (False, 0.005372, (2, 8), 'atlas', True)
         """
         n_value, p_value = _point(n, p)
         tol_value = _one_tol(tol)
-        values, hit, lo, hi = self._cells(n_value, p_value, method, metric, bounds=True)
-        error = float(values)
+        values, accuracy, hit, lo, hi = self._cells(n_value, p_value, method, metric, bounds=True)
+        error, accuracy = float(values), float(accuracy)
         return Verdict(
-            safe=bool(error <= tol_value),
+            safe=bool(error + accuracy <= tol_value),
             error=error,
             tol=tol_value,
-            margin=tol_value - error,
+            margin=tol_value - (error + accuracy),
             method=method,
             metric=metric,
             n=int(n_value),
             p=float(p_value),
             worst_interval=(int(lo), int(hi)),
             source="atlas" if bool(hit) else "computed",
+            accuracy=accuracy,
+            resolved=is_resolved(error, accuracy),
         )
 
     def min_n(self, p, tol, *, method="normal_cc", metric="interval"):
@@ -690,8 +824,8 @@ class Atlas:
         return minimum_n_over(n_axis, chosen, column, float(p_lo), float(p_hi), tol_value,
                               method=method, metric=metric)  # fmt: skip
 
-    def best_method(self, n, p, *, metric="interval"):
-        """The atlas's methods ranked by their error at (n, p), best first.
+    def best_method(self, n, p, *, metric="interval", return_accuracy=False):
+        """The atlas's methods ranked by their error at (n, p), best first, ties grouped.
 
         Parameters
         ----------
@@ -700,35 +834,63 @@ class Atlas:
         p : float
             Success probability, 0 < p < 1.
         metric : {"interval", "cdf"}, optional
+        return_accuracy : bool, optional
+            Return :class:`Ranked` entries ``(method, error, accuracy, rank, tied_with)``
+            instead of ``(method, error)`` pairs.
 
         Returns
         -------
         list of tuple
-            ``(method, error)`` pairs sorted by error, ties in the order of
-            :data:`atlas.METHODS` (normal_cc first), whatever order the atlas stores them in.
+            ``(method, error)`` pairs (or :class:`Ranked`), sorted by error. Methods whose
+            errors differ by no more than the sum of their accuracies cannot be told apart:
+            they are tied (:func:`tie_groups`, a run of such neighbours), share a ``rank`` and
+            are listed in the order of :data:`atlas.METHODS` (normal_cc first) within their
+            group, whatever order the atlas stores them in.
 
         Raises
         ------
         ValueError
             For a bad n, p or metric, or arrays.
+
+        Examples
+        --------
+        >>> from atlas import build_atlas
+        >>> at = Atlas(build_atlas(n="10", p="0.5", methods="normal_cc,normal", progress=False))
+        >>> [(r.method, r.rank, r.tied_with) for r in at.best_method(10, 0.5, return_accuracy=True)]
+        [('normal_cc', 1, ()), ('normal', 2, ())]
         """
         n_value, p_value = _point(n, p)
         check_metric(metric)
         methods = self.methods
         hit, i, j = self._locate(np.array([n_value]), np.array([p_value]))
         if hit[0]:
-            variable = _VARIABLES[metric]
-            errors = [float(self._stored(variable, m)[i[0], j[0]]) for m in methods]
+            errors = [float(self._stored(_VARIABLES[metric], m)[i[0], j[0]]) for m in methods]
+            accuracies = [float(self._stored(_ACCURACIES[metric], m)[i[0], j[0]]) for m in methods]
         else:
             ev = evaluate(int(n_value), [p_value], methods=methods)
-            errors = [float(x) for x in (ev.interval if metric == "interval" else ev.cdf)[:, 0]]
-        rank = {m: i for i, m in enumerate(METHODS)}
+            interval = metric == "interval"
+            errors = [float(x) for x in (ev.interval if interval else ev.cdf)[:, 0]]
+            accuracies = [
+                float(x) for x in (ev.interval_accuracy if interval else ev.cdf_accuracy)[:, 0]
+            ]
+        by_error = sorted(range(len(methods)), key=lambda k: (errors[k], methods[k]))
+        rank_of = dict(
+            zip(by_error, tie_groups([errors[k] for k in by_error],
+                                     [accuracies[k] for k in by_error]), strict=True)
+        )  # fmt: skip
+        position = {m: i for i, m in enumerate(METHODS)}
 
-        def key(k):  # the error, then the order of atlas.METHODS
-            return errors[k], rank.get(methods[k], len(rank)), methods[k]
+        def key(k):  # the tie group, then the order of atlas.METHODS (normal_cc first)
+            return rank_of[k], position.get(methods[k], len(position)), methods[k]
 
-        order = sorted(range(len(methods)), key=key)
-        return [(methods[k], errors[k]) for k in order]
+        order = sorted(by_error, key=key)
+        if not return_accuracy:
+            return [(methods[k], errors[k]) for k in order]
+        out = []
+        for k in order:
+            tied = tuple(methods[q] for q in order if q != k and rank_of[q] == rank_of[k])
+            out.append(Ranked(methods[k], errors[k], accuracies[k], rank_of[k], tied))
+        return out
 
     def safe_region(self, tol, *, method="normal_cc", metric="interval"):
         """Where on the grid the error is within ``tol``.

@@ -10,7 +10,8 @@ characters (dimensions ``approximation`` and ``approximation_strlen``); variable
 are read too, both as Python str.
 
 Schema "1" called the first dimension ``method``, which is also the keyword of xarray's
-``.sel()``; such files are refused with the command that rebuilds them (:func:`rebuild_command`).
+``.sel()``; schema "2" had no accuracy variables (``interval_accuracy``, ``cdf_accuracy``). Files
+of either are refused with the command that rebuilds them (:func:`rebuild_command`).
 
 Everything here reads the file with netCDF4 directly and imports neither xarray nor pandas nor
 dask (xarray imports dask while it decodes the name strings whenever dask is installed), so
@@ -41,6 +42,7 @@ __all__ = [
     "CHECKSUM_VARIABLES",
     "DATA_VARIABLES",
     "DIMENSIONS",
+    "OLD_SCHEMAS",
     "SCHEMA_VERSION",
     "AtlasFile",
     "approximation_names",
@@ -57,8 +59,20 @@ __all__ = [
     "verify_file",
 ]
 
-SCHEMA_VERSION = "2"
-DATA_VARIABLES = ("interval_error", "cdf_error", "interval_lo", "interval_hi")
+SCHEMA_VERSION = "3"
+DATA_VARIABLES = (
+    "interval_error",
+    "cdf_error",
+    "interval_lo",
+    "interval_hi",
+    "interval_accuracy",
+    "cdf_accuracy",
+)
+#: What older schemas lacked, for the message that refuses them (with the rebuild command).
+OLD_SCHEMAS = {
+    "1": "dimension 'method', no accuracy variables",
+    "2": "no interval_accuracy and cdf_accuracy variables",
+}
 #: The dimension (and coordinate) of the approximation names.
 APPROXIMATION = "approximation"
 DIMENSIONS = (APPROXIMATION, "n", "p")
@@ -74,7 +88,8 @@ CHECKSUM_RECIPE = (
     "line feed byte (0x0A); then, for each variable named in checksum_variables, in that "
     "order, all its values as the raw little-endian bytes of the type stored in this file "
     "(int64 for n, interval_lo and interval_hi; float64 for p; float64, or float32 where "
-    "error_precision says so, for interval_error and cdf_error), in C (row-major) order: the "
+    "error_precision says so, for interval_error and cdf_error; float32 for interval_accuracy "
+    "and cdf_accuracy), in C (row-major) order: the "
     "variable's last dimension varies fastest (Fortran, R and Julia readers, which list the "
     "dimensions reversed, take their arrays in native column-major order). Nothing else enters "
     "the digest: no variable names, separators, shapes or attributes. The checksum attribute "
@@ -107,8 +122,8 @@ def open_netcdf(path):
     ValueError
         If the file is not readable NetCDF, is of another schema version, lacks a variable, or
         has a data variable over other dimensions than (approximation, n, p), an index
-        coordinate that is not strictly increasing, or is of schema "1" (the message gives the
-        command that rebuilds it).
+        coordinate that is not strictly increasing, or is of schema "1" or "2" (the message
+        gives the command that rebuilds it).
     """
     path = Path(path)
     if not path.is_file():
@@ -138,11 +153,12 @@ def _check_layout(nc, path):
             f"`path` is NetCDF but not an atlas file (it has no 'atlas_schema' attribute): "
             f"{str(path)!r}."
         )
-    if schema == "1":
+    if schema in OLD_SCHEMAS:
         raise ValueError(
-            f"`path` {str(path)!r} is an atlas of schema version '1' (dimension 'method'), which "
-            f"this version of approx-atlas no longer reads (it reads schema {SCHEMA_VERSION!r}, "
-            f"dimension 'approximation'); rebuild it with: {rebuild_command(nc, path)}"
+            f"`path` {str(path)!r} is an atlas of schema version {schema!r} "
+            f"({OLD_SCHEMAS[schema]}), which this version of approx-atlas no longer reads (it "
+            f"reads schema {SCHEMA_VERSION!r}, with an accuracy beside every error); rebuild it "
+            f"with: {rebuild_command(nc, path)}"
         )
     if schema != SCHEMA_VERSION:
         raise ValueError(
@@ -290,7 +306,7 @@ def checksum(names, read):
     >>> arrays = {"n": np.array([10]), "p": np.array([0.5])}
     >>> arrays.update({v: np.zeros((1, 1, 1)) for v in DATA_VARIABLES})
     >>> import hashlib, struct
-    >>> raw = b"normal_cc\\n" + struct.pack("<qd", 10, 0.5) + bytes(4 * 8)  # then four 0.0
+    >>> raw = b"normal_cc\\n" + struct.pack("<qd", 10, 0.5) + bytes(6 * 8)  # then six 0.0
     >>> checksum(["normal_cc"], arrays.__getitem__) == "sha256:" + hashlib.sha256(raw).hexdigest()
     True
     """

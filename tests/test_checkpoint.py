@@ -65,12 +65,28 @@ def test_save_then_load_gives_the_same_arrays(tmp_path):
     assert path.name == f"chunk-{chunk.index:06d}.npz"
     got = store.load(chunk)
     assert set(got) == set(part)
+    assert {"interval_accuracy", "cdf_accuracy"} <= set(got)  # schema 3 keeps the accuracies
     for name in part:
         assert got[name].dtype == part[name].dtype
         assert np.array_equal(got[name], part[name])
     assert store.completed() == [chunk.index]
     # No temporary file is left beside the finished ones.
     assert sorted(e.name for e in store.directory.iterdir()) == sorted([MANIFEST, path.name])
+
+
+def test_checkpoint_of_an_older_schema_is_refused(tmp_path, monkeypatch):
+    # A directory made by a schema-2 build (chunks without the accuracy arrays) is not mixed
+    # into a schema-3 build: the fingerprint holds the schema.
+    from atlas import store as atlas_store
+
+    n, p = _grid()
+    chunks = plan_chunks(n, p, cost=COST)
+    monkeypatch.setattr(atlas_store, "SCHEMA_VERSION", "2")
+    CheckpointStore.open(tmp_path / "ck", n, p, METHODS, chunks)
+    monkeypatch.undo()
+    with pytest.raises(ValueError, match=r"was made for another build; refusing to mix results\. "
+                                         r"Its schema \(directory: atlas schema 2, "):  # fmt: skip
+        CheckpointStore.open(tmp_path / "ck", n, p, METHODS, chunks)
 
 
 def test_manifest_records_the_build(tmp_path):

@@ -14,6 +14,7 @@ from numpy.testing import assert_allclose
 
 from atlas import METHODS, cube, store, worst_error
 from atlas.cli import main
+from atlas.notation import format_bound
 from atlas.query import open_atlas
 
 # (source: the engine's float64 results are stored unchanged; rounding only)
@@ -33,6 +34,8 @@ QUERY_KEYS = {
     "explain": str,
     "atlas": str,
     "error_digits": int,
+    "accuracy": float,
+    "resolved": bool,
 }
 
 
@@ -73,9 +76,9 @@ def test_query_human(capsys, path, at):
     a, b = v.worst_interval
     assert out.splitlines() == [
         "Bin(n=50, p=0.1), normal_cc, interval error",
-        f"  error           {v.error:.4g}",
+        f"  error           {v.error:.4g} (accuracy {format_bound(v.accuracy, 1)})",
         "  tolerance       0.01",
-        f"  margin          {v.margin:.4g}  (tolerance - error)",
+        f"  margin          {v.margin:.4g}  (tolerance - error - accuracy)",
         "  verdict         UNSAFE: the error exceeds the tolerance",
         f"  worst interval  P({a} <= X <= {b})",
         f"  source          atlas (a stored cell of {path})",
@@ -97,6 +100,7 @@ def test_query_json_schema_and_values(capsys, path, at):
     assert (record["method"], record["metric"]) == ("normal_cc", "cdf")
     assert record["explain"] == v.explain() and record["atlas"] == path
     assert record["error_digits"] == 17  # a float64 atlas: every digit, as stored
+    assert record["resolved"] is True and v.accuracy <= record["accuracy"] <= 1.1 * v.accuracy
 
 
 def test_query_off_grid_is_computed(capsys, path):
@@ -193,6 +197,9 @@ def test_compare(capsys, path, at):
     record = run_json(capsys, "compare", "--n", "50", "--p", "0.1", "--atlas", path)
     assert set(record) == {"n", "p", "metric", "source", "error_digits", "ranking"}
     assert record["error_digits"] == 17
+    for item in record["ranking"]:
+        assert set(item) == {"method", "error", "accuracy", "resolved", "rank", "tied_with"}
+    assert [r["rank"] for r in record["ranking"]] == list(range(1, len(METHODS) + 1))
     ranking = [(r["method"], r["error"]) for r in record["ranking"]]
     assert ranking == at.best_method(50, 0.1)
     assert [e for _, e in ranking] == sorted(e for _, e in ranking)
@@ -356,7 +363,7 @@ def test_damaged_atlas_chunks(capsys, tmp_path, small_atlas):
             assert (status, out) == (2, "") and err.count("\n") == 1
             assert re.match(
                 r"approx-atlas: error: (the atlas is corrupt: \w+ of \w+ cannot be read from "
-                r"|`path` is not a readable atlas file: )",
+                r"|`(path|--atlas)` is not a readable atlas file: )",
                 err,
             )
     assert refused >= 4
@@ -395,3 +402,57 @@ def test_min_n_without_a_step_bound_says_so_on_the_command_line(capsys, path, at
                     "--atlas", path)  # fmt: skip
     assert "(not every integer between the n evaluated: see the basis)" in out.splitlines()[0]
     assert "only the n evaluated are checked" in out
+
+
+# --- accuracy: values below the resolution, ties ------------------------------------------------
+
+
+def test_query_below_the_resolution(capsys, path):
+    # camp_paulson at n = 10^12, p = 1/2: its error, 1.05e-14 (computed), is below 3 times its
+    # accuracy, 4e-15 (atlas.engine's model): it is printed as a bound, never as a number.
+    argv = ("query", "--n", "1000000000000", "--p", "0.5", "--tol", "0.01", "--method",
+            "camp_paulson", "--atlas", path)  # fmt: skip
+    error, accuracy = worst_error(10**12, 0.5, method="camp_paulson", return_accuracy=True)
+    assert error <= 3 * accuracy  # the premise (atlas.engine.is_resolved)
+    status, out, _ = run(capsys, *argv)
+    bound = format_bound(error + accuracy)
+    assert status == 0
+    assert f"  error           below the resolution of the exact side (< {bound})" in out
+    assert f"{error:.4g}" not in out
+    record = run_json(capsys, *argv)
+    assert record["resolved"] is False and record["safe"] is True
+    assert record["accuracy"] >= accuracy
+    assert f"below the resolution of the exact side (< {bound})" in record["explain"]
+
+
+def test_query_unsafe_within_the_accuracy(capsys, path, at):
+    # tol between the error and error + accuracy: not safe, said so (conservative verdicts).
+    v = at.is_safe(50, 0.1, 0.01)
+    tol = v.error + v.accuracy / 2
+    assert v.error < tol < v.error + v.accuracy
+    status, out, _ = run(capsys, "query", "--n", "50", "--p", "0.1", "--tol", repr(tol),
+                         "--atlas", path, "--strict")  # fmt: skip
+    assert status == 3
+    assert "UNSAFE: the error may exceed the tolerance (within its accuracy)" in out
+
+
+def test_compare_shows_ties(capsys, path):
+    # At p = 1/2 the skewness term vanishes: edgeworth_cc is normal_cc, the same error
+    # (atlas.approximations), so the two are tied; edgeworth2_cc and peizer_pratt are both below
+    # their accuracies at n = 10^12 (computed) and differ by less than their sum.
+    argv = ("compare", "--n", "1000000000000", "--p", "0.5", "--atlas", path)
+    record = run_json(capsys, *argv)
+    by_method = {r["method"]: r for r in record["ranking"]}
+    assert by_method["normal_cc"]["tied_with"] == ["edgeworth_cc"]
+    assert by_method["edgeworth_cc"]["tied_with"] == ["normal_cc"]
+    assert by_method["normal_cc"]["rank"] == by_method["edgeworth_cc"]["rank"]
+    # Within a tie, normal_cc first (the order of atlas.METHODS).
+    names = [r["method"] for r in record["ranking"]]
+    assert names.index("normal_cc") + 1 == names.index("edgeworth_cc")
+    assert by_method["peizer_pratt"]["rank"] == by_method["edgeworth2_cc"]["rank"] == 1
+    assert by_method["peizer_pratt"]["resolved"] is False
+    _, out, _ = run(capsys, *argv)
+    rank = by_method["normal_cc"]["rank"]
+    assert re.search(rf"^ +={rank} +normal_cc +\d", out, re.M)
+    assert re.search(rf"^ +={rank} +edgeworth_cc +\d", out, re.M)
+    assert "=k: tied (errors differ by less than their accuracies): the same rank" in out

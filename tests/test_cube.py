@@ -49,6 +49,43 @@ def tiny():
 # ---- layout of the Dataset ---------------------------------------------------------------------
 
 
+def test_accuracy_variables(tiny):
+    # Beside each error its bound, from the engine (atlas.engine.Evaluation), stored as float32
+    # rounded up to 4 significant bits: never below the engine's value, at most 12.5% above.
+    names = [str(m) for m in tiny["approximation"].values]
+    for metric, variable in (("interval", "interval_accuracy"), ("cdf", "cdf_accuracy")):
+        var = tiny[variable]
+        assert var.dims == store.DIMENSIONS and var.dtype == np.float32
+        assert var.attrs["units"] == "1" and var.attrs["long_name"].startswith("bound on")
+        assert "|stored " in var.attrs["description"] and "2^-24" in var.attrs["description"]
+        for i, method in enumerate(names):
+            _, engine = atlas.worst_error(tiny["n"].values[:, None], tiny["p"].values[None, :],
+                                          method=method, metric=metric,
+                                          return_accuracy=True)  # fmt: skip
+            stored = var.values[i].astype(np.float64)
+            assert (stored >= engine).all() and (stored <= engine * 1.125 * (1 + 2.0**-22)).all()
+            assert (stored.astype(np.float32).view(np.uint32) & 0xFFFFF == 0).all()  # 4 bits
+
+
+def test_compact_adds_the_float32_rounding(tiny):
+    # A float32 copy: |stored float32 - true| <= |stored - float64 value| + float64 accuracy,
+    # which the stored accuracy must cover; it adds at most |value| 2^-23 to it before the
+    # rounding up to 4 significant bits (at most 12.5%).
+    small = cube.compact(tiny, "float32")
+    for error, accuracy in cube.ACCURACY_OF.items():
+        wide = tiny[error].values
+        narrow = small[error].values.astype(np.float64)
+        acc64 = tiny[accuracy].values.astype(np.float64)
+        acc32 = small[accuracy].values.astype(np.float64)
+        assert small[accuracy].dtype == np.float32
+        assert (np.abs(narrow - wide) + acc64 <= acc32).all()
+        assert (acc32 <= (acc64 + np.abs(wide) * 2.0**-23) * 1.125 * (1 + 2.0**-22) + 1e-44).all()
+    # Back to float64 adds no digits and keeps the accuracy; float32 again adds nothing.
+    again = cube.compact(small, "float32")
+    assert (again["interval_accuracy"].values == small["interval_accuracy"].values).all()
+    assert small.attrs["checksum"] == cube.data_checksum(small)
+
+
 def test_layout(small_atlas):
     ds = small_atlas["dataset"]
     assert ds["interval_error"].dims == ("approximation", "n", "p")
@@ -67,7 +104,9 @@ def test_layout(small_atlas):
             "p_spec", "atlas_schema", "tail_tolerance", "error_precision", "checksum",
             "checksum_variables", "checksum_recipe", "attribute_notes"]  # fmt: skip
     assert list(ds.attrs) == keys
-    assert ds.attrs["checksum_variables"] == "n p interval_error cdf_error interval_lo interval_hi"
+    assert ds.attrs["checksum_variables"] == (
+        "n p interval_error cdf_error interval_lo interval_hi interval_accuracy cdf_accuracy"
+    )
     assert ds.attrs["checksum_recipe"] == store.CHECKSUM_RECIPE
     assert ds.attrs["Conventions"].startswith("CF-")
     assert ds.attrs["source"] == f"approx-atlas {atlas.__version__}"
@@ -281,7 +320,7 @@ def test_wrong_schema_version(tmp_path, tiny):
     other.attrs = dict(tiny.attrs, atlas_schema="999")
     path = cube.save_atlas(other, tmp_path / "future.nc")
     with pytest.raises(ValueError, match=r"atlas of schema version '999'; this version of "
-                                         r"approx-atlas reads schema '2'"):  # fmt: skip
+                                         r"approx-atlas reads schema '3'"):  # fmt: skip
         cube.load_dataset(path)
 
 

@@ -22,6 +22,7 @@ from numpy.testing import assert_allclose, assert_array_equal
 
 import atlas
 from atlas import METHODS, cube, query, store, worst_error, worst_interval
+from atlas.notation import format_bound
 from atlas.query import Atlas, Verdict, check_tol, open_atlas
 
 # The cube holds the engine's own float64 results, so on-grid values agree to rounding only.
@@ -72,7 +73,7 @@ def test_opening_reads_no_variable_and_caches_one_method(small_atlas):
         fresh.error(10, 0.5)
         fresh.error([10, 20], 0.5)
         read = [k for k in fresh._cache if k not in ("axes", "methods")]
-        assert read == [("interval_error", "normal_cc")]
+        assert read == [("interval_error", "normal_cc"), ("interval_accuracy", "normal_cc")]
 
 
 def test_one_reader_for_the_query_and_the_cube():
@@ -235,9 +236,10 @@ def test_is_safe_matches_brute_force(at, n, p, source, metric):
         v = at.is_safe(n, p, tol, metric=metric)
         assert isinstance(v, Verdict)
         assert v.source == source
-        assert v.safe is bool(v.error <= tol)
+        assert v.safe is bool(v.error + v.accuracy <= tol)  # conservative
         assert_allclose(v.error, error, rtol=SAME, atol=0)
-        assert v.margin == v.tol - v.error
+        assert v.margin == v.tol - (v.error + v.accuracy)
+        assert 0 < v.accuracy < 1e-13 and v.resolved
         assert (v.n, v.p, v.tol, v.method, v.metric) == (n, p, tol, "normal_cc", metric)
         assert v.worst_interval == worst_interval(n, p)  # brute force, from the engine
         assert all(type(x) is int for x in v.worst_interval)
@@ -264,8 +266,9 @@ def test_verdict_is_frozen_and_explains(at):
     )
     a, b = v.worst_interval
     assert v.explain() == (
-        f"n=50, p=0.1: normal_cc cdf error {v.error:.3g} <= tol 0.01? no "
-        f"(margin {v.margin:.3g}); worst interval [{a}, {b}]; from the atlas"
+        f"n=50, p=0.1: normal_cc cdf error {v.error:.4g} (accuracy "
+        f"{format_bound(v.accuracy, 1)}) <= tol 0.01? no (margin {v.margin:.3g}); worst "
+        f"interval [{a}, {b}]; from the atlas"
     )
     off_grid = at.is_safe(41, 0.1, 1.0).explain()
     assert "? yes (margin " in off_grid and off_grid.endswith("; computed exactly (no atlas cell)")
@@ -493,6 +496,98 @@ def test_best_method_ties_keep_the_order_of_methods(at):
     names = [m for m, _ in at.best_method(10, 0.5, metric="cdf")]
     assert at.methods.index("edgeworth_cc") < at.methods.index("normal_cc")
     assert names.index("normal_cc") < names.index("edgeworth_cc")
+
+
+def test_best_method_with_accuracy_ranks_and_ties(at):
+    ranked = at.best_method(10, 0.5, metric="cdf", return_accuracy=True)
+    assert all(isinstance(r, atlas.Ranked) for r in ranked)
+    assert [(r.method, r.error) for r in ranked] == at.best_method(10, 0.5, metric="cdf")
+    by_method = {r.method: r for r in ranked}
+    # normal_cc and edgeworth_cc coincide at p = 1/2 (above): one tie group, one rank.
+    assert by_method["normal_cc"].tied_with == ("edgeworth_cc",)
+    assert by_method["edgeworth_cc"].tied_with == ("normal_cc",)
+    assert by_method["normal_cc"].rank == by_method["edgeworth_cc"].rank
+    for r in ranked:  # the stored accuracies of the cube
+        assert r.accuracy == at.error(10, 0.5, method=r.method, metric="cdf",
+                                      return_accuracy=True).accuracy  # fmt: skip
+    # Ranks count the methods strictly better: 1 + the index of the group's first member.
+    assert [r.rank for r in ranked] == query.tie_groups(
+        [r.error for r in ranked], [r.accuracy for r in ranked]
+    )
+
+
+def test_best_method_ties_below_the_resolution(at):
+    # n = 10^12, p = 1/2 (computed by the engine): edgeworth2_cc (5.5e-26) and peizer_pratt
+    # (2.0e-16) differ by less than their accuracies (2e-17 + 4e-15, atlas.engine's model).
+    ranked = at.best_method(10**12, 0.5, return_accuracy=True)
+    by_method = {r.method: r for r in ranked}
+    assert by_method["edgeworth2_cc"].rank == by_method["peizer_pratt"].rank == 1
+    assert "peizer_pratt" in by_method["edgeworth2_cc"].tied_with
+    pp = by_method["peizer_pratt"]
+    assert not atlas.is_resolved(pp.error, pp.accuracy)
+
+
+@pytest.mark.parametrize(
+    ("errors", "accuracies", "ranks"),
+    [
+        ([0.1, 0.2, 0.3], [1e-15, 1e-15, 1e-15], [1, 2, 3]),  # far apart: no ties
+        ([1e-15, 2e-15, 0.01], [1e-15, 1e-15, 1e-15], [1, 1, 3]),  # 1e-15 <= 2e-15: tied
+        ([1e-15, 4e-15, 0.01], [1e-15, 1e-15, 1e-15], [1, 2, 3]),  # 3e-15 > 2e-15: not tied
+        ([0.0, 1.0, 2.0, 3.0], [0.5, 0.5, 0.5, 0.5], [1, 1, 1, 1]),  # a chain of neighbours
+    ],
+)  # the definition in atlas.query.tie_groups, worked by hand
+def test_tie_groups(errors, accuracies, ranks):
+    assert query.tie_groups(errors, accuracies) == ranks
+
+
+def test_error_returns_the_accuracy(at, at32):
+    # On the grid: the cube's stored accuracy; off it: the engine's (atlas.worst_error).
+    for n, p in ((50, 0.1), (41, 0.123)):
+        pair = at.error(n, p, return_accuracy=True)
+        assert isinstance(pair, atlas.WorstError) and type(pair.accuracy) is float
+        engine = worst_error(n, p, return_accuracy=True)
+        assert_allclose(pair.error, engine.error, rtol=SAME)
+        # float64 cube: the engine's bound rounded up to 4 significant bits (at most 12.5% more).
+        assert engine.accuracy <= pair.accuracy <= engine.accuracy * 1.125 * (1 + 2.0**-22)
+    # float32 cube: the float32 rounding of the stored value is inside the accuracy.
+    stored, accuracy = at32.error(50, 0.1, return_accuracy=True)
+    engine = worst_error(50, 0.1, return_accuracy=True)
+    assert abs(stored - engine.error) + engine.accuracy <= accuracy
+    assert accuracy <= (engine.accuracy + abs(engine.error) * 2.0**-23) * 1.125 * (1 + 2.0**-22)
+    # Arrays: the accuracy has the shape of the error.
+    errors, accuracies = at.error([10, 41], 0.5, return_accuracy=True)
+    assert errors.shape == accuracies.shape == (2,) and (accuracies > 0).all()
+
+
+def test_verdict_is_conservative(at):
+    # A tol between the error and error + accuracy: the true error may exceed it, so not safe.
+    v = at.is_safe(50, 0.1, 0.01)
+    tol = v.error + v.accuracy / 2
+    assert v.error < tol < v.error + v.accuracy
+    w = at.is_safe(50, 0.1, tol)
+    assert not w.safe and w.margin < 0 and w.resolved
+    assert not at.safe(50, 0.1, tol)
+    assert at.is_safe(50, 0.1, v.error + v.accuracy).safe  # the largest possible error fits
+    assert at.safe(50, 0.1, v.error + v.accuracy)
+    # Off the grid, the engine's accuracy.
+    off = at.is_safe(41, 0.123, 0.05)
+    assert off.source == "computed"
+    assert off.accuracy == worst_error(41, 0.123, return_accuracy=True).accuracy
+
+
+def test_explain_below_the_resolution(at):
+    # camp_paulson at (10^12, 1/2): 1.05e-14 with accuracy 4e-15 (computed): not resolved.
+    v = at.is_safe(10**12, 0.5, 1e-3, method="camp_paulson")
+    assert not v.resolved and v.safe
+    text = v.explain()
+    bound = format_bound(v.error + v.accuracy)
+    below = f"below the resolution of the exact side (< {bound}) "
+    assert f"camp_paulson interval error {below}" in text
+    assert f"{v.error:.3g}" not in text
+    assert float(bound) >= v.error + v.accuracy  # rounded up: still a bound
+    example = Verdict(True, 1e-15, 0.01, 0.01, "normal_cc", "interval", 10, 0.5, (2, 8),
+                      "computed", 1e-15, False)  # fmt: skip
+    assert "error below the resolution of the exact side (< 2e-15) <= tol" in example.explain()
 
 
 def test_safe_region(at, small_atlas):

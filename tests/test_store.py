@@ -154,9 +154,9 @@ def test_schema_1_is_refused_with_the_rebuild_command(tmp_path, capsys):
     command = (f"approx-atlas build --n '1:3,10' --p '0.1,0.5' --methods 'poisson,normal_cc' "
                f"-o {quoted} --force --float32")  # fmt: skip
     message = (
-        f"`path` {str(path)!r} is an atlas of schema version '1' (dimension 'method'), which "
-        f"this version of approx-atlas no longer reads (it reads schema '2', dimension "
-        f"'approximation'); rebuild it with: {command}"
+        f"`path` {str(path)!r} is an atlas of schema version '1' (dimension 'method', no "
+        f"accuracy variables), which this version of approx-atlas no longer reads (it reads "
+        f"schema '3', with an accuracy beside every error); rebuild it with: {command}"
     )
     for opener in (store.open_netcdf, cube.load_dataset, open_atlas):
         with pytest.raises(ValueError, match="^" + re.escape(message) + "$"):
@@ -165,17 +165,45 @@ def test_schema_1_is_refused_with_the_rebuild_command(tmp_path, capsys):
     assert main(["query", "--atlas", str(path), "--n", "10", "--p", "0.5", "--tol", "0.01"]) == 2
     err = capsys.readouterr().err  # the command line names its option, not the parameter
     assert err == f"approx-atlas: error: {message.replace('`path`', '`--atlas`', 1)}\n"
-    # The command works as printed (the shell's quoting undone by shlex) and makes a schema-2
+    # The command works as printed (the shell's quoting undone by shlex) and makes a schema-3
     # atlas of the same grid, methods and precision in place of the old file.
     argv = shlex.split(command)
     assert argv[0] == "approx-atlas" and argv[argv.index("-o") + 1] == str(path)
     assert main(argv[1:]) == 0
     capsys.readouterr()
     with cube.load_dataset(path, verify=True) as ds:
-        assert ds.attrs["atlas_schema"] == "2"
+        assert ds.attrs["atlas_schema"] == "3"
         assert (ds.attrs["n_spec"], ds.attrs["p_spec"]) == ("1:3,10", "0.1,0.5")
         assert [str(m) for m in ds["approximation"].values] == ["normal_cc", "poisson"]
         assert ds["interval_error"].dtype == np.float32
+
+
+def test_schema_2_is_refused_with_the_rebuild_command(tmp_path, capsys):
+    # A schema-2 file (no accuracy variables): refused with the command that rebuilds it, as
+    # schema 1 is; the command makes a schema-3 atlas with interval_accuracy and cdf_accuracy.
+    ds = atlas.build_atlas(n="5,9", p="0.2", methods="normal_cc", progress=False)
+    path = cube.save_atlas(cube.compact(ds), tmp_path / "old.nc")
+    with netCDF4.Dataset(path, "a") as f:
+        f.setncattr("atlas_schema", "2")
+    command = (f"approx-atlas build --n '5,9' --p '0.2' --methods 'normal_cc' -o '{path}' "
+               f"--force --float32")  # fmt: skip
+    message = (
+        f"`path` {str(path)!r} is an atlas of schema version '2' (no interval_accuracy and "
+        f"cdf_accuracy variables), which this version of approx-atlas no longer reads (it reads "
+        f"schema '3', with an accuracy beside every error); rebuild it with: {command}"
+    )
+    for opener in (store.open_netcdf, cube.load_dataset, open_atlas):
+        with pytest.raises(ValueError, match="^" + re.escape(message) + "$"):
+            opener(path)
+    assert main(["compare", "--atlas", str(path), "--n", "5", "--p", "0.2"]) == 2
+    err = capsys.readouterr().err
+    assert err == f"approx-atlas: error: {message.replace('`path`', '`--atlas`', 1)}\n"
+    assert main(shlex.split(command)[1:]) == 0
+    capsys.readouterr()
+    with cube.load_dataset(path, verify=True) as new:
+        assert new.attrs["atlas_schema"] == "3"
+        assert new["interval_accuracy"].dtype == np.float32
+        assert new["interval_error"].dtype == np.float32
 
 
 def test_schema_1_without_specs_and_in_float64(tmp_path):
@@ -260,7 +288,8 @@ def test_checksum_variables_must_be_the_schemas(tmp_path, small_atlas):
     with netCDF4.Dataset(path, "a") as f:
         f.setncattr("checksum_variables", "n p")
     message = (r"is corrupt: its checksum_variables attribute must be 'n p interval_error "
-               r"cdf_error interval_lo interval_hi'; got 'n p'\.$")  # fmt: skip
+               r"cdf_error interval_lo interval_hi interval_accuracy cdf_accuracy'; got "
+               r"'n p'\.$")  # fmt: skip
     with pytest.raises(ValueError, match=message):
         cube.load_dataset(path, verify=True)
     with pytest.raises(ValueError, match=message):
