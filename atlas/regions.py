@@ -94,8 +94,9 @@ def admitted_runs(rule, grid_n, p):
         cuts = np.flatnonzero(adm[1:] != adm[:-1]) + 1
         starts = [0, *cuts.tolist()]
         ends = [*cuts.tolist(), seg.size]
-        pieces += [(int(seg[a]), int(seg[b - 1]), bool(adm[a])) for a, b in zip(starts, ends,
-                                                                               strict=True)]
+        pieces += [
+            (int(seg[a]), int(seg[b - 1]), bool(adm[a])) for a, b in zip(starts, ends, strict=True)
+        ]
         prev = int(grid_n[i])
     if prev < int(grid_n[-1]):
         pieces.append((prev + 1, int(grid_n[-1]), bool(mask[-1])))
@@ -151,8 +152,11 @@ class RuleWorst:
 
     def offer(self, value, n, p):
         """Take (n, p) as the worst when its value is larger (a NaN counts as worst)."""
-        if self.worst is None or value > self.worst or (math.isnan(value)
-                                                        and not math.isnan(self.worst)):
+        if (
+            self.worst is None
+            or value > self.worst
+            or (math.isnan(value) and not math.isnan(self.worst))
+        ):
             self.worst, self.n, self.p = float(value), int(n), float(p)
 
     def checked(self):
@@ -163,7 +167,9 @@ class RuleWorst:
         if not self.bounded:
             return (text + f"; larger n at the {total} grid p checked at grid n and the n "
                     "evaluated only (no step bound for this method)")  # fmt: skip
-        text += f"; every larger admitted integer bounded at {self.grid_p_bounded} of {total} grid p"
+        text += (
+            f"; every larger admitted integer bounded at {self.grid_p_bounded} of {total} grid p"
+        )
         if self.grid_p_open:
             text += f" ({self.grid_p_open} with gaps checked at the n evaluated only)"
         return text
@@ -307,7 +313,6 @@ def _cover_larger(row, rule, grid_n, grid_p, column_values, runs_at, values):
             row.grid_p_open += 1
             continue
         open_gap = False
-        rho_all = ext_all = None
         for first, last in runs:
             inside = (grid_n >= first) & (grid_n <= last)
             points = sorted(set(grid_n[inside].tolist()) | {first, last}
@@ -323,23 +328,15 @@ def _cover_larger(row, rule, grid_n, grid_p, column_values, runs_at, values):
             if not wide.any():
                 continue
             a, b = a[wide], b[wide]
-            if rho_all is None:
-                rho_all = step_bound(method, grid_n, p)
-                ext_all = extension_bound(method, grid_n, p, metric)
-            i = np.searchsorted(grid_n, a)
-            on = grid_n[np.minimum(i, grid_n.size - 1)] == a
-            rho = np.where(on, rho_all[np.minimum(i, grid_n.size - 1)], 0.0)
-            ext = np.where(on, ext_all[np.minimum(i, grid_n.size - 1)], 0.0)
-            off = np.flatnonzero(~on)
-            if off.size:
-                rho[off] = step_bound(method, a[off], p)
-                ext[off] = extension_bound(method, a[off], p, metric)
+            rho = step_bound(method, a, p)
+            ext = extension_bound(method, a, p, metric)
             va = np.array([known[n] for n in a.tolist()])
             ok = _within(va, ext, (b - a - 1) * rho, metric, row.worst)
             if not ok.all():  # bisection of such gaps: see GAP_BUDGET (0: left open, said)
                 open_gap = open_gap or not all(
                     _bisect(row, lo, hi, p, known, values, key)
-                    for lo, hi in zip(a[~ok].tolist(), b[~ok].tolist(), strict=True))
+                    for lo, hi in zip(a[~ok].tolist(), b[~ok].tolist(), strict=True)
+                )
         if open_gap:
             row.grid_p_open += 1
         else:
