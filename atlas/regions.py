@@ -455,7 +455,7 @@ def safe_cells(grid_n, grid_p, errors, tol, *, method, metric):
         pieces = {j: [float(edges[j]), float(grid_p[j]), float(edges[j + 1])] for j in todo}
         for _ in range(CELL_ROUNDS):
             new = []
-            for j, pts in pieces.items():
+            for pts in pieces.values():
                 if not all(known[x] <= tol for x in pts):
                     continue
                 for pa, pb in zip(pts[:-1], pts[1:], strict=True):
