@@ -34,9 +34,9 @@ def test_cell_edges_are_log_odds_midpoints():
 
 def test_audit_worst_not_contradicted_off_grid(small):
     rule = "n*p >= 5 and n*q >= 5"
-    row = rule_audit(small, [rule], metrics=["interval"]).rows[0]
+    row = rule_audit(small, [rule], metrics=["interval"], between=True).rows[0]
     assert row.checked is not None and row.checked.p_checked >= 19
-    grid_row = rule_audit(small, [rule], metrics=["interval"], between=False).rows[0]
+    grid_row = rule_audit(small, [rule], metrics=["interval"]).rows[0]
     assert row.worst_error >= grid_row.worst_error
     parsed = parse_rule(rule)
     rng = np.random.default_rng(10)
