@@ -468,7 +468,8 @@ def rule_audit(atlas, rules=None, *, methods=None, metrics=METRICS, tols=AUDIT_T
     between : bool, optional
         True: the worst error over every integer n and p of the atlas's ranges the rule
         admits, checked as :func:`atlas.regions.rule_worst` says (``AuditRow.checked``; about
-        40 s on the default atlas); False (default for now): over the grid cells only. The shares count grid cells either way.
+        40 s on the default atlas); False (default for now): over the grid cells only.
+        The shares count grid cells either way.
 
     Returns
     -------
