@@ -892,7 +892,7 @@ class Atlas:
             out.append(Ranked(methods[k], errors[k], accuracies[k], rank_of[k], tied))
         return out
 
-    def safe_region(self, tol, *, method="normal_cc", metric="interval"):
+    def safe_region(self, tol, *, method="normal_cc", metric="interval", between=False):
         """Where on the grid the error is within ``tol``.
 
         Parameters
@@ -902,6 +902,12 @@ class Atlas:
         method, metric : str, optional
             As for :meth:`error`; a method the atlas does not store is computed over the whole
             grid by the engine (as long as building it).
+        between : bool, optional
+            False (default): True at (n_i, p_j) means the error at that grid point is within
+            ``tol``. True: it means the error at n_i is within ``tol`` at p_j, at both edges of
+            its p-cell (log-odds midpoints to the neighbours) and at points bisected between
+            them where the errors differ or come near ``tol``, or for every p of the cell by the
+            large-n bound (:func:`atlas.regions.safe_cells`); attrs ``claim`` and ``checked``.
 
         Returns
         -------
@@ -919,8 +925,28 @@ class Atlas:
         tol_value, method = _question(tol, method, metric)
         n_axis, p_axis = self._axes()
         errors = self._columns(0, n_axis.size, p_axis, method, metric)
+        extra = {"claim": "error <= tol at the grid point (n, p) only"}
+        safe = errors <= tol_value
+        if between:
+            from atlas.regions import CELL_ROUNDS, safe_cells
+
+            safe, stats = safe_cells(n_axis, p_axis, errors, tol_value, method=method,
+                                     metric=metric)  # fmt: skip
+            extra = {
+                "claim": (
+                    "error <= tol at n for p at the grid p, both edges of its p-cell "
+                    "(log-odds midpoints to the neighbours) and the points bisected "
+                    f"between them ({CELL_ROUNDS} rounds), or for every p of the cell by "
+                    "the Berry-Esseen bound"
+                ),  # fmt: skip
+                "checked": (
+                    f"{stats['evaluated']} engine points off the grid "
+                    f"({stats['refined']} bisected); {stats['bounded_cells']} cells "
+                    "by the large-n bound"
+                ),  # fmt: skip
+            }
         return xr.DataArray(
-            errors <= tol_value,
+            safe,
             dims=("n", "p"),
             coords={"n": self.dataset["n"], "p": self.dataset["p"]},
             name="safe",
@@ -930,6 +956,7 @@ class Atlas:
                 "tol": tol_value,
                 "method": method,
                 "metric": metric,
+                **extra,
             },
         )
 
