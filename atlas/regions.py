@@ -382,7 +382,7 @@ def cell_edges(grid_p):
 
     Examples
     --------
-    >>> [round(x, 4) for x in cell_edges(np.array([0.1, 0.5, 0.9]))]
+    >>> [round(float(x), 4) for x in cell_edges(np.array([0.1, 0.5, 0.9]))]
     [0.1, 0.25, 0.75, 0.9]
     """
     grid_p = np.asarray(grid_p, dtype=np.float64)
