@@ -25,14 +25,15 @@ from the repository root (about ten seconds)::
     .venv/bin/python build_scripts/make_coverage_references.py
 """
 
-import json
 import os
 import platform
 import sys
-import tempfile
 
 import mpmath
 from mpmath import mp, mpf
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from make_reference_values import write_json_atomic  # noqa: E402 - one atomic JSON writer
 
 DPS = 40
 SIG = 30
@@ -229,12 +230,7 @@ def main():
                 }
             )
         print(f"band n={n} done", file=sys.stderr)
-    directory = os.path.dirname(OUT)
-    fd, tmp = tempfile.mkstemp(dir=directory, prefix=".coverage_references.", suffix=".tmp")
-    with os.fdopen(fd, "w") as handle:
-        json.dump(record, handle, indent=1)
-        handle.write("\n")
-    os.replace(tmp, OUT)
+    write_json_atomic(OUT, record)
     print(f"wrote {OUT}")
 
 

@@ -40,18 +40,21 @@ Run from the repository root (about 15 minutes on one quiet core)::
 from __future__ import annotations
 
 import argparse
-import json
 import os
 import platform
 import sys
-import tempfile
 import time
 
 import mpmath
 from mpmath import mp, mpf
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from make_reference_values import ALL_METHODS, Cell, approximation_single  # noqa: E402
+from make_reference_values import (  # noqa: E402
+    ALL_METHODS,
+    Cell,
+    approximation_single,
+    write_json_atomic,  # noqa: E402 - one atomic JSON writer
+)
 
 DPS = 40
 SPLITS = (-40, -20, -10, -6, -3, -1.5, 0, 1.5, 3, 6, 10, 20, 40)
@@ -267,21 +270,6 @@ def worst_cell(n, p):
             }
         )
     return out, len(cache_f)
-
-
-def write_json_atomic(path, payload):
-    directory = os.path.dirname(os.path.abspath(path))
-    fd, tmp = tempfile.mkstemp(prefix=".large_n.", suffix=".tmp", dir=directory)
-    try:
-        os.chmod(tmp, 0o644)
-        with os.fdopen(fd, "w") as fh:
-            json.dump(payload, fh, indent=1)
-            fh.write("\n")
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
 
 
 def main(argv=None):

@@ -20,15 +20,16 @@ Run from the repository root (about a minute)::
     .venv/bin/python build_scripts/make_tail_references.py
 """
 
-import json
 import os
 import platform
 import sys
-import tempfile
 import time
 
 import mpmath
 from mpmath import mp, mpf
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from make_reference_values import write_json_atomic  # noqa: E402 - one atomic JSON writer
 
 DPS = 40
 SIG = 20
@@ -170,12 +171,7 @@ def main():
     }
     record["elapsed_seconds"] = round(time.time() - start, 1)
     target = os.path.join(os.path.dirname(__file__), "..", "tests", "data", "tail_references.json")
-    fd, tmp = tempfile.mkstemp(dir=os.path.dirname(target), suffix=".tmp")
-    with os.fdopen(fd, "w") as f:
-        json.dump(record, f, indent=1)
-        f.write("\n")
-    os.chmod(tmp, 0o644)
-    os.replace(tmp, target)
+    write_json_atomic(target, record)
     print(f"wrote {os.path.normpath(target)} in {record['elapsed_seconds']} s", file=sys.stderr)
 
 
