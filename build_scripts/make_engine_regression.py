@@ -1,4 +1,4 @@
-"""Regenerate ``tests/data/engine_regression.npz``: the engine's results on a grid, as regression values.
+"""Regenerate ``tests/data/engine_regression.npz``: the engine's results on a grid (regression).
 
 Not a reference: these are the engine's own outputs (computed, regression value), stored so that
 a change to the search or the evaluation of D can be checked to leave every result identical bit

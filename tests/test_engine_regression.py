@@ -63,7 +63,8 @@ def test_unresolved_results_within_accuracy(stored, fresh, metric):
 def test_cells_in_any_order_match_the_grid(stored):
     # source: computed, regression value; evaluate_cells computes one method at a time, whose
     # windows (the union over the methods computed together) and so the start of the summed F
-    # can differ from the grid's: the values agree to their accuracy.
+    # can differ from the grid's, and a window narrow for one method may be wide for all seven
+    # (summed F for one, the series for the other): the values agree to the larger accuracy.
     rng = np.random.default_rng(14)
     j = rng.integers(0, stored["n"].size, 300)
     i = rng.integers(0, stored["p"].size, 300)
@@ -71,4 +72,5 @@ def test_cells_in_any_order_match_the_grid(stored):
         got = evaluate_cells(stored["n"][j], stored["p"][i], method, accuracy=True)
         for g, f in ((0, "interval"), (1, "cdf")):
             want, accuracy = stored[f][m, j, i], stored[f"{f}_accuracy"][m, j, i]
-            assert np.all(np.abs(got[g] - want) <= accuracy), (method, f)
+            bound = np.maximum(accuracy, got[4 + g])
+            assert np.all(np.abs(got[g] - want) <= bound), (method, f)
