@@ -347,17 +347,45 @@ def _every_integer(n, p, lo, hi, methods):
 
     Returns arrays (len(methods), rows) of max D, its k, min D, its k.
     """
-    k, valid, cdf = _cdf_rows(n, p, lo, hi)
     shape = (len(methods), p.size)
     out = _extremes(shape)
-    rows = np.arange(p.size)
-    for i, method in enumerate(methods):
-        d = cdf - approximate_cdf(k, n, p[:, None], method)
-        imax = np.argmax(np.where(valid, d, -np.inf), axis=1)
-        imin = np.argmin(np.where(valid, d, np.inf), axis=1)
-        out[0][i], out[1][i] = d[rows, imax], k[rows, imax]
-        out[2][i], out[3][i] = d[rows, imin], k[rows, imin]
+    for group in _width_groups(hi - lo + 1):
+        k, valid, cdf = _cdf_rows(n, p[group], lo[group], hi[group])
+        rows = np.arange(group.size)
+        for i, method in enumerate(methods):
+            d = cdf - approximate_cdf(k, n, p[group, None], method)
+            imax = np.argmax(np.where(valid, d, -np.inf), axis=1)
+            imin = np.argmin(np.where(valid, d, np.inf), axis=1)
+            out[0][i, group], out[1][i, group] = d[rows, imax], k[rows, imax]
+            out[2][i, group], out[3][i, group] = d[rows, imin], k[rows, imin]
     return out
+
+
+_GROUP_RATIO = 1.5
+_GROUP_SMALL = 48
+
+
+def _width_groups(width):
+    """Rows grouped so that each group's padded rectangle wastes little.
+
+    Rows are sorted by window width and cut where the width falls below 1 / ``_GROUP_RATIO`` of
+    the group's widest; windows of at most ``_GROUP_SMALL`` integers share one group. Every row
+    is computed alone within its rectangle (F summed along the row, G elementwise), so the
+    grouping changes no value, only the padding evaluated (3.6 times the windows' total at
+    n = 1000 over the default p axis without it).
+    """
+    order = np.argsort(-width, kind="stable")
+    sorted_width = width[order]
+    groups = []
+    start = 0
+    while start < order.size:
+        top = sorted_width[start]
+        floor = _GROUP_SMALL if top <= _GROUP_SMALL else top / _GROUP_RATIO
+        stop = start + int(np.searchsorted(-sorted_width[start:], -floor, side="right"))
+        stop = order.size if top <= _GROUP_SMALL else max(stop, start + 1)
+        groups.append(np.sort(order[start:stop]))
+        start = stop
+    return groups
 
 
 def _sample_coordinate(t):
