@@ -430,34 +430,68 @@ def _nested_search(n, p, lo, hi, methods):
     t = _sample_position(c)
     coarse = np.round(mu[:, None] + sigma[:, None] * t).astype(np.int64)
     coarse = np.minimum(np.maximum(coarse, lo[:, None]), hi[:, None])
-    pcol = p[:, None]
     order = int(orders[0])
-    shape = (len(methods), p.size)
-    out = _extremes(shape)
-    p2 = np.concatenate([p, p])
-    coarse2 = np.concatenate([coarse, coarse])
-    for i, method in enumerate(methods):
-        gamma = _series_coefficients(n, p, method, order)
-        d = _deviation(coarse, n, pcol, method, gamma)
-        # Maxima of D and maxima of -D (the minima of D) are refined together.
-        gamma2 = np.concatenate([gamma, gamma])
-        value, where = _refine(n, p2, coarse2, np.concatenate([d, -d]), method, gamma2)
-        out[0][i], out[1][i] = value[: p.size], where[: p.size]
-        out[2][i], out[3][i] = -value[p.size :], where[p.size :]
-    return out
+    # Every method samples the same points: z, phi(z), Phi(z) and the series of F (one per
+    # first order of the methods' series) are computed once and shared (the same operations on
+    # the same numbers as _deviation, so the same values).
+    gammas = {}
+    for method in methods:
+        first = _NORMAL_FAMILY.get(method, 1)
+        if first not in gammas:
+            gammas[first] = _series_coefficients(n, p, method, order)
+    shared = _SharedPoints(coarse, n, p[:, None], gammas)
+    d = np.concatenate([shared.deviation(method) for method in methods])
+    # Maxima of D and maxima of -D (the minima of D) are refined together, every method at once:
+    # rows (method, sign, p).
+    reps = 2 * len(methods)
+    mrow = np.repeat(np.arange(len(methods)), 2 * p.size)
+    sign = np.tile(np.repeat([1.0, -1.0], p.size), len(methods))
+    sd = np.concatenate([np.stack([x, -x]) for x in np.split(d, len(methods))]).reshape(
+        reps * p.size, -1
+    )
+    pidx = np.tile(np.arange(p.size), reps)
+    value, where = _refine(n, p, pidx, coarse, sd, sign, mrow, methods, gammas)
+    value = value.reshape(len(methods), 2, p.size)
+    where = where.reshape(len(methods), 2, p.size)
+    return [value[:, 0], where[:, 0], -value[:, 1], where[:, 1]]
 
 
-def _refine(n, p, coarse, sd, method, gamma):
+class _SharedPoints:
+    """D of several methods at the same points k (rows of p): z, phi, Phi(z) computed once."""
+
+    def __init__(self, k, n, p, gammas):
+        self.k, self.n, self.p = k, n, p
+        q = 1.0 - p
+        sigma = np.sqrt(n * p * q)
+        self.z = offset(k.astype(np.float64) + 0.5, np.float64(n), p, q) / sigma
+        self.density = -np.exp(-0.5 * self.z * self.z) / _SQRT_2PI
+        self.gammas = gammas
+        self.tails = {}
+        self.big_phi = None
+
+    def deviation(self, method):
+        first = _NORMAL_FAMILY.get(method, 1)
+        if first not in self.tails:
+            self.tails[first] = self.density * asymptotic.hermite_sum(self.z, self.gammas[first])
+        tail = self.tails[first]
+        if method in _NORMAL_FAMILY:
+            return tail
+        if self.big_phi is None:
+            self.big_phi = special.ndtr(self.z)
+        return (self.big_phi - approximate_cdf(self.k, self.n, self.p, method)) + tail
+
+
+def _refine(n, p, pidx, coarse, sd, sign, mrow, methods, gammas):
     """Refine the best local maxima of sampled s D to the exact integer maximum of s D.
 
-    Rows of ``sd`` hold s D on the ``coarse`` points, with s = +1 for the first half of the rows
-    and s = -1 for the second half. Each of the best local maxima is bracketed by its two
-    neighbouring samples; a bracket wider than ``FULL_LIMIT`` is resampled on
-    ``_REFINE_POINTS`` points and narrowed around its best sample, and every integer of the final
-    brackets is evaluated.
+    Row r of ``sd`` holds s D on the points ``coarse[pidx[r]]`` for p = ``p[pidx[r]]`` and the
+    method ``methods[mrow[r]]``, with s = ``sign[r]``; ``gammas`` maps the first order of a
+    method's series to its coefficients, one row per p. Each of the best local maxima is
+    bracketed by its two neighbouring samples; a bracket of ``BRACKET_LIMIT`` integers or more
+    is resampled on ``_REFINE_POINTS`` points and narrowed around its best sample, and every
+    integer of the final brackets is evaluated.
     """
     rows, count = sd.shape
-    sign = np.where(np.arange(rows) < rows // 2, 1.0, -1.0)
     # Local maxima of the samples (plateaus count); the best _CANDIDATES of each row.
     peak = np.ones(sd.shape, dtype=bool)
     peak[:, 1:] &= sd[:, 1:] >= sd[:, :-1]
@@ -477,34 +511,60 @@ def _refine(n, p, coarse, sd, method, gamma):
     keep[:, 0] = True
     row_idx, col = np.nonzero(keep)
     idx = best[row_idx, col]
-    lower = coarse[row_idx, np.maximum(idx - 1, 0)]
-    upper = coarse[row_idx, np.minimum(idx + 1, count - 1)]
-    prow = p[row_idx]
-    grow = gamma[row_idx]
-    srow = sign[row_idx][:, None]
+    prow_idx = pidx[row_idx]
+    lower = coarse[prow_idx, np.maximum(idx - 1, 0)]
+    upper = coarse[prow_idx, np.minimum(idx + 1, count - 1)]
+    prow = p[prow_idx]
+    mcand = mrow[row_idx]
     steps = np.linspace(0.0, 1.0, _REFINE_POINTS)
+
+    def signed_deviation(k, which):
+        """s D at points k of the candidates ``which``: one row of k per candidate (2-D), or
+        one candidate per point (1-D); each candidate with its own p and method."""
+        out = np.empty(k.shape)
+        for i in np.unique(mcand[which]).tolist():
+            method = methods[i]
+            at = mcand[which] == i
+            sub = which[at]
+            gamma = gammas[_NORMAL_FAMILY.get(method, 1)][prow_idx[sub]]
+            if k.ndim == 1:  # p and the coefficients per point
+                out[at] = _deviation(k[at], n, prow[sub], method, gamma[:, 0])
+            else:
+                out[at] = _deviation(k[at], n, prow[sub][:, None], method, gamma)
+        return sign[row_idx[which]].reshape(which.shape + (1,) * (k.ndim - 1)) * out
+
     while (upper - lower >= BRACKET_LIMIT).any():
         wide = np.flatnonzero(upper - lower >= BRACKET_LIMIT)
         span = (upper[wide] - lower[wide]).astype(np.float64)
         pts = np.round(lower[wide][:, None] + steps[None, :] * span[:, None]).astype(np.int64)
-        vals = srow[wide] * _deviation(pts, n, prow[wide][:, None], method, grow[wide])
+        vals = signed_deviation(pts, wide)
         j = np.argmax(vals, axis=1)
         h = np.arange(wide.size)
         lower[wide] = pts[h, np.maximum(j - 1, 0)]
         upper[wide] = pts[h, np.minimum(j + 1, _REFINE_POINTS - 1)]
-    width = int((upper - lower).max()) + 1
-    k = lower[:, None] + np.arange(width)[None, :]
-    valid = k <= upper[:, None]
-    k = np.minimum(k, upper[:, None])
-    vals = np.where(valid, srow * _deviation(k, n, prow[:, None], method, grow), -np.inf)
-    j = np.argmax(vals, axis=1)
-    h = np.arange(j.size)
+    # Every integer of the final brackets, evaluated as one flat array (no padding).
+    length = upper - lower + 1
+    cid = np.repeat(np.arange(length.size), length)
+    starts = np.cumsum(length) - length
+    k = lower[cid] + (np.arange(cid.size) - starts[cid])
+    vals = signed_deviation(k, cid)
+    best_k, best_val = _segment_argmax(vals, k, starts, cid)
     value = np.full((rows, take), -np.inf)
     where = np.zeros((rows, take), dtype=np.int64)
-    value[row_idx, col] = vals[h, j]
-    where[row_idx, col] = k[h, j]
+    value[row_idx, col] = best_val
+    where[row_idx, col] = best_k
     pick = np.argmax(value, axis=1)
     return value[r[:, 0], pick], where[r[:, 0], pick]
+
+
+def _segment_argmax(vals, k, starts, segment):
+    """For each segment of ``vals`` (starting at ``starts``), its maximum and the k of its first
+    occurrence: numpy.argmax row by row, NaN counting as the maximum as it does there."""
+    top = np.maximum.reduceat(vals, starts)[segment]
+    at_top = np.where(np.isnan(top), np.isnan(vals), vals == top)
+    first = np.where(at_top, np.arange(vals.size), vals.size)
+    index = np.minimum.reduceat(first, starts)
+    return k[index], vals[index]
 
 
 def evaluate(n, p, *, methods=METHODS, full=False):
