@@ -298,22 +298,31 @@ def _poisson_pmf(j, mu):
     would be several units at j = 10^15 (Loader 2000, "Fast and accurate computation of binomial
     probabilities").
     """
-    j = np.asarray(j, dtype=np.float64)
+    # Each branch is computed on its own points only (the same operations, so the same values
+    # as computing both everywhere and choosing).
+    j, mu = np.broadcast_arrays(np.asarray(j, dtype=np.float64), np.asarray(mu, np.float64))
     jj = np.maximum(j, 1.0)
     t = (mu - jj) / jj
     small_t = np.abs(t) < 1e-3
-    ts = np.where(small_t, t, 0.0)
-    series = ts * ts * (0.5 - ts * (1.0 / 3.0 - ts * (0.25 - ts * (0.2 - ts / 6.0))))
+    gap = np.empty(t.shape)
+    ts = t[small_t]
+    gap[small_t] = ts * ts * (0.5 - ts * (1.0 / 3.0 - ts * (0.25 - ts * (0.2 - ts / 6.0))))
+    td = t[~small_t]
     with np.errstate(divide="ignore", invalid="ignore"):
-        direct = t - np.log1p(np.where(small_t, 0.0, t))
-    gap = np.where(small_t, series, direct)
-    stirling = np.where(
-        jj >= 15,
-        1.0 / (12.0 * jj) - 1.0 / (360.0 * jj**3) + 1.0 / (1260.0 * jj**5),
-        special.gammaln(jj + 1.0) - (jj + 0.5) * np.log(jj) + jj - 0.5 * np.log(2.0 * np.pi),
+        gap[~small_t] = td - np.log1p(td)
+    stirling = np.empty(t.shape)
+    large = jj >= 15
+    jl = jj[large]
+    stirling[large] = 1.0 / (12.0 * jl) - 1.0 / (360.0 * jl**3) + 1.0 / (1260.0 * jl**5)
+    js = jj[~large]
+    stirling[~large] = (
+        special.gammaln(js + 1.0) - (js + 0.5) * np.log(js) + js - 0.5 * np.log(2.0 * np.pi)
     )
     log_pmf = -jj * gap - stirling - 0.5 * np.log(2.0 * np.pi * jj)
-    return np.where(j < 1.0, np.exp(-mu), np.exp(log_pmf))
+    out = np.asarray(np.exp(log_pmf))
+    zero = j < 1.0
+    out[zero] = np.exp(-mu[zero])
+    return out
 
 
 def _at_ends(k, n, value):
