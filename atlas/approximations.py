@@ -249,16 +249,18 @@ def poisson(k, n, p):
     # whose term is below 1e-25 here.
     # special.pdtr is scipy.stats.poisson.cdf without its argument checks; it gives NaN for
     # k < 0, where the CDF is 0.
-    big, small = _two_product(n[low], p[low])
-    j = np.maximum(k[low], 0.0)
-    below = special.pdtr(j, big) - small * _poisson_pmf(j, big)
-    out[low] = np.where(k[low] < 0, 0.0, below)
+    if low.any():  # (each side is skipped when it has no points, for speed on small arrays)
+        big, small = _two_product(n[low], p[low])
+        j = np.maximum(k[low], 0.0)
+        below = special.pdtr(j, big) - small * _poisson_pmf(j, big)
+        out[low] = np.where(k[low] < 0, 0.0, below)
     high = ~low
-    # P(Y >= n - k) = sf(n - k - 1); the count of failures has mean n q.
-    big, small = _two_product(n[high], q[high])
-    m = np.maximum(n[high] - k[high] - 1.0, 0.0)
-    above = special.pdtrc(m, big) + small * _poisson_pmf(m, big)
-    out[high] = np.where(n[high] - k[high] - 1.0 < 0, 1.0, above)
+    if high.any():
+        # P(Y >= n - k) = sf(n - k - 1); the count of failures has mean n q.
+        big, small = _two_product(n[high], q[high])
+        m = np.maximum(n[high] - k[high] - 1.0, 0.0)
+        above = special.pdtrc(m, big) + small * _poisson_pmf(m, big)
+        out[high] = np.where(n[high] - k[high] - 1.0 < 0, 1.0, above)
     return out
 
 
@@ -277,15 +279,17 @@ def poisson_complement(k, n, p):
     k, n, p, q, mu, sigma = np.broadcast_arrays(*_moments(k, n, p))
     out = np.empty(k.shape)
     low = p <= 0.5
-    big, small = _two_product(n[low], p[low])
-    j = np.maximum(k[low], 0.0)
-    above = special.pdtrc(j, big) + small * _poisson_pmf(j, big)
-    out[low] = np.where(k[low] < 0, 1.0, above)
+    if low.any():
+        big, small = _two_product(n[low], p[low])
+        j = np.maximum(k[low], 0.0)
+        above = special.pdtrc(j, big) + small * _poisson_pmf(j, big)
+        out[low] = np.where(k[low] < 0, 1.0, above)
     high = ~low
-    big, small = _two_product(n[high], q[high])
-    m = np.maximum(n[high] - k[high] - 1.0, 0.0)
-    below = special.pdtr(m, big) - small * _poisson_pmf(m, big)
-    out[high] = np.where(n[high] - k[high] - 1.0 < 0, 0.0, below)
+    if high.any():
+        big, small = _two_product(n[high], q[high])
+        m = np.maximum(n[high] - k[high] - 1.0, 0.0)
+        below = special.pdtr(m, big) - small * _poisson_pmf(m, big)
+        out[high] = np.where(n[high] - k[high] - 1.0 < 0, 0.0, below)
     return out
 
 

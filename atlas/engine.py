@@ -522,9 +522,10 @@ def _refine(n, p, pidx, coarse, sd, sign, mrow, methods, gammas):
         """s D at points k of the candidates ``which``: one row of k per candidate (2-D), or
         one candidate per point (1-D); each candidate with its own p and method."""
         out = np.empty(k.shape)
-        for i in np.unique(mcand[which]).tolist():
+        split = len(methods) > 1  # one method: no masks
+        for i in np.unique(mcand[which]).tolist() if split else [0]:
             method = methods[i]
-            at = mcand[which] == i
+            at = mcand[which] == i if split else slice(None)
             sub = which[at]
             gamma = gammas[_NORMAL_FAMILY.get(method, 1)][prow_idx[sub]]
             if k.ndim == 1:  # p and the coefficients per point

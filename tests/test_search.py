@@ -100,3 +100,70 @@ def test_evaluate_cells_keeps_the_order_of_mixed_and_repeated_cells():
         alone = engine.evaluate(int(n[c]), [p[c]], methods=("edgeworth_cc",))
         assert interval[c] == alone.interval[0, 0] and cdf[c] == alone.cdf[0, 0]
         assert (lo[c], hi[c]) == (alone.lo[0, 0], alone.hi[0, 0])
+
+
+def _every_integer_of_the_series(n, p, method, lo, hi):
+    """max D, its k, min D, its k over every integer of [lo, hi], D as the wide search computes it
+    (the lattice Edgeworth expansion of F, :func:`atlas.engine._deviation`)."""
+    k = np.arange(lo, hi + 1)
+    order = int(engine._orders(np.sqrt(n * p * (1.0 - p))))
+    gamma = engine._series_coefficients(n, np.array([p]), method, order)[0]
+    d = engine._deviation(k, n, np.array([p]), method, gamma)
+    return d.max(), k[d.argmax()], d.min(), k[d.argmin()]
+
+
+# Wide windows for every method, the least smooth D among them (poisson, camp_paulson,
+# peizer_pratt, edgeworth2_cc, normal), skewed p, and a small mean n p = 20,000 at n = 10^8.
+SERIES_CELLS = [(200_000, 0.5), (1_000_000, 0.3), (3_000_000, 0.02), (10**8, 2e-4)]
+
+
+@pytest.mark.parametrize(("n", "p"), SERIES_CELLS)
+def test_nested_search_equals_every_integer_of_the_same_deviation(n, p):
+    # The search samples D, brackets its best local maxima and evaluates every integer of the
+    # final brackets; against D evaluated at every integer of the same window it must find the
+    # same extremes. Where D is flat to its rounding (|D| near 1e-13 with G rounded to 1e-16)
+    # the integer maximum of the rounded values is a matter of rounding, and the two may pick
+    # different k whose D agree to the accuracy of D: the values are compared to it, the k
+    # only where the value is identical.
+    lo, hi, _ = engine._windows(n, np.array([p]), METHODS)
+    assert hi[0] - lo[0] + 1 > engine.FULL_LIMIT  # the search path
+    got = engine._nested_search(n, np.array([p]), lo, hi, METHODS)
+    size = np.maximum(np.abs(got[0][:, 0]), np.abs(got[2][:, 0]))
+    accuracy = engine._deviation_accuracy(
+        n, np.array([p]), METHODS, np.array([False]), size[:, None]
+    )
+    for i, method in enumerate(METHODS):
+        dmax, kmax, dmin, kmin = _every_integer_of_the_series(n, p, method, lo[0], hi[0])
+        for value, where, want, want_k in (
+            (got[0], got[1], dmax, kmax),
+            (got[2], got[3], dmin, kmin),
+        ):
+            assert abs(value[i, 0] - want) <= accuracy[i, 0], (method, value[i, 0], want)
+            if value[i, 0] == want:
+                assert where[i, 0] == want_k, method
+
+
+def test_methods_searched_together_or_alone_agree_bit_for_bit():
+    # The search shares the samples' z, phi(z), Phi(z) and series among the methods and refines
+    # their candidates together; each method alone on the same window must give the same bits.
+    n, p = 2_000_000, np.array([0.003, 0.3, 0.5, 0.8])
+    lo, hi, _ = engine._windows(n, p, METHODS)
+    together = engine._nested_search(n, p, lo, hi, METHODS)
+    for i, method in enumerate(METHODS):
+        alone = engine._nested_search(n, p, lo, hi, (method,))
+        for whole, part in zip(together, alone, strict=True):
+            assert_array_equal(whole[i], part[0])
+
+
+def test_width_groups_change_no_value(monkeypatch):
+    # Narrow windows are evaluated in groups of similar width; one padded rectangle for all the
+    # rows (the grouping switched off) must give the same bits.
+    p = np.array([1e-9, 1e-4, 0.003, 0.02, 0.1, 0.37, 0.5, 0.9, 0.999])
+    for n in (5, 700, 1963, 30_000):
+        grouped = engine.evaluate(n, p)
+        monkeypatch.setattr(engine, "_GROUP_RATIO", np.inf)
+        monkeypatch.setattr(engine, "_GROUP_SMALL", 10**9)
+        single = engine.evaluate(n, p)
+        monkeypatch.undo()
+        for name in ("interval", "cdf", "lo", "hi", "interval_accuracy", "cdf_accuracy"):
+            assert_array_equal(getattr(grouped, name), getattr(single, name), err_msg=name)
