@@ -68,6 +68,7 @@ A value is resolved (:func:`is_resolved`) when it exceeds ``RESOLUTION_FACTOR`` 
 accuracy; otherwise it is only known to be below error + accuracy.
 """
 
+import functools
 import numbers
 from dataclasses import dataclass
 from typing import NamedTuple
@@ -300,7 +301,7 @@ def _orders(sigma):
     order 4, so that the D of ``edgeworth2_cc`` (from order 3 on) has two terms.
     """
     sigma = np.asarray(sigma)
-    return np.select([sigma >= 1e4, sigma >= 400], [4, 5], asymptotic.ORDER)
+    return np.where(sigma >= 1e4, 4, np.where(sigma >= 400, 5, asymptotic.ORDER))
 
 
 def _cdf_rows(n, p, lo, hi):
@@ -401,6 +402,14 @@ def _sample_position(c):
     return np.sign(c) * (inner * _CORE_STEP + (np.abs(c) - inner) * _TAIL_STEP)
 
 
+@functools.cache
+def _fractions(count):
+    """numpy.linspace(0, 1, count), made once per count (read only)."""
+    out = np.linspace(0.0, 1.0, count)
+    out.flags.writeable = False
+    return out
+
+
 def _nested_search(n, p, lo, hi, methods):
     """Extremes of D over [lo, hi] by the nested search described in the module notes."""
     mu = n * p
@@ -425,7 +434,7 @@ def _nested_search(n, p, lo, hi, methods):
             for whole, part in zip(out, got, strict=True):
                 whole[:, rows] = part
         return out
-    frac = np.linspace(0.0, 1.0, int(counts[0]))
+    frac = _fractions(int(counts[0]))
     c = c_lo[:, None] + frac[None, :] * (c_hi - c_lo)[:, None]
     t = _sample_position(c)
     coarse = np.round(mu[:, None] + sigma[:, None] * t).astype(np.int64)
@@ -516,7 +525,7 @@ def _refine(n, p, pidx, coarse, sd, sign, mrow, methods, gammas):
     upper = coarse[prow_idx, np.minimum(idx + 1, count - 1)]
     prow = p[prow_idx]
     mcand = mrow[row_idx]
-    steps = np.linspace(0.0, 1.0, _REFINE_POINTS)
+    steps = _fractions(_REFINE_POINTS)
 
     def signed_deviation(k, which):
         """s D at points k of the candidates ``which``: one row of k per candidate (2-D), or
