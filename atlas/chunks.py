@@ -26,14 +26,17 @@ __all__ = [
     "positive_int",
 ]
 
-# Target work per chunk, in the units of `cell_cost` (about 0.6 microseconds of one core each
-# for all seven methods): about a second a chunk, so that two workers finish within a second
-# of each other and a checkpoint loses little when a build is stopped.
+# Target work per chunk, in the units of `cell_cost` (0.13 to 0.68 microseconds of one core each
+# for all seven methods, see below): at most about a second a chunk, so that two workers finish
+# within a second of each other and a checkpoint loses little when a build is stopped.
 CHUNK_COST = 1_500_000
 # Cost model of `cell_cost`, fitted to timings of atlas.engine.evaluate with all seven methods
 # over the default p axis, n = 1 .. 10^8 (within a factor 2 everywhere): a fixed cost per call
 # of evaluate, a cost per p and per integer of the padded rectangle of narrow windows, and for
 # wide windows a cost per evaluation of the nested search, each _WIDE_WEIGHT narrow points.
+# Since the engine evaluates narrow windows in groups of similar width (issue 14) a unit costs
+# 0.13 to 0.68 microseconds (the dearest around n = 2000 to 5000, the cheapest at 10^8, measured
+# under load); the model only balances the chunks, and no value depends on it.
 _CALL_COST = 300
 _ROW_COST = 50
 _WIDE_WEIGHT = 2.4
