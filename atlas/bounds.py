@@ -150,8 +150,8 @@ def step_bound(method, n, p):
     method : str
     n : array_like of int
         n >= 1.
-    p : float
-        0 < p < 1.
+    p : float or array_like of float
+        0 < p < 1; an array is broadcast against ``n`` (one bound per cell).
 
     Returns
     -------
@@ -165,10 +165,12 @@ def step_bound(method, n, p):
     0.009516258
     """
     n = np.asarray(n, dtype=np.float64)
+    p = np.asarray(p, dtype=np.float64)  # a float, or an array broadcast against n
+    shape = np.broadcast_shapes(n.shape, p.shape)
     q = 1.0 - p
     if method == "poisson":
-        r = p if p <= 0.5 else q
-        return np.full(n.shape, r * -math.expm1(-r))
+        r = np.minimum(p, q)
+        return np.broadcast_to(r * -np.expm1(-r), shape).astype(np.float64)
     form = _hermite_terms(method, p)
     if form is None:
         return None
@@ -176,7 +178,7 @@ def step_bound(method, n, p):
     sigma = np.sqrt(n * p * q)
     sigma_next = np.sqrt((n + 1) * p * q)
     third = hermite_sup(3) / sigma**3  # sup |G'''| from Phi(z): sup|Phi^(3)| / sigma^3
-    mismatch = np.zeros(n.shape)
+    mismatch = np.zeros(shape)
     log_r = 0.5 * np.log1p(-1.0 / (n + 1))  # r = sigma_n / sigma_{n+1} = sqrt(n / (n + 1))
     for j, e, kappa in terms:
         third = third + abs(kappa) * hermite_sup(j + 3) / sigma ** (e + 3)
@@ -243,7 +245,9 @@ def extension_bound(method, n, p, metric):
 
     For the CDF-valued methods (Poisson, Camp-Paulson, Peizer-Pratt: monotone in k, between 0
     and 1) the extended values lie between D(-1) = -G(-1) <= 0 and D(n) = 1 - G(n) >= 0, so E = 0
-    for the interval error, and E = max(G(-1), 1 - G(n)) for the CDF metric.
+    for the interval error, and E = max(G(-1), 1 - G(n)) for the CDF metric. So do those of
+    ``normal`` and ``normal_cc``: G = Phi(z) with z increasing in k, also monotone and between 0
+    and 1.
 
     For the normal forms G = Phi(z) + sum_j c_j Phi^(j)(z), the extended values are computed at
     every integer with |z| < 12; beyond, |G| (below) and |1 - G| (above) are at most
@@ -252,7 +256,7 @@ def extension_bound(method, n, p, metric):
     """
     n = np.atleast_1d(np.asarray(n, dtype=np.int64))
     form = _hermite_terms(method, p)
-    if form is None:
+    if form is None or method in ("normal", "normal_cc"):  # monotone G in [0, 1]: the notes
         if metric == "interval":
             return np.zeros(n.shape)
         k = np.stack([np.full(n.shape, -1), n])

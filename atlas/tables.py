@@ -389,7 +389,7 @@ class RuleAudit:
                     row.method,
                     row.metric,
                     f"{row.cells:,}",
-                    _fmt_error(row.worst_error),
+                    _fmt_error(row.worst_error) + (" †" if _left_open(row) else ""),
                     "—" if row.worst_n is None else f"{row.worst_n:,}",
                     # a grid p such as 0.004987164074638706 would not fit the column
                     "—" if row.worst_p is None else format_p_brief(row.worst_p),
@@ -405,15 +405,23 @@ class RuleAudit:
                 "worst error: the largest error found over every integer n and p of the atlas's "
                 "ranges the rule admits: grid cells, the rule's boundary (the first admitted "
                 f"integers n) at {between.p_checked} p ({between.p_refined} refined between grid "
-                "p), and every larger admitted n at each grid p bounded by the one-step bound "
-                "where it certifies (the JSON says, per row, at how many grid p); p between those "
-                "checked are not computed. ≈: p rounded to 4 digits; the JSON holds it whole.",
+                "p), and every larger admitted n at each grid p bounded by the one-step bound, "
+                "with the engine in the gaps it does not certify, within a budget; p between "
+                "those checked are not computed. ≈: p rounded to 4 digits; the JSON holds it "
+                "whole.",
             ]
+            if any(_left_open(r) for r in self.rows):
+                first.append(
+                    "†: integers between grid n left unchecked at some p (no step bound is "
+                    "derived for the method, or the budget of engine evaluations spent): only the "
+                    "n evaluated there count; the JSON lists them per row."
+                )
         else:
-            first = []
+            first = [
+                "worst error: the largest error over the grid cells (n, p) the rule admits; "
+                "at n, at p: where it occurs (≈: p rounded to 4 digits; the JSON holds it whole).",
+            ]
         return first + [
-            "worst error: the largest error over the grid cells (n, p) the rule admits; "
-            "at n, at p: where it occurs (≈: p rounded to 4 digits; the JSON holds it whole).",
             "≤ tol: the share of the rule's grid cells whose error is within tol "
             f"(of {self.grid_cells:,} grid cells in all; shares count cells, so they follow the "
             "grid's density).",
@@ -450,7 +458,13 @@ class RuleAudit:
         return self.to_markdown() if fmt == "md" else self.to_json()
 
 
-def rule_audit(atlas, rules=None, *, methods=None, metrics=METRICS, tols=AUDIT_TOLS, between=False):
+def _left_open(row):
+    """Whether some integers between grid n are left unchecked for an audit row."""
+    w = row.checked
+    return w is not None and row.cells > 0 and (bool(w.open_gaps) or not w.bounded)
+
+
+def rule_audit(atlas, rules=None, *, methods=None, metrics=METRICS, tols=AUDIT_TOLS, between=True):
     """Audit rules of thumb against the atlas: the worst error each admits on the grid.
 
     Parameters
@@ -466,10 +480,10 @@ def rule_audit(atlas, rules=None, *, methods=None, metrics=METRICS, tols=AUDIT_T
     tols : sequence of float, optional
         Tolerances in (0, 1) for the shares; default (0.01, 0.005, 0.001).
     between : bool, optional
-        True: the worst error over every integer n and p of the atlas's ranges the rule
-        admits, checked as :func:`atlas.regions.rule_worst` says (``AuditRow.checked``; about
-        40 s on the default atlas); False (default for now): over the grid cells only.
-        The shares count grid cells either way.
+        True (default): the worst error over every integer n and p of the atlas's ranges the
+        rule admits, checked as :func:`atlas.regions.rule_worst` says (``AuditRow.checked``
+        says what was computed and which gaps, if any, are left unchecked); False: over the
+        grid cells only. The shares count grid cells either way.
 
     Returns
     -------
