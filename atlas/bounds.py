@@ -56,7 +56,8 @@ from scipy import special
 
 from atlas.approximations import approximate_cdf
 
-__all__ = ["BERRY_ESSEEN", "NUMERIC_SIGMA", "extension_bound", "hermite_form", "hermite_sup",
+__all__ = ["BERRY_ESSEEN", "NUMERIC_SIGMA", "extension_bound", "extension_cap", "hermite_form",
+           "hermite_sup",
            "numeric_steps", "step_bound", "tail_bound"]  # fmt: skip
 
 BERRY_ESSEEN = 0.4748  # Shevtsova (2011), identically distributed summands
@@ -330,3 +331,36 @@ def numeric_steps(method, ns, p):
         g_above = np.abs(1.0 - approximate_cdf(above, m, p, method)).max(axis=0)
         tails += np.where(lo > -1, g_below, 0.0) + np.where(hi < ns + 1, g_above, 0.0)
     return r.max(axis=1) + 2.0 * tails + 1e-15
+
+
+def extension_cap(method, n, p, metric):
+    """A cheap upper bound on :func:`extension_bound` at cells (n, p) given as arrays.
+
+    Returns None for the methods whose extension bound is already cheap (the monotone ones).
+
+    Notes
+    -----
+    For the Edgeworth forms, with z_lo = z(-1) < 0 and z_hi = z(n) > 0, every k <= -1 has
+    |z(k)| >= |z_lo| and every k >= n has z(k) >= z_hi, so
+    |G(k)| <= b_lo = Phi(z_lo) + sum |c_j| sup_{|t| >= |z_lo|} |Phi^(j)(t)| below and
+    |1 - G(k)| <= b_hi = Phi(-z_hi) + sum |c_j| sup_{|t| >= z_hi} |Phi^(j)(t)| above. With
+    b = max(b_lo, b_hi), every extended value, D(-1) and D(n) lie in [-b, b], so the
+    oscillation rises by at most 4 b (E = 2 b, interval) and |D| outside [0, n] is at most b
+    (E = b, cdf).
+    """
+    if method not in ("edgeworth_cc", "edgeworth2_cc"):
+        return None
+    n = np.asarray(n, dtype=np.float64)
+    p = np.asarray(p, dtype=np.float64)
+    s, terms = _hermite_terms(method, p)
+    sigma = np.sqrt(n * p * (1.0 - p))
+    z_lo = (-1.0 + s - n * p) / sigma
+    z_hi = (n + s - n * p) / sigma
+    b_lo = special.ndtr(z_lo)
+    b_hi = special.ndtr(-z_hi)
+    for j, e, kappa in terms:
+        scale = np.abs(kappa) * sigma**-e
+        b_lo = b_lo + scale * _tail_sup(j, np.abs(z_lo))
+        b_hi = b_hi + scale * _tail_sup(j, np.maximum(z_hi, 0.0))
+    b = np.maximum(b_lo, b_hi)
+    return 2.0 * b if metric == "interval" else b

@@ -767,9 +767,10 @@ class Atlas:
         answer = self._cache.get(key)  # answers are kept: tables, sheets and wiki ask again
         if answer is None:
             n_axis, _ = self._axes()
-            values = self._columns(0, n_axis.size, np.array([p_value]), method, metric)[:, 0]
-            answer = minimum_n(n_axis, values, p_value, tol_value, method=method, metric=metric,
-                               runs=runs)  # fmt: skip
+            values, accuracy = self._columns(0, n_axis.size, np.array([p_value]), method, metric,
+                                             accuracy=True)  # fmt: skip
+            answer = minimum_n(n_axis, values[:, 0], p_value, tol_value, method=method,
+                               metric=metric, runs=runs, accuracy=accuracy[:, 0])  # fmt: skip
             self._cache[key] = answer
         return answer
 
@@ -827,7 +828,7 @@ class Atlas:
         n_axis, _ = self._axes()
 
         def column(ps):
-            return self._columns(0, n_axis.size, ps, method, metric)
+            return self._columns(0, n_axis.size, ps, method, metric, accuracy=True)
 
         return minimum_n_over(n_axis, chosen, column, float(p_lo), float(p_hi), tol_value,
                               method=method, metric=metric)  # fmt: skip

@@ -54,9 +54,11 @@ accuracy <= tol (conservative, as verdicts are) at every point checked:
    the width's square), 10 per cent at a grid step, 5 at half of it, 1.25 at an eighth.
 3. *In n, between n_i and n_{i+1}.* At every p point checked in 2, the one-step bound from
    n_i certifies the integers of the n-range; where it does not, the range is bisected in up
-   to ``N_ROUNDS`` rounds (the engine at the midpoints, for all such p of the row at once). A
-   cell still not certified is counted unsafe (said in the answer). For methods without a
-   step bound the n-range of a cell is checked at n_i only (counted and said).
+   to ``N_ROUNDS`` rounds (the engine at the midpoints, for all such p of the row at once),
+   if a piece 2^-``N_ROUNDS`` as long could be certified and fewer than ``N_BUDGET`` points
+   have been computed so. A cell still not certified is counted unsafe (said in the answer).
+   For methods without a step bound the n-range of a cell is checked at n_i only (counted and
+   said).
 """
 
 import math
@@ -64,13 +66,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from atlas.bounds import extension_bound, step_bound, tail_bound
+from atlas.bounds import extension_bound, extension_cap, step_bound, tail_bound
 from atlas.engine import evaluate
 
-__all__ = ["CELL_NEAR", "CELL_ROUNDS", "CELL_SPREAD", "GAP_BUDGET", "NEIGHBOURS", "N_ROUNDS",
-           "REFINE_PER_ROUND", "REFINE_ROUNDS", "REFINE_SPREAD", "ROW_BUDGET", "RuleWorst",
-           "admitted_runs", "cell_edges", "gap_certified", "has_step_bound", "region_words",
-           "rule_worst", "safe_cells"]  # fmt: skip
+__all__ = ["CELL_NEAR", "CELL_ROUNDS", "CELL_SPREAD", "GAP_BUDGET", "NEIGHBOURS", "N_BUDGET",
+           "N_ROUNDS", "REFINE_PER_ROUND", "REFINE_ROUNDS", "REFINE_SPREAD", "ROW_BUDGET",
+           "RuleWorst", "admitted_runs", "cell_edges", "gap_certified", "has_step_bound",
+           "region_words", "rule_worst", "safe_cells"]  # fmt: skip
 
 NEIGHBOURS = 2  # admitted integers after the first one evaluated at each p checked
 REFINE_ROUNDS = 5
@@ -82,6 +84,7 @@ CELL_ROUNDS = 2  # a piece near tol is cut into 2^CELL_ROUNDS
 CELL_SPREAD = 0.1
 CELL_NEAR = 0.05  # a piece whose larger end is above tol / (1 + CELL_NEAR) is cut
 N_ROUNDS = 6  # rounds of bisection of a cell's n-range (up to 63 points per p)
+N_BUDGET = 5_000  # engine points between grid n per safe_cells call; then cells count unsafe
 _SLACK = 1e-12  # rounding of the bounds and of the engine's values
 _FLOAT32 = 2.0**-23  # a float32 value is within this share of itself from the float64 one
 _EXTENSIONS = {}  # (method, metric, p, n) -> E_n, kept across calls (grid n recur)
@@ -162,13 +165,20 @@ def gap_certified(method, metric, a, count, p, upper, level):
     grow = (2.0 if metric == "interval" else 1.0) * count * rho
     # The extension term E_a is non-negative: without it the bound is already a lower one.
     trial = ~ok & (upper + grow + _SLACK <= level)
-    if trial.any():
-        ext = _extensions(method, metric, a[trial], p[trial])
+    for exact in (False, True):  # a cheap cap on E_a first, E_a itself where it fails
+        if not trial.any():
+            break
+        ext = extension_cap(method, a[trial], p[trial], metric) if not exact else None
+        if ext is None:
+            ext, exact = _extensions(method, metric, a[trial], p[trial]), True
         if metric == "interval":
             bound = upper[trial] + 2.0 * ext + grow[trial]
         else:
             bound = np.maximum(upper[trial], ext) + grow[trial]
         ok[trial] = bound + _SLACK <= level[trial]
+        trial &= ~ok
+        if exact:
+            break
     return ok
 
 
@@ -662,7 +672,19 @@ def _between_n(row, n, stop, points, tol, method, metric, stats):
     if not has_step_bound(method):
         stats["n_open"] += int(np.unique(cells).size)
         return
-    ok = gap_certified(method, metric, n, stop - n - 1, ps, ups, tol)
+    count = stop - n - 1
+    ok = gap_certified(method, metric, n, count, ps, ups, tol)
+    # Bisection only where N_ROUNDS of it could succeed (pieces 2^-N_ROUNDS as long) and the
+    # budget of the call allows; the other cells are counted unsafe.
+    hopeful = gap_certified(method, metric, n, -(-count // 2**N_ROUNDS), ps, ups, tol)
+    give_up = ~ok & ~hopeful
+    if stats["n_evaluated"] >= N_BUDGET:
+        give_up = ~ok
+    for j in set(cells[give_up].tolist()):
+        if row[j]:
+            row[j] = False
+            stats["n_uncertified"] += 1
+    ok |= give_up
     # Pending pieces: (cell, p, lo, error + accuracy at lo, hi): the integers between lo and hi.
     bad = ~ok
     triples = zip(cells[bad].tolist(), ps[bad].tolist(), ups[bad].tolist(), strict=True)
@@ -721,7 +743,8 @@ def region_words(stats, method):
         )
         if stats["n_uncertified"]:
             checked += (f"; {stats['n_uncertified']:,} cells counted unsafe (not certified "
-                        f"between grid n within {N_ROUNDS} rounds of bisection)")  # fmt: skip
+                        f"between grid n within {N_ROUNDS} rounds of bisection, or the budget "
+                        f"of {N_BUDGET:,} engine points spent)")  # fmt: skip
     else:
         checked += (f"integers between grid n not checked for {method} (no step bound is "
                     f"derived for it): {stats['n_open']:,} safe cells hold at their grid n "
