@@ -123,6 +123,7 @@ class ThresholdTable:
     provenance: str
     partial: tuple = ()  # (i, j) of entries not covered at every integer (see notes)
     bounded: tuple = ()  # (i, j) of entries covered only up to the atlas's end
+    unresolved: tuple = ()  # (i, j) of entries decided within the accuracy of the exact side
 
     def title(self):
         return f"Minimum n for {self.method}, {self.metric} error"
@@ -132,6 +133,8 @@ class ThresholdTable:
         ``"to_atlas_end"`` or ``"not_reached"`` (see :meth:`basis_meanings`)."""
         if value is None:
             return "not_reached"
+        if where in self.unresolved:
+            return "below_resolution"
         if where in self.partial:
             return "evaluated_only"
         return "to_atlas_end" if where in self.bounded else "exact"
@@ -146,6 +149,9 @@ class ThresholdTable:
             "there only the n evaluated are checked",
             "to_atlas_end": f"every integer n from the entry to {self.n_max}, the atlas's end, "
             "is within the tolerance; no bound is established beyond it",
+            "below_resolution": "the error at N - 1 exceeds the tolerance only by less than "
+            "its accuracy (the resolution of the exact side): counted as failing, so N is "
+            "conservative and the true minimum may be smaller",
             "not_reached": f"not reached: the error exceeds the tolerance at the atlas's end, "
             f"n = {self.n_max}",
         }
@@ -154,6 +160,8 @@ class ThresholdTable:
         if value is None:
             return f"> {_compact_n(self.n_max)}"
         mark = " ‡" if where in self.partial else (" §" if where in self.bounded else "")
+        if where in self.unresolved:
+            mark += " ¶"
         return f"{value:,}{mark}"
 
     def notes(self):
@@ -173,6 +181,10 @@ class ThresholdTable:
         if self.bounded:
             notes.append(f"§: covered up to n = {self.n_max:,}, the atlas's end; no bound "
                          "is established beyond it.")  # fmt: skip
+        if self.unresolved:
+            notes.append("¶: below the resolution of the exact side: the error at N - 1 "
+                         "exceeds the tolerance only by less than its accuracy; N is "
+                         "conservative.")  # fmt: skip
         return notes
 
     def to_rows(self):
@@ -296,6 +308,7 @@ def threshold_table(atlas, tols=TABLE_TOLS, ps=TABLE_PS, *, method="normal_cc",
         provenance=provenance_line(atlas),
         partial=tuple((i, j) for i, j, a in cells if not a.exact),
         bounded=tuple((i, j) for i, j, a in cells if a.exact and a.upto is not None),
+        unresolved=tuple((i, j) for i, j, a in cells if not a.resolved),
     )
 
 

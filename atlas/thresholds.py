@@ -255,6 +255,15 @@ class Threshold:
     beyond: object
     grid_end: int
     at_most: bool = False
+    failing_accuracy: float = 0.0
+
+    @property
+    def resolved(self):
+        """False when the error at N - 1 exceeds tol by less than its accuracy: N - 1 is counted
+        as failing on the accuracy (conservative), and the true minimum may be smaller."""
+        if self.failing is None:
+            return True
+        return bool(self.failing[1] - self.failing_accuracy > self.tol)
 
     def basis(self):
         """What the answer rests on, in words."""
@@ -279,6 +288,10 @@ class Threshold:
                 f"between n = {first:,} and {last:,}, where only the n evaluated are checked "
                 "(no step bound for this method there, or too many evaluations needed)"
             )
+        if not self.resolved:
+            text += (f"; n = {self.n - 1:,} exceeds the tolerance only by less than the "
+                     "accuracy of its error (below the resolution of the exact side): counted "
+                     "as failing, so the answer is conservative")  # fmt: skip
         if self.beyond:
             text += f"; {self.beyond}"
         elif self.upto is not None:
@@ -401,6 +414,7 @@ def minimum_n(grid_n, values, p, tol, *, method, metric, runs=False, floor=None,
         upto=upto, exact=not question.uncovered, failing=failing, runs=stretches,
         uncovered=tuple(question.uncovered), grid_values=int(grid_n.size),
         evaluated=question.evaluated, beyond=beyond, grid_end=grid_end, at_most=at_most,
+        failing_accuracy=0.0 if failing is None else question.accuracy.get(failing[0], 0.0),
     )  # fmt: skip
 
 

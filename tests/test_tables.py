@@ -66,9 +66,12 @@ def test_table_formats(chart_atlas):
     # "> 100000" (not reached on a grid ending at 10^5), basis says on what it rests.
     rows = list(csv.reader(io.StringIO(table.to_csv())))
     assert rows[0] == ["p", "tol", "min_n", "basis"]
+
     def code(v, where):
         if v is None:
             return "not_reached"
+        if where in table.unresolved:
+            return "below_resolution"
         if where in table.partial:
             return "evaluated_only"
         return "to_atlas_end" if where in table.bounded else "exact"
@@ -91,7 +94,7 @@ def test_table_formats(chart_atlas):
         [code(v, (i, j)) for j, v in enumerate(row)] for i, row in enumerate(table.min_n)
     ]
     assert set(record["basis_meanings"]) == {"exact", "evaluated_only", "to_atlas_end",
-                                             "not_reached"}  # fmt: skip
+                                             "below_resolution", "not_reached"}  # fmt: skip
     assert "every integer n from the entry on" in record["basis_meanings"]["exact"]
     assert "100000" in record["basis_meanings"]["not_reached"]
     for row, marks in zip(record["min_n"], record["basis"], strict=True):
@@ -206,9 +209,9 @@ def test_audit_formats(chart_atlas):
     assert ("| rule | method | metric | cells | worst error | at n | at p | ≤ 0.01 | ≤ 0.005 | "
             "≤ 0.001 |") in markdown  # fmt: skip
     for row in audit.rows:
-        assert f"| {row.name} | normal_cc | interval | {row.cells:,} | {row.worst_error:.3g} |" in (
-            markdown
-        )
+        open_mark = " †" if tables._left_open(row) else ""  # integers left unchecked: marked
+        assert (f"| {row.name} | normal_cc | interval | {row.cells:,} | "
+                f"{row.worst_error:.3g}{open_mark} |") in markdown  # fmt: skip
     record = json.loads(audit.render("json"))
     assert [r["rule"] for r in record["rows"]] == list(CLASSIC_RULES)
     assert record["rows"][2]["name"] == "npq > 9"
