@@ -32,7 +32,10 @@ non-increasing in n, so rho_n bounds every later step too. For ``poisson``, R_n(
 difference of the laws of Y_n + B and Y_n + Z, Z ~ Poisson(p), so
 |R_n| <= d_TV(Bernoulli(p), Poisson(p)) = p (1 - e^-p) (q for p > 1/2, where the method counts
 failures). Where sigma is small, :func:`numeric_steps` computes max_k |R_n(k)| directly at every
-integer k; it is the only step bound for ``camp_paulson`` and ``peizer_pratt``.
+integer k; it is the only step bound for ``camp_paulson`` and ``peizer_pratt``. No closed-form
+bound is derived for those two (their G is not of the Hermite form above): where sigma > 3 the
+answers that rely on a step bound (:mod:`atlas.thresholds`, :mod:`atlas.regions`) check them
+at the n evaluated only, and say so.
 
 Large n (:func:`tail_bound`), non-increasing in n. For the normal forms, Berry-Esseen with
 Shevtsova's constant, sup_x |F(x) - Phi((x - np)/sigma)| <= 0.4748 (p^2 + q^2) / sigma, plus
