@@ -277,6 +277,22 @@ def test_cli_errors(chart_atlas, capsys, tmp_path, monkeypatch, args, message):
     assert os.listdir(tmp_path) == []
 
 
+def test_cli_rules_grid_only(chart_atlas, capsys):
+    assert main(["rules", "--atlas", str(chart_atlas.path), "--method", "normal_cc",
+                 "--metric", "interval", "--format", "json", "--grid-only"]) == 0  # fmt: skip
+    record = json.loads(capsys.readouterr().out)
+    assert all("checked" not in r for r in record["rows"])  # the grid cells only
+    expected = tables.rule_audit(chart_atlas, methods=["normal_cc"], metrics=["interval"],
+                                 between=False)  # fmt: skip
+    assert record == json.loads(expected.to_json())
+    assert main(["rules", "--atlas", str(chart_atlas.path), "--method", "normal_cc",
+                 "--metric", "interval", "--format", "json"]) == 0  # fmt: skip
+    default = json.loads(capsys.readouterr().out)
+    assert all("checked" in r for r in default["rows"])  # off the grid by default
+    assert all(d["worst_error"] >= g["worst_error"]
+               for d, g in zip(default["rows"], record["rows"], strict=True))  # fmt: skip
+
+
 def test_cli_rules(chart_atlas, capsys):
     assert main(["rules", "--atlas", str(chart_atlas.path), "--rule", "n*p*q >= 25",
                  "--method", "normal_cc", "--metric", "cdf", "--format", "json",
