@@ -55,7 +55,8 @@ accuracy <= tol (conservative, as verdicts are) at every point checked:
 3. *In n, between n_i and n_{i+1}.* At every p point checked in 2, the one-step bound from
    n_i certifies the integers of the n-range; where it does not, the range is bisected in up
    to ``N_ROUNDS`` rounds (the engine at the midpoints, for all such p of the row at once),
-   if a piece 2^-``N_ROUNDS`` as long could be certified and fewer than ``N_BUDGET`` points
+   if a piece 2^-``N_ROUNDS`` as long could be certified (or the range is short enough for the
+   rounds to reach every integer) and fewer than ``N_BUDGET`` points
    have been computed so. A cell still not certified is counted unsafe (said in the answer).
    For methods without a step bound the n-range of a cell is checked at n_i only (counted and
    said).
@@ -677,6 +678,7 @@ def _between_n(row, n, stop, points, tol, method, metric, stats):
     # Bisection only where N_ROUNDS of it could succeed (pieces 2^-N_ROUNDS as long) and the
     # budget of the call allows; the other cells are counted unsafe.
     hopeful = gap_certified(method, metric, n, -(-count // 2**N_ROUNDS), ps, ups, tol)
+    hopeful |= count < 2**N_ROUNDS  # bisection then reaches every integer of the range
     give_up = ~ok & ~hopeful
     if stats["n_evaluated"] >= N_BUDGET:
         give_up = ~ok
