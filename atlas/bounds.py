@@ -32,7 +32,10 @@ non-increasing in n, so rho_n bounds every later step too. For ``poisson``, R_n(
 difference of the laws of Y_n + B and Y_n + Z, Z ~ Poisson(p), so
 |R_n| <= d_TV(Bernoulli(p), Poisson(p)) = p (1 - e^-p) (q for p > 1/2, where the method counts
 failures). Where sigma is small, :func:`numeric_steps` computes max_k |R_n(k)| directly at every
-integer k; it is the only step bound for ``camp_paulson`` and ``peizer_pratt``.
+integer k; it is the only step bound for ``camp_paulson`` and ``peizer_pratt``. No closed-form
+bound is derived for those two (their G is not of the Hermite form above): where sigma > 3 the
+answers that rely on a step bound (:mod:`atlas.thresholds`, :mod:`atlas.regions`) check them
+at the n evaluated only, and say so.
 
 Large n (:func:`tail_bound`), non-increasing in n. For the normal forms, Berry-Esseen with
 Shevtsova's constant, sup_x |F(x) - Phi((x - np)/sigma)| <= 0.4748 (p^2 + q^2) / sigma, plus
@@ -56,7 +59,8 @@ from scipy import special
 
 from atlas.approximations import approximate_cdf
 
-__all__ = ["BERRY_ESSEEN", "NUMERIC_SIGMA", "extension_bound", "hermite_form", "hermite_sup",
+__all__ = ["BERRY_ESSEEN", "NUMERIC_SIGMA", "extension_bound", "extension_cap", "hermite_form",
+           "hermite_sup",
            "numeric_steps", "step_bound", "tail_bound"]  # fmt: skip
 
 BERRY_ESSEEN = 0.4748  # Shevtsova (2011), identically distributed summands
@@ -150,8 +154,8 @@ def step_bound(method, n, p):
     method : str
     n : array_like of int
         n >= 1.
-    p : float
-        0 < p < 1.
+    p : float or array_like of float
+        0 < p < 1; an array is broadcast against ``n`` (one bound per cell).
 
     Returns
     -------
@@ -165,10 +169,12 @@ def step_bound(method, n, p):
     0.009516258
     """
     n = np.asarray(n, dtype=np.float64)
+    p = np.asarray(p, dtype=np.float64)  # a float, or an array broadcast against n
+    shape = np.broadcast_shapes(n.shape, p.shape)
     q = 1.0 - p
     if method == "poisson":
-        r = p if p <= 0.5 else q
-        return np.full(n.shape, r * -math.expm1(-r))
+        r = np.minimum(p, q)
+        return np.broadcast_to(r * -np.expm1(-r), shape).astype(np.float64)
     form = _hermite_terms(method, p)
     if form is None:
         return None
@@ -176,7 +182,7 @@ def step_bound(method, n, p):
     sigma = np.sqrt(n * p * q)
     sigma_next = np.sqrt((n + 1) * p * q)
     third = hermite_sup(3) / sigma**3  # sup |G'''| from Phi(z): sup|Phi^(3)| / sigma^3
-    mismatch = np.zeros(n.shape)
+    mismatch = np.zeros(shape)
     log_r = 0.5 * np.log1p(-1.0 / (n + 1))  # r = sigma_n / sigma_{n+1} = sqrt(n / (n + 1))
     for j, e, kappa in terms:
         third = third + abs(kappa) * hermite_sup(j + 3) / sigma ** (e + 3)
@@ -243,7 +249,9 @@ def extension_bound(method, n, p, metric):
 
     For the CDF-valued methods (Poisson, Camp-Paulson, Peizer-Pratt: monotone in k, between 0
     and 1) the extended values lie between D(-1) = -G(-1) <= 0 and D(n) = 1 - G(n) >= 0, so E = 0
-    for the interval error, and E = max(G(-1), 1 - G(n)) for the CDF metric.
+    for the interval error, and E = max(G(-1), 1 - G(n)) for the CDF metric. So do those of
+    ``normal`` and ``normal_cc``: G = Phi(z) with z increasing in k, also monotone and between 0
+    and 1.
 
     For the normal forms G = Phi(z) + sum_j c_j Phi^(j)(z), the extended values are computed at
     every integer with |z| < 12; beyond, |G| (below) and |1 - G| (above) are at most
@@ -252,7 +260,7 @@ def extension_bound(method, n, p, metric):
     """
     n = np.atleast_1d(np.asarray(n, dtype=np.int64))
     form = _hermite_terms(method, p)
-    if form is None:
+    if form is None or method in ("normal", "normal_cc"):  # monotone G in [0, 1]: the notes
         if metric == "interval":
             return np.zeros(n.shape)
         k = np.stack([np.full(n.shape, -1), n])
@@ -326,3 +334,36 @@ def numeric_steps(method, ns, p):
         g_above = np.abs(1.0 - approximate_cdf(above, m, p, method)).max(axis=0)
         tails += np.where(lo > -1, g_below, 0.0) + np.where(hi < ns + 1, g_above, 0.0)
     return r.max(axis=1) + 2.0 * tails + 1e-15
+
+
+def extension_cap(method, n, p, metric):
+    """A cheap upper bound on :func:`extension_bound` at cells (n, p) given as arrays.
+
+    Returns None for the methods whose extension bound is already cheap (the monotone ones).
+
+    Notes
+    -----
+    For the Edgeworth forms, with z_lo = z(-1) < 0 and z_hi = z(n) > 0, every k <= -1 has
+    |z(k)| >= |z_lo| and every k >= n has z(k) >= z_hi, so
+    |G(k)| <= b_lo = Phi(z_lo) + sum |c_j| sup_{|t| >= |z_lo|} |Phi^(j)(t)| below and
+    |1 - G(k)| <= b_hi = Phi(-z_hi) + sum |c_j| sup_{|t| >= z_hi} |Phi^(j)(t)| above. With
+    b = max(b_lo, b_hi), every extended value, D(-1) and D(n) lie in [-b, b], so the
+    oscillation rises by at most 4 b (E = 2 b, interval) and |D| outside [0, n] is at most b
+    (E = b, cdf).
+    """
+    if method not in ("edgeworth_cc", "edgeworth2_cc"):
+        return None
+    n = np.asarray(n, dtype=np.float64)
+    p = np.asarray(p, dtype=np.float64)
+    s, terms = _hermite_terms(method, p)
+    sigma = np.sqrt(n * p * (1.0 - p))
+    z_lo = (-1.0 + s - n * p) / sigma
+    z_hi = (n + s - n * p) / sigma
+    b_lo = special.ndtr(z_lo)
+    b_hi = special.ndtr(-z_hi)
+    for j, e, kappa in terms:
+        scale = np.abs(kappa) * sigma**-e
+        b_lo = b_lo + scale * _tail_sup(j, np.abs(z_lo))
+        b_hi = b_hi + scale * _tail_sup(j, np.maximum(z_hi, 0.0))
+    b = np.maximum(b_lo, b_hi)
+    return 2.0 * b if metric == "interval" else b

@@ -33,7 +33,7 @@ import math
 import numpy as np
 
 from atlas import cube, figures
-from atlas.engine import check_metric
+from atlas.engine import RESOLUTION_FACTOR, check_metric
 from atlas.figures import METHOD_LABELS, METRIC_FORMULAS, METRIC_LABELS
 
 LEVELS = (1e-2, 5e-3, 1e-3, 1e-4)
@@ -42,7 +42,7 @@ KINDS = ("map", "compare", "gain", "best")
 N_PER_DECADE = 120  # pooled n columns per decade of n
 ERROR_CMAP = "viridis"  # perceptually uniform, readable with colour-vision deficiency, in grey
 GAIN_CMAP = "PuOr"  # diverging, colour-blind safe (ColorBrewer)
-RESOLUTION = 1e-12  # the exact side's accuracy (REFERENCES.md): smaller errors are not told apart
+RESOLUTION = 1e-12  # the least resolution of the exact side: smaller errors are not told apart
 #: log10 of the errors the colour scale spans, the same on every map: 10^-9 to 10^0. Smaller
 #: errors take the colour of the scale's pointed lower end.
 FILL_RANGE = (-9.0, 0.0)
@@ -130,6 +130,19 @@ def pool_n(n, values, *, per_decade=N_PER_DECADE):
 def _pooled(ds, method, metric):
     n_start, pooled = pool_n(ds["n"].values, figures.errors_on_grid(ds, method, metric))
     return n_start, np.asarray(ds["p"].values, dtype=np.float64), pooled
+
+
+def _pooled_floor(ds, method, metric):
+    """The resolution of the exact side at each drawn cell: ``RESOLUTION_FACTOR`` times the
+    largest accuracy of the bin's values (the cube's interval_accuracy / cdf_accuracy), at least
+    ``RESOLUTION``. An error at or below it is not a precise number (:func:`atlas.is_resolved`)."""
+    name = f"{metric}_accuracy"
+    if name not in ds:
+        return RESOLUTION
+    index = [str(m) for m in ds["approximation"].values].index(method)
+    accuracy = np.asarray(ds[name].isel(approximation=index).values, dtype=np.float64)
+    _, pooled = pool_n(ds["n"].values, accuracy)
+    return np.maximum(RESOLUTION, RESOLUTION_FACTOR * pooled)
 
 
 def _titles(fig, title, subtitle):
@@ -303,14 +316,21 @@ def _line_set(ax, n, p, z, log_levels, *, gid, mark_islands, **style):
     return lines, segments, spots
 
 
-def _draw_error_panel(ax, n, p, values, *, levels, p_scale, cmap=ERROR_CMAP):
+def _draw_error_panel(ax, n, p, values, *, levels, p_scale, cmap=ERROR_CMAP, floor=None):
     """Filled log10 bands on the fixed scale, the tolerance contours and the rules; the labels
-    are placed by :func:`_finish` once the figure's layout is known."""
+    are placed by :func:`_finish` once the figure's layout is known. Cells at or below
+    ``floor`` (the resolution of the exact side) are hatched (gid ``"below-resolution"``)."""
     z = _log_error(values)  # (len(n), len(p))
     shown = np.minimum(z, FILL_RANGE[1])  # errors above 1 (none in practice) take the top band
     filled = ax.contourf(n, p, shown.T, levels=fill_levels(), cmap=cmap, extend="min")
     filled.set_rasterized(True)  # a vector file keeps its text and lines, the fill as an image
     filled.set_gid("error-fill")
+    if floor is not None:
+        below = np.asarray(values <= floor, dtype=np.float64)
+        if below.any():
+            hatch = ax.contourf(n, p, below.T, levels=[0.5, 1.5], colors="none",
+                                hatches=["////"])  # fmt: skip
+            hatch.set_gid("below-resolution")
     log_levels = np.log10(np.asarray(levels))
     lines, segments, spots = _line_set(ax, n, p, z, log_levels, gid="tolerance-contours",
                                    mark_islands=True, colors="black", linewidths=1.6,
@@ -465,15 +485,21 @@ def error_map(atlas, *, method, metric="interval", levels=LEVELS, p_scale="logit
     levels = _check_levels(levels)
     figures.check_choice(p_scale, "p_scale", P_SCALES)
     n, p, values = _pooled(ds, method, metric)
+    floor = _pooled_floor(ds, method, metric)
     fig = _figure(width, height, top=0.895, bottom=0.095)
     ax = fig.add_subplot()
     filled, lines, handles, panel = _draw_error_panel(ax, n, p, values, levels=levels,
-                                                      p_scale=p_scale)  # fmt: skip
+                                                      p_scale=p_scale, floor=floor)  # fmt: skip
     _rules_legend_above(ax, handles)
     _error_colorbar(fig, filled, lines, ax, metric)
     _titles(fig, f"Worst-case error of {METRIC_LABELS[metric]}: {method}",
             _subtitle(method, metric))  # fmt: skip
-    figures.footer(fig, ds, _map_note())
+    note = _map_note()
+    if bool(np.any(values <= floor)):
+        note += (" Hatched: below the resolution of the exact side (the error is at most "
+                 f"{RESOLUTION_FACTOR:g} times its accuracy): its colour is a bound, not a "
+                 "value.")  # fmt: skip
+    figures.footer(fig, ds, note)
     _finish(fig, [panel])
     return fig
 
@@ -602,8 +628,9 @@ def gain_map(atlas, *, method, method2="normal_cc", metric="interval", p_scale="
     -----
     With (A, B) = ``gain_order(method, method2)`` and E the worst-case error of a method over a
     pooled n bin, the colour is log10(E_A / E_B): B is better by E_A / E_B times where it is
-    positive, A by E_B / E_A where it is negative. Errors below ``RESOLUTION`` = 1e-12, the
-    accuracy of the exact side, count as 1e-12.
+    positive, A by E_B / E_A where it is negative. An error below the resolution of the exact
+    side (``RESOLUTION_FACTOR`` = 3 times its accuracy, at least ``RESOLUTION`` = 1e-12)
+    counts as that resolution.
     """
     mpl = figures.mpl()
     ds = figures.as_dataset(atlas)
@@ -615,8 +642,9 @@ def gain_map(atlas, *, method, method2="normal_cc", metric="interval", p_scale="
     first, second = gain_order(method, method2)
     n, p, e_first = _pooled(ds, first, metric)
     _, _, e_second = _pooled(ds, second, metric)
+    f_first, f_second = _pooled_floor(ds, first, metric), _pooled_floor(ds, second, metric)
     with np.errstate(invalid="ignore"):
-        ratio = np.log10(np.maximum(e_first, RESOLUTION) / np.maximum(e_second, RESOLUTION))
+        ratio = np.log10(np.maximum(e_first, f_first) / np.maximum(e_second, f_second))
     fill = gain_levels()
     fig = _figure(width, height, top=0.895, bottom=0.095)
     ax = fig.add_subplot()
@@ -648,9 +676,10 @@ def gain_map(atlas, *, method, method2="normal_cc", metric="interval", p_scale="
             "the number: how many times smaller the better method's error is")  # fmt: skip
     figures.footer(fig, ds, "Broken lines: rules of thumb (np, nq = 5 dashed; np, nq = 10 "
                    "dash-dot; npq = 9 dotted). Each drawn column compares the largest errors of "
-                   f"the grid n it stands for (bins of 1/{N_PER_DECADE} decade); errors below "
-                   f"{RESOLUTION:g} count as {RESOLUTION:g}. Specks of line work under a few "
-                   "grid cells are left to the colour.")  # fmt: skip
+                   f"the grid n it stands for (bins of 1/{N_PER_DECADE} decade); an error below "
+                   f"the resolution of the exact side ({RESOLUTION_FACTOR:g} times its "
+                   f"accuracy, at least {RESOLUTION:g}) counts as that. Specks of line work "
+                   "under a few grid cells are left to the colour.")  # fmt: skip
     texts = [gain_text(v, first, second) for v in marks]
     _finish(fig, [{"ax": ax, "p": p, "rules": curves,
                    "lines": list(zip(marks, segments, texts, strict=True))}])  # fmt: skip
@@ -717,8 +746,9 @@ def best_method_map(atlas, *, metric="interval", methods=None, p_scale="logit", 
     Notes
     -----
     Each cell (a pooled n bin) goes to the method whose largest error over the bin is smallest;
-    an exact tie goes to the method listed first. Where two or more methods err by less than
-    ``RESOLUTION`` = 1e-12, the accuracy of the exact side, the cell is a tie (grey).
+    an exact tie goes to the method listed first. Where two or more methods' errors are below
+    the resolution of the exact side (at most ``RESOLUTION_FACTOR`` = 3 times their accuracy,
+    at least ``RESOLUTION`` = 1e-12), the cell is a tie (grey).
     """
     mpl = figures.mpl()
     ds = figures.as_dataset(atlas)
@@ -729,13 +759,14 @@ def best_method_map(atlas, *, metric="interval", methods=None, p_scale="logit", 
         raise ValueError("`methods` must name at least one method; got an empty sequence.")
     for m in methods:
         figures.check_atlas_method(ds, m, "methods")
-    stack = []
+    stack, floors = [], []
     for m in methods:
         n, p, values = _pooled(ds, m, metric)
         stack.append(np.where(np.isfinite(values), values, np.inf))
+        floors.append(np.broadcast_to(_pooled_floor(ds, m, metric), values.shape))
     stack = np.stack(stack)
     winner = np.argmin(stack, axis=0).T  # the first index wins an exact tie
-    tie = ((stack <= RESOLUTION).sum(axis=0) >= 2).T
+    tie = ((stack <= np.stack(floors)).sum(axis=0) >= 2).T
     winner[tie] = len(methods)
     colours = method_colours(methods)
     cmap = mpl.colors.ListedColormap([colours[m] for m in methods] + [TIE_COLOUR])
@@ -759,7 +790,7 @@ def best_method_map(atlas, *, metric="interval", methods=None, p_scale="logit", 
                 facecolor=TIE_COLOUR,
                 edgecolor="black",
                 linewidth=0.5,
-                label=f"tie (< {RESOLUTION:g})",
+                label="tie (below resolution)",
             )
         )
     box = legend_ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.0, 1.0),
@@ -775,8 +806,9 @@ def best_method_map(atlas, *, metric="interval", methods=None, p_scale="logit", 
         "Broken lines: rules of thumb (np, nq = 5 dashed; np, nq = 10 dash-dot; npq = 9 "
         "dotted). Each drawn column goes to the method "
         "whose largest error over the grid n it stands for (bins of 1/"
-        f"{N_PER_DECADE} decade) is smallest; grey: two or more methods below "
-        f"{RESOLUTION:g}, the accuracy of the exact side, which cannot be ranked.",
+        f"{N_PER_DECADE} decade) is smallest; grey: two or more methods below the resolution "
+        f"of the exact side ({RESOLUTION_FACTOR:g} times their accuracy, at least "
+        f"{RESOLUTION:g}), which cannot be ranked.",
     )
     _finish(fig, [{"ax": ax, "p": p, "rules": curves}])
     return fig

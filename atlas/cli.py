@@ -488,6 +488,7 @@ def _cmd_rules(args):
         methods=args.method,
         metrics=args.metric or METRICS,
         tols=tols,
+        between=not args.grid_only,
     )
     return _emit(audit.render(args.format), args.output)
 
@@ -587,6 +588,9 @@ def _add_output_commands(commands):
     audit.add_argument("--metric", action="append",
                        help="interval or cdf (repeatable; default both)")  # fmt: skip
     audit.add_argument("--tol", default="0.01,0.005,0.001", help="tolerances for the shares")
+    audit.add_argument("--grid-only", action="store_true",
+                       help="the worst error over the grid cells only (default: every integer n "
+                       "and p of the atlas's ranges, as checked)")  # fmt: skip
     text_options(audit, "md (default) or json")
     audit.set_defaults(handler=_cmd_rules,
                        names={"methods": "--method", "metric": "--metric", "metrics": "--metric",

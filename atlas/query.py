@@ -471,19 +471,27 @@ class Atlas:
             out += (lo.reshape(shape), hi.reshape(shape))
         return out
 
-    def _columns(self, start, stop, p_values, method, metric):
+    def _columns(self, start, stop, p_values, method, metric, *, accuracy=False):
         """Errors at grid n[start:stop] for the given p: from the cube when p and method are
-        stored, else computed by the engine. Shape (stop - start, len(p_values))."""
+        stored, else computed by the engine. Shape (stop - start, len(p_values)); with
+        ``accuracy``, the pair (errors, their accuracies)."""
         n_axis, p_axis = self._axes()
         if method in self.methods:
             j = np.searchsorted(p_axis, p_values).clip(0, p_axis.size - 1)
             if np.all(p_axis[j] == p_values):
-                return self._stored(_VARIABLES[metric], method)[start:stop][:, j].astype(np.float64)
+                values = self._stored(_VARIABLES[metric], method)[start:stop][:, j]
+                if not accuracy:
+                    return values.astype(np.float64)
+                acc = self._stored(_ACCURACIES[metric], method)[start:stop][:, j]
+                return values.astype(np.float64), acc.astype(np.float64)
         out = np.empty((stop - start, p_values.size))
+        acc = np.empty((stop - start, p_values.size))
         for row, value in enumerate(n_axis[start:stop]):
             ev = evaluate(int(value), p_values, methods=(method,))
-            out[row] = ev.interval[0] if metric == "interval" else ev.cdf[0]
-        return out
+            interval = metric == "interval"
+            out[row] = ev.interval[0] if interval else ev.cdf[0]
+            acc[row] = ev.interval_accuracy[0] if interval else ev.cdf_accuracy[0]
+        return (out, acc) if accuracy else out
 
     # --- the questions ------------------------------------------------------------------------
 
@@ -759,9 +767,10 @@ class Atlas:
         answer = self._cache.get(key)  # answers are kept: tables, sheets and wiki ask again
         if answer is None:
             n_axis, _ = self._axes()
-            values = self._columns(0, n_axis.size, np.array([p_value]), method, metric)[:, 0]
-            answer = minimum_n(n_axis, values, p_value, tol_value, method=method, metric=metric,
-                               runs=runs)  # fmt: skip
+            values, accuracy = self._columns(0, n_axis.size, np.array([p_value]), method, metric,
+                                             accuracy=True)  # fmt: skip
+            answer = minimum_n(n_axis, values[:, 0], p_value, tol_value, method=method,
+                               metric=metric, runs=runs, accuracy=accuracy[:, 0])  # fmt: skip
             self._cache[key] = answer
         return answer
 
@@ -819,7 +828,7 @@ class Atlas:
         n_axis, _ = self._axes()
 
         def column(ps):
-            return self._columns(0, n_axis.size, ps, method, metric)
+            return self._columns(0, n_axis.size, ps, method, metric, accuracy=True)
 
         return minimum_n_over(n_axis, chosen, column, float(p_lo), float(p_hi), tol_value,
                               method=method, metric=metric)  # fmt: skip
@@ -892,8 +901,8 @@ class Atlas:
             out.append(Ranked(methods[k], errors[k], accuracies[k], rank_of[k], tied))
         return out
 
-    def safe_region(self, tol, *, method="normal_cc", metric="interval", between=False):
-        """Where on the grid the error is within ``tol``.
+    def safe_region(self, tol, *, method="normal_cc", metric="interval", between=True):
+        """Where the error is within ``tol``: for every integer n and p of each grid cell.
 
         Parameters
         ----------
@@ -903,48 +912,48 @@ class Atlas:
             As for :meth:`error`; a method the atlas does not store is computed over the whole
             grid by the engine (as long as building it).
         between : bool, optional
-            False (default): True at (n_i, p_j) means the error at that grid point is within
-            ``tol``. True: it means the error at n_i is within ``tol`` at p_j, at both edges of
-            its p-cell (log-odds midpoints to the neighbours) and at points bisected between
-            them where the errors differ or come near ``tol``, or for every p of the cell by the
-            large-n bound (:func:`atlas.regions.safe_cells`); attrs ``claim`` and ``checked``.
+            True (default): True at (n_i, p_j) means error + accuracy <= tol for every integer
+            n from n_i up to the next grid n (n_i alone at the atlas's end) and every p of the
+            p-cell of p_j (between the log-odds midpoints to its neighbours), as checked by
+            :func:`atlas.regions.safe_cells`: the large-n bound, the engine at the p-edges
+            where the grid's neighbours differ or come near ``tol`` and bisected between
+            them, and the one-step bound (with the engine where it does not suffice) between
+            grid n. False: at the grid point (n_i, p_j) only.
 
         Returns
         -------
         xarray.DataArray
             Boolean, dims (n, p), the atlas's coordinates; attrs ``tol``, ``method``,
-            ``metric``, ``long_name`` and ``description``.
+            ``metric``, ``long_name``, ``description``, ``claim`` (what True means) and
+            ``checked`` (what was computed, and what is left unchecked).
 
         Raises
         ------
         ValueError
             For a bad tol, method or metric.
+
+        Examples
+        --------
+        >>> from atlas import build_atlas
+        >>> at = Atlas(build_atlas(n="10,20,40", p="0.5", methods="normal_cc", progress=False))
+        >>> at.safe_region(0.003).values.tolist()  # W(10, 1/2) = 0.00537; below 0.0028 from 20 on
+        [[False], [True], [True]]
         """
         import xarray as xr
 
         tol_value, method = _question(tol, method, metric)
         n_axis, p_axis = self._axes()
-        errors = self._columns(0, n_axis.size, p_axis, method, metric)
-        extra = {"claim": "error <= tol at the grid point (n, p) only"}
-        safe = errors <= tol_value
+        errors, accuracy = self._columns(0, n_axis.size, p_axis, method, metric, accuracy=True)
         if between:
-            from atlas.regions import CELL_ROUNDS, safe_cells
+            from atlas.regions import region_words, safe_cells
 
             safe, stats = safe_cells(n_axis, p_axis, errors, tol_value, method=method,
-                                     metric=metric)  # fmt: skip
-            extra = {
-                "claim": (
-                    "error <= tol at n for p at the grid p, both edges of its p-cell "
-                    "(log-odds midpoints to the neighbours) and the points bisected "
-                    f"between them ({CELL_ROUNDS} rounds), or for every p of the cell by "
-                    "the Berry-Esseen bound"
-                ),  # fmt: skip
-                "checked": (
-                    f"{stats['evaluated']} engine points off the grid "
-                    f"({stats['refined']} bisected); {stats['bounded_cells']} cells "
-                    "by the large-n bound"
-                ),  # fmt: skip
-            }
+                                     metric=metric, accuracy=accuracy)  # fmt: skip
+            extra = region_words(stats, method)
+        else:
+            safe = errors + accuracy <= tol_value
+            extra = {"claim": "error + accuracy <= tol at the grid point (n, p) only",
+                     "checked": "the grid's values only"}  # fmt: skip
         return xr.DataArray(
             safe,
             dims=("n", "p"),
@@ -952,7 +961,8 @@ class Atlas:
             name="safe",
             attrs={
                 "long_name": f"{method} {metric} error within the tolerance",
-                "description": f"{_VARIABLES[metric]} <= tol for method {method}",
+                "description": f"{_VARIABLES[metric]} + {_ACCURACIES[metric]} <= tol for "
+                f"method {method}",
                 "tol": tol_value,
                 "method": method,
                 "metric": metric,

@@ -123,6 +123,7 @@ class ThresholdTable:
     provenance: str
     partial: tuple = ()  # (i, j) of entries not covered at every integer (see notes)
     bounded: tuple = ()  # (i, j) of entries covered only up to the atlas's end
+    unresolved: tuple = ()  # (i, j) of entries decided within the accuracy of the exact side
 
     def title(self):
         return f"Minimum n for {self.method}, {self.metric} error"
@@ -132,6 +133,8 @@ class ThresholdTable:
         ``"to_atlas_end"`` or ``"not_reached"`` (see :meth:`basis_meanings`)."""
         if value is None:
             return "not_reached"
+        if where in self.unresolved:
+            return "below_resolution"
         if where in self.partial:
             return "evaluated_only"
         return "to_atlas_end" if where in self.bounded else "exact"
@@ -146,6 +149,9 @@ class ThresholdTable:
             "there only the n evaluated are checked",
             "to_atlas_end": f"every integer n from the entry to {self.n_max}, the atlas's end, "
             "is within the tolerance; no bound is established beyond it",
+            "below_resolution": "the error at N - 1 exceeds the tolerance only by less than "
+            "its accuracy (the resolution of the exact side): counted as failing, so N is "
+            "conservative and the true minimum may be smaller",
             "not_reached": f"not reached: the error exceeds the tolerance at the atlas's end, "
             f"n = {self.n_max}",
         }
@@ -154,6 +160,8 @@ class ThresholdTable:
         if value is None:
             return f"> {_compact_n(self.n_max)}"
         mark = " ‡" if where in self.partial else (" §" if where in self.bounded else "")
+        if where in self.unresolved:
+            mark += " ¶"
         return f"{value:,}{mark}"
 
     def notes(self):
@@ -173,6 +181,10 @@ class ThresholdTable:
         if self.bounded:
             notes.append(f"§: covered up to n = {self.n_max:,}, the atlas's end; no bound "
                          "is established beyond it.")  # fmt: skip
+        if self.unresolved:
+            notes.append("¶: below the resolution of the exact side: the error at N - 1 "
+                         "exceeds the tolerance only by less than its accuracy; N is "
+                         "conservative.")  # fmt: skip
         return notes
 
     def to_rows(self):
@@ -296,6 +308,7 @@ def threshold_table(atlas, tols=TABLE_TOLS, ps=TABLE_PS, *, method="normal_cc",
         provenance=provenance_line(atlas),
         partial=tuple((i, j) for i, j, a in cells if not a.exact),
         bounded=tuple((i, j) for i, j, a in cells if a.exact and a.upto is not None),
+        unresolved=tuple((i, j) for i, j, a in cells if not a.resolved),
     )
 
 
@@ -389,7 +402,7 @@ class RuleAudit:
                     row.method,
                     row.metric,
                     f"{row.cells:,}",
-                    _fmt_error(row.worst_error),
+                    _fmt_error(row.worst_error) + (" †" if _left_open(row) else ""),
                     "—" if row.worst_n is None else f"{row.worst_n:,}",
                     # a grid p such as 0.004987164074638706 would not fit the column
                     "—" if row.worst_p is None else format_p_brief(row.worst_p),
@@ -405,15 +418,23 @@ class RuleAudit:
                 "worst error: the largest error found over every integer n and p of the atlas's "
                 "ranges the rule admits: grid cells, the rule's boundary (the first admitted "
                 f"integers n) at {between.p_checked} p ({between.p_refined} refined between grid "
-                "p), and every larger admitted n at each grid p bounded by the one-step bound "
-                "where it certifies (the JSON says, per row, at how many grid p); p between those "
-                "checked are not computed. ≈: p rounded to 4 digits; the JSON holds it whole.",
+                "p), and every larger admitted n at each grid p bounded by the one-step bound, "
+                "with the engine in the gaps it does not certify, within a budget; p between "
+                "those checked are not computed. ≈: p rounded to 4 digits; the JSON holds it "
+                "whole.",
             ]
+            if any(_left_open(r) for r in self.rows):
+                first.append(
+                    "†: integers between grid n left unchecked at some p (no step bound is "
+                    "derived for the method, or the budget of engine evaluations spent): only the "
+                    "n evaluated there count; the JSON lists them per row."
+                )
         else:
-            first = []
+            first = [
+                "worst error: the largest error over the grid cells (n, p) the rule admits; "
+                "at n, at p: where it occurs (≈: p rounded to 4 digits; the JSON holds it whole).",
+            ]
         return first + [
-            "worst error: the largest error over the grid cells (n, p) the rule admits; "
-            "at n, at p: where it occurs (≈: p rounded to 4 digits; the JSON holds it whole).",
             "≤ tol: the share of the rule's grid cells whose error is within tol "
             f"(of {self.grid_cells:,} grid cells in all; shares count cells, so they follow the "
             "grid's density).",
@@ -450,7 +471,13 @@ class RuleAudit:
         return self.to_markdown() if fmt == "md" else self.to_json()
 
 
-def rule_audit(atlas, rules=None, *, methods=None, metrics=METRICS, tols=AUDIT_TOLS, between=False):
+def _left_open(row):
+    """Whether some integers between grid n are left unchecked for an audit row."""
+    w = row.checked
+    return w is not None and row.cells > 0 and (bool(w.open_gaps) or not w.bounded)
+
+
+def rule_audit(atlas, rules=None, *, methods=None, metrics=METRICS, tols=AUDIT_TOLS, between=True):
     """Audit rules of thumb against the atlas: the worst error each admits on the grid.
 
     Parameters
@@ -466,10 +493,10 @@ def rule_audit(atlas, rules=None, *, methods=None, metrics=METRICS, tols=AUDIT_T
     tols : sequence of float, optional
         Tolerances in (0, 1) for the shares; default (0.01, 0.005, 0.001).
     between : bool, optional
-        True: the worst error over every integer n and p of the atlas's ranges the rule
-        admits, checked as :func:`atlas.regions.rule_worst` says (``AuditRow.checked``; about
-        40 s on the default atlas); False (default for now): over the grid cells only.
-        The shares count grid cells either way.
+        True (default): the worst error over every integer n and p of the atlas's ranges the
+        rule admits, checked as :func:`atlas.regions.rule_worst` says (``AuditRow.checked``
+        says what was computed and which gaps, if any, are left unchecked); False: over the
+        grid cells only. The shares count grid cells either way.
 
     Returns
     -------

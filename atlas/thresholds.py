@@ -34,12 +34,11 @@ __all__ = ["EXTEND_MAX", "MAX_EVALUATIONS", "RangeThreshold", "Threshold", "mini
 EXTEND_MAX = 10**12  # the largest n evaluated beyond the atlas's end
 MAX_EVALUATIONS = 3000  # engine evaluations per question before giving up (said in the answer)
 _GAP_BUDGET = 1000  # a gap that needs more evaluations is left to its known n (said)
-# Slack added to every certified bound: rounding in the bound and the engine's values. It
-# exceeds every accuracy the engine states (atlas.engine, "Accuracy": at most about 3e-14, for
-# the interval metric in narrow windows at sigma near 113), so the engine's values need nothing
-# more. Not yet covered: grid values read from a float32 atlas carry their rounding, |value|
-# 2^-24 (the cube's interval_accuracy / cdf_accuracy include it), up to 6e-10 at tol = 0.01;
-# a stored value within that of tol could be classed on the wrong side of it.
+# Slack added to every certified bound: rounding in the bound. Every value also carries its
+# own accuracy (the engine's, or the cube's interval_accuracy / cdf_accuracy, which include
+# the float32 rounding of a compact atlas, |value| 2^-24): a value counts as within tol only
+# when value + accuracy <= tol, and a stored value whose side of tol its accuracy leaves open
+# is computed again by the engine.
 _SLACK = 1e-12
 _NUMERIC_MAX_STEPS = 200000
 _BISECT_UNBOUNDED = 64  # gaps up to this wide are evaluated at every integer without a bound
@@ -54,6 +53,7 @@ class _Question:
     method: str
     metric: str
     known: dict = field(default_factory=dict)  # n -> error (grid, engine, extension)
+    accuracy: dict = field(default_factory=dict)  # n -> accuracy of the known error (0 if absent)
     evaluated: int = 0
     numeric: dict = field(default_factory=dict)  # n -> numeric rho_n
     uncovered: list = field(default_factory=list)  # gaps (a, b) left to their grid n
@@ -67,13 +67,19 @@ class _Question:
             if self.evaluated >= self.budget:
                 raise _Exhausted
             ev = evaluate(int(n), [self.p], methods=(self.method,))
-            v = float((ev.interval if self.metric == "interval" else ev.cdf)[0, 0])
+            interval = self.metric == "interval"
+            v = float((ev.interval if interval else ev.cdf)[0, 0])
             self.known[n] = v
+            self.accuracy[n] = float((ev.interval_accuracy if interval else ev.cdf_accuracy)[0, 0])
             self.evaluated += 1
         return v
 
+    def upper(self, n):
+        """An upper bound on the true error at n: its value plus its accuracy."""
+        return self.value(n) + self.accuracy.get(n, 0.0)
+
     def safe(self, n):
-        return self.value(n) <= self.tol
+        return self.upper(n) <= self.tol
 
     def step_sum(self, a, count):
         """An upper bound on rho_a + ... + rho_{a+count-1}; inf if none is known."""
@@ -100,7 +106,7 @@ class _Question:
         count = b - a - 1
         if count <= 0:
             return True
-        va = self.known[a]
+        va = self.upper(a)
         if not va <= self.tol:
             return False
         steps = self.step_sum(a, count)
@@ -115,7 +121,7 @@ class _Question:
 
     def reach(self, a):
         """How many integers after a its value certifies (for stepping beyond the atlas)."""
-        va = self.known[a]
+        va = self.upper(a)
         rho = step_bound(self.method, [a], self.p)
         if rho is None or not va <= self.tol:
             return 0
@@ -249,6 +255,15 @@ class Threshold:
     beyond: object
     grid_end: int
     at_most: bool = False
+    failing_accuracy: float = 0.0
+
+    @property
+    def resolved(self):
+        """False when the error at N - 1 exceeds tol by less than its accuracy: N - 1 is counted
+        as failing on the accuracy (conservative), and the true minimum may be smaller."""
+        if self.failing is None:
+            return True
+        return bool(self.failing[1] - self.failing_accuracy > self.tol)
 
     def basis(self):
         """What the answer rests on, in words."""
@@ -273,6 +288,10 @@ class Threshold:
                 f"between n = {first:,} and {last:,}, where only the n evaluated are checked "
                 "(no step bound for this method there, or too many evaluations needed)"
             )
+        if not self.resolved:
+            text += (f"; n = {self.n - 1:,} exceeds the tolerance only by less than the "
+                     "accuracy of its error (below the resolution of the exact side): counted "
+                     "as failing, so the answer is conservative")  # fmt: skip
         if self.beyond:
             text += f"; {self.beyond}"
         elif self.upto is not None:
@@ -296,7 +315,7 @@ class Threshold:
 
 
 def minimum_n(grid_n, values, p, tol, *, method, metric, runs=False, floor=None,
-              budget=None):  # fmt: skip
+              budget=None, accuracy=None):  # fmt: skip
     """The exact minimum n at one p: see :class:`Threshold` and the module notes.
 
     Parameters
@@ -317,6 +336,9 @@ def minimum_n(grid_n, values, p, tol, *, method, metric, runs=False, floor=None,
     budget : int, optional
         Engine evaluations allowed (default ``MAX_EVALUATIONS``); gaps left when it is spent
         are reported in ``uncovered``.
+    accuracy : numpy.ndarray of float64, optional
+        The accuracy of ``values`` (the cube's ``interval_accuracy`` / ``cdf_accuracy``); if
+        omitted, the float32 rounding 2^-23 |value| is assumed.
 
     Returns
     -------
@@ -334,13 +356,17 @@ def minimum_n(grid_n, values, p, tol, *, method, metric, runs=False, floor=None,
     question.budget = MAX_EVALUATIONS if budget is None else int(budget)
     grid_n = np.asarray(grid_n, dtype=np.int64)
     values = np.asarray(values, dtype=np.float64)
-    for n, v in zip(grid_n.tolist(), values.tolist(), strict=True):
-        question.known[n] = v
-    # A stored value within float32 rounding of tol (the compact atlas keeps 7 digits) is
-    # computed again, so that its side of tol is the engine's.
-    close = np.flatnonzero(np.abs(values - tol) <= 2.0**-23 * np.maximum(np.abs(values), tol))
+    if accuracy is None:
+        accuracy = 2.0**-23 * np.abs(values)
+    accuracy = np.asarray(accuracy, dtype=np.float64)
+    question.known.update(zip(grid_n.tolist(), values.tolist(), strict=True))
+    question.accuracy.update(zip(grid_n.tolist(), accuracy.tolist(), strict=True))
+    # A stored value whose accuracy leaves its side of tol open (within float32 rounding of
+    # tol, say) is computed again, so that its side of tol is the engine's.
+    close = np.flatnonzero(np.abs(values - tol) <= accuracy)
     for n in grid_n[close].tolist():
         del question.known[n]
+        del question.accuracy[n]
         question.value(n)
     grid_end = int(grid_n[-1])
     points = grid_n.tolist()
@@ -388,6 +414,7 @@ def minimum_n(grid_n, values, p, tol, *, method, metric, runs=False, floor=None,
         upto=upto, exact=not question.uncovered, failing=failing, runs=stretches,
         uncovered=tuple(question.uncovered), grid_values=int(grid_n.size),
         evaluated=question.evaluated, beyond=beyond, grid_end=grid_end, at_most=at_most,
+        failing_accuracy=0.0 if failing is None else question.accuracy.get(failing[0], 0.0),
     )  # fmt: skip
 
 
@@ -404,7 +431,7 @@ def _certified_gaps(question, grid_n):
     rho = step_bound(question.method, a, question.p) if a.size else None
     if rho is None:
         return set()
-    va = np.array([question.known[n] for n in a.tolist()])
+    va = np.array([question.upper(n) for n in a.tolist()])
     ext = extension_bound(question.method, a, question.p, question.metric)
     if question.metric == "interval":
         bound = va + 2.0 * ext + 2.0 * count * rho
@@ -481,7 +508,7 @@ def _runs(question, points, n_star, *, refine):
     below = [n for n in points if n < limit]
     runs = []
     for n in below:
-        safe = known[n] <= tol
+        safe = question.upper(n) <= tol
         if runs and runs[-1][2] == safe:
             runs[-1][1] = n
         else:
@@ -616,7 +643,7 @@ def minimum_n_over(grid_n, grid_p, column, p_lo, p_hi, tol, *, method, metric):
         The grid p inside [p_lo, p_hi].
     column : callable
         ``column(ps)`` returns the errors at ``grid_n`` for each p of ``ps``, shape
-        (len(grid_n), len(ps)).
+        (len(grid_n), len(ps)), or the pair (errors, their accuracies).
     p_lo, p_hi, tol : float
     method, metric : str
 
@@ -639,7 +666,8 @@ def minimum_n_over(grid_n, grid_p, column, p_lo, p_hi, tol, *, method, metric):
         ps = np.array(sorted(set(ps) - set(results)), dtype=np.float64)
         if not ps.size:
             return
-        values = column(ps)
+        got = column(ps)  # errors, or (errors, accuracies)
+        values, accuracy = got if isinstance(got, tuple) else (got, None)
         # The grid's lower bound on each answer: one past the largest grid n above tol.
         lower = []
         for j in range(ps.size):
@@ -655,7 +683,8 @@ def minimum_n_over(grid_n, grid_p, column, p_lo, p_hi, tol, *, method, metric):
             # no integer from the largest answer on exceeds tol.
             budget = None if top is None else _RANGE_BUDGET
             answer = minimum_n(grid_n, values[:, j], p, tol, method=method, metric=metric,
-                               floor=top, budget=budget)  # fmt: skip
+                               floor=top, budget=budget,
+                               accuracy=None if accuracy is None else accuracy[:, j])  # fmt: skip
             results[p] = answer
             estimate[p] = lower[j] if answer.at_most else answer.n
 

@@ -17,6 +17,7 @@ from numpy.testing import assert_allclose
 import atlas
 from atlas import bounds
 from atlas.approximations import approximate_cdf
+from atlas.bounds import extension_bound, extension_cap, step_bound
 from atlas.engine import worst_error
 
 HERMITE_METHODS = ("normal", "normal_cc", "edgeworth_cc", "edgeworth2_cc")
@@ -99,3 +100,30 @@ def test_extension_bound_covers_the_far_tails():
             outside = (k < 0) | (k > n)
             e_cdf = bounds.extension_bound(method, [n], p, "cdf")[0]
             assert np.abs(d[outside]).max() <= e_cdf + 1e-15, (method, n, p)
+
+
+def test_step_bound_takes_an_array_of_p():
+    p = np.array([0.001, 0.3, 0.7, 0.999])
+    for method in ("normal_cc", "edgeworth2_cc", "poisson"):
+        together = step_bound(method, [50, 500, 5000, 50000], p)
+        ns = [50, 500, 5000, 50000]
+        apart = [step_bound(method, [n], x)[0] for n, x in zip(ns, p, strict=True)]
+        assert_allclose(together, apart, rtol=1e-15)
+
+
+def test_extension_cap_bounds_the_extension():
+    # The cap (notes of extension_cap) is never below extension_bound, computed at every integer
+    # with |z| < 12; random cells, including small n p where the extension matters.
+    rng = np.random.default_rng(12)
+    n = np.exp(rng.uniform(0, np.log(1e6), size=120)).astype(np.int64) + 1
+    p = 10 ** rng.uniform(-4, -0.01, size=120)
+    for method in ("edgeworth_cc", "edgeworth2_cc"):
+        for metric in ("interval", "cdf"):
+            cap = extension_cap(method, n, p, metric)
+            exact = np.array([extension_bound(method, [a], b, metric)[0]
+                              for a, b in zip(n.tolist(), p.tolist(), strict=True)])  # fmt: skip
+            # extension_bound counts a flat allowance (up to 1e-24 at sigma ~ 0.01) for |z| >= 12,
+            # where the cap follows the tails themselves (far smaller there).
+            assert (cap >= exact - 1e-20).all()
+            assert (cap > 1e-6).any()  # and some cells where the extension matters
+    assert extension_cap("normal_cc", [10], [0.3], "cdf") is None

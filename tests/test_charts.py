@@ -249,7 +249,10 @@ def test_best_method_map_against_numpy(chart_atlas):
     errors = np.stack([ds["interval_error"].sel(approximation=m).values
                        for m in ("normal_cc", "edgeworth_cc", "poisson")])  # fmt: skip
     expected = np.argmin(errors, axis=0)  # the chart atlas is not pooled (see above)
-    expected[(errors <= charts.RESOLUTION).sum(axis=0) >= 2] = 3  # the tie category
+    accuracy = np.stack([ds["interval_accuracy"].sel(approximation=m).values
+                         for m in ("normal_cc", "edgeworth_cc", "poisson")])  # fmt: skip
+    floor = np.maximum(charts.RESOLUTION, 3.0 * accuracy)  # below resolution: is_resolved
+    expected[(errors <= floor).sum(axis=0) >= 2] = 3  # the tie category
     assert_array_equal(np.asarray(mesh.get_array()).reshape(expected.T.shape), expected.T)
     legend = fig.axes[1].get_legend()  # in a column of its own, beside the map
     assert legend.get_gid() == "methods-legend"

@@ -291,16 +291,18 @@ OFF_GRID_P = (0.2, 0.0123, 0.95, 0.1 + 0.2)
 
 @pytest.fixture(scope="module")
 def every_integer(at):
-    """Engine errors at every integer n = 1..5000 (the small atlas's end) for the atlas's p and
-    OFF_GRID_P: {(method, metric): array (5000, len(p))} (brute force, one call per n)."""
+    """Engine errors + accuracies at every integer n = 1..5000 (the small atlas's end) for the
+    atlas's p and OFF_GRID_P: {(method, metric): array (5000, len(p))} (brute force, one call
+    per n)."""
     ps = np.concatenate([at.p, OFF_GRID_P])
     methods = ("normal_cc", "camp_paulson")
     out = {(m, e): np.empty((int(at.n[-1]), ps.size)) for m in methods for e in ("interval", "cdf")}
     for n in range(1, int(at.n[-1]) + 1):
         ev = atlas.engine.evaluate(n, ps, methods=methods)
         for i, m in enumerate(methods):
-            out[(m, "interval")][n - 1] = ev.interval[i]
-            out[(m, "cdf")][n - 1] = ev.cdf[i]
+            # error + accuracy: min_n counts n as within tol only then (conservative)
+            out[(m, "interval")][n - 1] = ev.interval[i] + ev.interval_accuracy[i]
+            out[(m, "cdf")][n - 1] = ev.cdf[i] + ev.cdf_accuracy[i]
     return ps, out
 
 
@@ -598,7 +600,13 @@ def test_safe_region(at, small_atlas):
     assert region.attrs["tol"] == 0.01
     assert region.attrs["method"] == "edgeworth_cc" and region.attrs["metric"] == "cdf"
     errors = brute_errors(at.n, at.p, "edgeworth_cc", "cdf")
-    assert_array_equal(region.values, errors <= 0.01)
+    grid_only = at.safe_region(0.01, method="edgeworth_cc", metric="cdf", between=False)
+    # At the grid points, error + accuracy <= tol (the engine's accuracy is below 1e-13 here).
+    assert_array_equal(grid_only.values, errors + 1e-13 <= 0.01)
+    # Off the grid (the default) the claim covers whole cells: never more than the grid says.
+    assert not (region.values & ~grid_only.values).any()
+    # wide p-cells (7 p): computed, 191 of 238
+    assert region.values.sum() > 0.5 * grid_only.values.sum()
     only_cc = Atlas(at.dataset.sel(approximation=["normal_cc"]))
     assert_array_equal(only_cc.safe_region(0.01, method="edgeworth_cc", metric="cdf"), region)
 

@@ -6,7 +6,7 @@ import pytest
 import atlas
 from atlas import build_atlas
 from atlas.query import Atlas
-from atlas.regions import admitted_runs, cell_edges
+from atlas.regions import admitted_runs, cell_edges, gap_certified
 from atlas.rules import parse_rule
 from atlas.tables import rule_audit
 
@@ -34,9 +34,10 @@ def test_cell_edges_are_log_odds_midpoints():
 
 def test_audit_worst_not_contradicted_off_grid(small):
     rule = "n*p >= 5 and n*q >= 5"
-    row = rule_audit(small, [rule], metrics=["interval"], between=True).rows[0]
+    row = rule_audit(small, [rule], metrics=["interval"]).rows[0]  # off the grid by default
     assert row.checked is not None and row.checked.p_checked >= 19
-    grid_row = rule_audit(small, [rule], metrics=["interval"]).rows[0]
+    assert row.checked.as_dict()["open_gaps"] == []  # every gap certified or bisected here
+    grid_row = rule_audit(small, [rule], metrics=["interval"], between=False).rows[0]
     assert row.worst_error >= grid_row.worst_error
     parsed = parse_rule(rule)
     rng = np.random.default_rng(10)
@@ -50,19 +51,43 @@ def test_audit_worst_not_contradicted_off_grid(small):
 
 
 def test_safe_region_between_not_contradicted_off_grid(small):
-    region = small.safe_region(0.01, between=True)
+    region = small.safe_region(0.01)  # off the grid by default
     assert "claim" in region.attrs and "checked" in region.attrs
-    grid_only = small.safe_region(0.01)
-    # The claim over p-cells is never weaker than the grid-point one.
+    grid_only = small.safe_region(0.01, between=False)
+    # The claim over whole cells is never weaker than the grid-point one.
     assert not bool((region.values & ~grid_only.values).any())
     edges = cell_edges(small.p)
+    stop = np.append(small.n[1:], small.n[-1] + 1)
     rng = np.random.default_rng(11)
     i, j = np.nonzero(region.values)
     pick = rng.integers(0, i.size, size=2000)
-    n = small.n[i[pick]]
+    n = rng.integers(small.n[i[pick]], stop[i[pick]])  # any integer of the cell's n-range
+    assert (n > small.n[i[pick]]).sum() > 100
     p = rng.uniform(edges[j[pick]], edges[j[pick] + 1])
-    values = atlas.worst_error(n, p, method="normal_cc", metric="interval")
-    assert float(values.max()) <= 0.01
+    error, accuracy = atlas.worst_error(n, p, method="normal_cc", metric="interval",
+                                        return_accuracy=True)  # fmt: skip
+    assert float((error + accuracy).max()) <= 0.01
+
+
+def test_gap_certified_follows_the_one_step_bound():
+    # W(a + m) <= W(a) + 2 E + 2 m rho: with rho from atlas.bounds, the largest m certified.
+    from atlas.bounds import step_bound
+
+    a, p, upper, level = 10**6, 0.3, 0.0001, 0.001
+    rho = float(step_bound("normal_cc", [a], p)[0])
+    most = int((level - upper - 2e-12) / (2 * rho))  # E = 0 for normal_cc (monotone G)
+    got = gap_certified("normal_cc", "interval", [a, a], [most, most + 2], p, [upper, upper],
+                        level)  # fmt: skip
+    assert got.tolist() == [True, False]
+    assert gap_certified("camp_paulson", "interval", [a], [5], p, [0.0], 1.0).tolist() == [False]
+    assert gap_certified("camp_paulson", "interval", [a], [0], p, [0.0], 1.0).tolist() == [True]
+
+
+def test_safe_cells_count_cells_left_unchecked_without_a_step_bound():
+    at = Atlas(build_atlas(n="1:20,40,80", p="0.3,0.5", methods="peizer_pratt", progress=False))
+    region = at.safe_region(0.05, method="peizer_pratt")
+    assert region.attrs["unchecked_cells"] >= 1
+    assert "not checked for peizer_pratt" in region.attrs["checked"]
 
 
 def test_safe_region_between_refuses_bad_tol(small):

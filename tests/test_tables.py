@@ -66,9 +66,12 @@ def test_table_formats(chart_atlas):
     # "> 100000" (not reached on a grid ending at 10^5), basis says on what it rests.
     rows = list(csv.reader(io.StringIO(table.to_csv())))
     assert rows[0] == ["p", "tol", "min_n", "basis"]
+
     def code(v, where):
         if v is None:
             return "not_reached"
+        if where in table.unresolved:
+            return "below_resolution"
         if where in table.partial:
             return "evaluated_only"
         return "to_atlas_end" if where in table.bounded else "exact"
@@ -91,7 +94,7 @@ def test_table_formats(chart_atlas):
         [code(v, (i, j)) for j, v in enumerate(row)] for i, row in enumerate(table.min_n)
     ]
     assert set(record["basis_meanings"]) == {"exact", "evaluated_only", "to_atlas_end",
-                                             "not_reached"}  # fmt: skip
+                                             "below_resolution", "not_reached"}  # fmt: skip
     assert "every integer n from the entry on" in record["basis_meanings"]["exact"]
     assert "100000" in record["basis_meanings"]["not_reached"]
     for row, marks in zip(record["min_n"], record["basis"], strict=True):
@@ -165,7 +168,7 @@ def test_audit_against_brute_force(chart_atlas):
         for c in (5, 9, 10, 25):
             gap = np.abs(value - c) / c
             assert not ((gap > 1e-12) & (gap < 1e-9)).any()
-    audit = tables.rule_audit(chart_atlas, list(masks), tols=TOLS)
+    audit = tables.rule_audit(chart_atlas, list(masks), tols=TOLS, between=False)  # grid only
     assert len(audit.rows) == len(masks) * 3 * 2
     assert audit.grid_cells == n.size * p.size
     for row in audit.rows:
@@ -206,9 +209,9 @@ def test_audit_formats(chart_atlas):
     assert ("| rule | method | metric | cells | worst error | at n | at p | ≤ 0.01 | ≤ 0.005 | "
             "≤ 0.001 |") in markdown  # fmt: skip
     for row in audit.rows:
-        assert f"| {row.name} | normal_cc | interval | {row.cells:,} | {row.worst_error:.3g} |" in (
-            markdown
-        )
+        open_mark = " †" if tables._left_open(row) else ""  # integers left unchecked: marked
+        assert (f"| {row.name} | normal_cc | interval | {row.cells:,} | "
+                f"{row.worst_error:.3g}{open_mark} |") in markdown  # fmt: skip
     record = json.loads(audit.render("json"))
     assert [r["rule"] for r in record["rows"]] == list(CLASSIC_RULES)
     assert record["rows"][2]["name"] == "npq > 9"
@@ -272,6 +275,22 @@ def test_cli_errors(chart_atlas, capsys, tmp_path, monkeypatch, args, message):
     assert main([*args, "--atlas", str(chart_atlas.path)]) == 2
     assert capsys.readouterr().err == f"approx-atlas: error: {message}\n"
     assert os.listdir(tmp_path) == []
+
+
+def test_cli_rules_grid_only(chart_atlas, capsys):
+    assert main(["rules", "--atlas", str(chart_atlas.path), "--method", "normal_cc",
+                 "--metric", "interval", "--format", "json", "--grid-only"]) == 0  # fmt: skip
+    record = json.loads(capsys.readouterr().out)
+    assert all("checked" not in r for r in record["rows"])  # the grid cells only
+    expected = tables.rule_audit(chart_atlas, methods=["normal_cc"], metrics=["interval"],
+                                 between=False)  # fmt: skip
+    assert record == json.loads(expected.to_json())
+    assert main(["rules", "--atlas", str(chart_atlas.path), "--method", "normal_cc",
+                 "--metric", "interval", "--format", "json"]) == 0  # fmt: skip
+    default = json.loads(capsys.readouterr().out)
+    assert all("checked" in r for r in default["rows"])  # off the grid by default
+    assert all(d["worst_error"] >= g["worst_error"]
+               for d, g in zip(default["rows"], record["rows"], strict=True))  # fmt: skip
 
 
 def test_cli_rules(chart_atlas, capsys):

@@ -14,6 +14,7 @@ import pytest
 
 import atlas
 from atlas.engine import evaluate, worst_error
+from atlas.thresholds import minimum_n
 
 
 def _every_integer(n_lo, n_hi, p, method="normal_cc", metric="interval"):
@@ -118,3 +119,31 @@ def test_range_states_what_was_checked(default):
     assert f"the grid's {answer.grid_p}" in text and "log-odds" in text
     assert answer.worst_p == 0.2 or answer.n == max(t.n for t in answer.per_p)
     assert len(answer.per_p) > answer.grid_p  # both ends at least
+
+
+def test_min_n_trusts_a_stored_value_only_beyond_its_accuracy():
+    # A column whose value at n = 60 sits just below tol in float32, with an accuracy that
+    # leaves its side of tol open: it is computed again (float64, accuracy ~1e-16), and N then
+    # follows the engine. Values: the engine's W(n, 0.5) for normal_cc (computed, regression).
+    grid_n = np.arange(1, 101, dtype=np.int64)
+    exact = np.array([atlas.worst_error(int(n), 0.5) for n in grid_n])
+    tol = float(exact[59]) * (1 - 1e-9)  # W(60) just above tol in float64
+    stored = exact.copy()
+    stored[59] = tol * (1 - 2.0**-25)  # "float32": below tol by less than its accuracy
+    accuracy = np.full(grid_n.size, 2.0**-23) * stored
+    answer = minimum_n(grid_n, stored, 0.5, tol, method="normal_cc", metric="interval",
+                       accuracy=accuracy)  # fmt: skip
+    assert answer.evaluated >= 1 and answer.failing is not None
+    brute = int(np.flatnonzero(exact > tol)[-1]) + 2  # first n after the last one above tol
+    assert answer.n == brute >= 61
+
+
+def test_threshold_says_when_n_minus_one_fails_on_its_accuracy():
+    grid_n = np.arange(1, 101, dtype=np.int64)
+    exact = np.array([atlas.worst_error(int(n), 0.5) for n in grid_n])
+    last_above = int(np.flatnonzero(exact > 0.002)[-1])
+    tol = float(exact[last_above])  # the value equals tol: within tol, but not with accuracy
+    answer = minimum_n(grid_n, exact, 0.5, tol, method="normal_cc", metric="interval",
+                       accuracy=np.full(grid_n.size, 1e-15))  # fmt: skip
+    assert answer.n == last_above + 2 and not answer.resolved
+    assert "below the resolution of the exact side" in answer.basis()
