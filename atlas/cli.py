@@ -760,6 +760,10 @@ def _build_parser():
     from atlas.cli_decisions import add_commands as add_decision_commands
 
     add_decision_commands(commands)
+    # Rule constants and exported thresholds (atlas/cli_exports.py), imported here likewise.
+    from atlas.cli_exports import add_commands as add_export_commands
+
+    add_export_commands(commands)
     return parser
 
 

@@ -30,6 +30,7 @@ band) give the constant needed at the p checked, a lower bound shown beside it.
 
 import ast
 import math
+import re
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -251,9 +252,10 @@ class Family:
 
     def written(self, c):
         """The rule as written with the constant ``c`` (``"n*p*q >= 9.03"``)."""
-        return self.name.replace("c", f"{c:.{DIGITS}g}") if self.name != self.text else (
-            ast.unparse(_Constant(float(f"{c:.{DIGITS}g}")).visit(
-                ast.parse(self.text.strip(), mode="eval"))))  # fmt: skip
+        if self.name != self.text:
+            return re.sub(r"\bc\b", f"{c:.{DIGITS}g}", self.name)
+        tree = _Constant(float(f"{c:.{DIGITS}g}")).visit(ast.parse(self.text, mode="eval"))
+        return ast.unparse(tree)
 
 
 def parse_family(text, *, name=None):
