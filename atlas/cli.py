@@ -595,7 +595,7 @@ def _cmd_table(args):
 
 def _cmd_rules(args):
     """Print (or write) the audit of the classic rules of thumb and the user's own."""
-    from atlas.rules import CLASSIC_RULES, parse_rule
+    from atlas.rules import AUDIT_RULES, parse_rule
     from atlas.tables import AUDIT_FORMATS, rule_audit
 
     _check_format(args.format, AUDIT_FORMATS)
@@ -604,7 +604,7 @@ def _cmd_rules(args):
     _check_output(args)
     audit = rule_audit(
         _open_atlas(args),
-        list(CLASSIC_RULES) + extra,
+        list(AUDIT_RULES) + extra,
         methods=args.method,
         metrics=args.metric or METRICS,
         tols=tols,
