@@ -53,8 +53,11 @@ def add_commands(commands):
         sub.add_argument("--method", default="normal_cc",
                          help=f"the approximation, one of {', '.join(METHODS)} "
                               "(default normal_cc)")  # fmt: skip
-        sub.add_argument("--metric", default="interval",
-                         help="interval (default: any P(a <= X <= b)) or cdf (any P(X <= k))")
+        sub.add_argument(
+            "--metric",
+            default="interval",
+            help="interval (default: any P(a <= X <= b)) or cdf (any P(X <= k))",
+        )
         sub.add_argument("--atlas", metavar="FILE", help="atlas file (default: the embedded one)")
         sub.add_argument("--force", action="store_true", help="replace an existing FILE")
 

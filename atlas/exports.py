@@ -152,7 +152,9 @@ def within_tolerance(n, p):
 
 def _c(bands, date):
     edges, n_min, n_max = merged_bands(bands)
-    comment = "\n".join(" * " + line if line else " *" for line in _wrapped(_header(bands, "c", date)))
+    comment = "\n".join(
+        " * " + line if line else " *" for line in _wrapped(_header(bands, "c", date))
+    )
     return f"""/*
 {comment}
  */
@@ -202,8 +204,12 @@ def _json(bands, date):
         "metric": bands.metric,
         "tol": bands.tol,
         "bands": [
-            {"p_lo": edges[j], "p_hi": edges[j + 1], "n_min": n_min[j] or None,
-             "n_max": n_max[j] or None}
+            {
+                "p_lo": edges[j],
+                "p_hi": edges[j + 1],
+                "n_min": n_min[j] or None,
+                "n_max": n_max[j] or None,
+            }
             for j in range(len(n_min))
         ],  # fmt: skip
         "meaning": "within_tolerance(n, p) is true for p_lo <= p <= p_hi and n_min <= n "

@@ -48,7 +48,7 @@ INSIDE = 1  # points checked inside each band, equally spaced in log-odds
 DIGITS = 3  # significant digits of a constant, rounded outward (towards the stricter rule)
 _BISECTIONS = 60
 
-# The families of the issue, as expressions in n, p, q and the constant c, with their names.
+# The families, as expressions in n, p, q and the constant c, with their names.
 # n min(p, q) is written without min: 1 - |q - p| = 2 min(p, q), |x| = (x**2)**0.5. The pairs
 # (npq, n >= c/(pq)) and (np and nq, n min(p, q)) are the same rule written two ways.
 FAMILIES = (
@@ -56,6 +56,13 @@ FAMILIES = (
     ("n*p >= c and n*q >= c", "np >= c and nq >= c"),
     ("n >= c/(p*q)", "n >= c/(pq)"),
     ("n*(1 - ((q - p)**2)**0.5)/2 >= c", "n min(p, q) >= c"),
+    # The audit's skewness and 3-sigma rules with their constant free (squared where that
+    # keeps the comparison's sides the quantities themselves).
+    ("n > 5 and (q - p)**2 < c**2*n*p*q", "n > 5 and |q - p|/sqrt(npq) < c"),
+    (
+        "n*p > c*(n*p*q)**0.5 and n*q > c*(n*p*q)**0.5",
+        "np - c sqrt(npq) > 0 and np + c sqrt(npq) < n",
+    ),
 )
 
 
@@ -177,7 +184,9 @@ def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval"):
         columns[:, grid_p.size :] = atlas.error(grid_n[:, None], inside[None, :], method=method,
                                                 metric=metric)  # fmt: skip
     ps = np.concatenate([grid_p, inside])
-    band_of = np.concatenate([np.arange(grid_p.size), np.repeat(np.arange(grid_p.size - 1), INSIDE)])
+    band_of = np.concatenate(
+        [np.arange(grid_p.size), np.repeat(np.arange(grid_p.size - 1), INSIDE)]
+    )
     order = np.argsort(ps, kind="stable")
     points = []
     n_min = np.full(max(grid_p.size - 1, 1), -1, dtype=np.int64)
@@ -218,7 +227,7 @@ def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval"):
 
 
 class _Constant(ast.NodeTransformer):
-    """Replace the name ``c`` by a number (the rest is checked by :func:`atlas.rules.parse_rule`)."""
+    """Replace the name ``c`` by a number (:func:`atlas.rules.parse_rule` checks the rest)."""
 
     def __init__(self, value):
         self.value = value
@@ -299,9 +308,7 @@ def parse_family(text, *, name=None):
     except (RecursionError, MemoryError):
         raise ValueError(f"`family` is nested too deeply: {text!r}.") from None
     if not any(isinstance(x, ast.Name) and x.id == "c" for x in ast.walk(tree)):
-        raise ValueError(
-            f"`family` must hold the constant c (e.g. 'n*p*q >= c'); got {text!r}."
-        )
+        raise ValueError(f"`family` must hold the constant c (e.g. 'n*p*q >= c'); got {text!r}.")
     family = Family(text.strip(), name or text.strip())
     try:
         family.at(1.0)
@@ -523,7 +530,7 @@ def _solve(family, stricter, n_check, p_check):
 
 
 def _direction(family, grid_n, grid_p):
-    """"larger" when a larger c admits fewer grid cells, else "smaller"."""
+    """ "larger" when a larger c admits fewer grid cells, else "smaller"."""
     n, p = grid_n[:, None], grid_p[None, :]
     for a, b in ((1.0, 10.0), (0.1, 100.0), (0.001, 1000.0)):
         count_a, count_b = int(family.at(a)(n, p).sum()), int(family.at(b)(n, p).sum())
@@ -584,7 +591,9 @@ def rule_constants(atlas, tol, *, method="normal_cc", metric="interval", familie
     names = dict(FAMILIES)
     for item in FAMILIES if families is None else families:
         text = item[0] if isinstance(item, tuple) else item
-        parsed.append(item if isinstance(item, Family) else parse_family(text, name=names.get(text)))
+        parsed.append(
+            item if isinstance(item, Family) else parse_family(text, name=names.get(text))
+        )
     grid_n, grid_p = atlas.n, atlas.p
     errors = np.asarray(atlas.error(grid_n[:, None], grid_p[None, :], method=bands.method,
                                     metric=bands.metric), dtype=float)  # fmt: skip

@@ -106,7 +106,8 @@ def test_example_never_calls_an_unsafe_pair_safe(tmp_path, capsys):
     assert np.array_equal(_run_c(EXAMPLE.with_suffix(".c"), n, p, tmp_path), called)
     err = worst_error(n, p, method="normal_cc", return_accuracy=True)
     unsafe = err.error + err.accuracy > module.TOL  # unsafe, or too close to tol to tell
-    assert not (called & unsafe).any(), list(zip(n[called & unsafe], p[called & unsafe]))
+    bad = called & unsafe
+    assert not bad.any(), list(zip(n[bad], p[bad], strict=True))
     safe = err.error <= module.TOL
     given_away = float((safe & ~called).sum() / safe.sum())
     uniform = float((safe & ~called & ~near).sum() / (safe & ~near).sum())
@@ -136,8 +137,9 @@ def test_every_format_says_the_same(bands, tmp_path):
     p[:4] = [0.2, 0.5, 0.8, float("nan")]  # band edges and the axis ends are inside; NaN not
     expected = bands.within(n, p)
     python = _import(write_export(bands, tmp_path / "lookup.py"))
-    assert [python.within_tolerance(a, b) for a, b in zip(n.tolist(), p.tolist(),
-                                                          strict=True)] == expected.tolist()
+    assert [
+        python.within_tolerance(a, b) for a, b in zip(n.tolist(), p.tolist(), strict=True)
+    ] == expected.tolist()
     assert np.array_equal(_run_c(write_export(bands, tmp_path / "lookup.c"), n, p, tmp_path),
                           expected)  # fmt: skip
     record = json.loads((write_export(bands, tmp_path / "lookup.json")).read_text())
@@ -146,8 +148,12 @@ def test_every_format_says_the_same(bands, tmp_path):
                 .splitlines(keepends=True) if not x.startswith("#")))))  # fmt: skip
     edges, n_min, n_max = merged_bands(bands)
     assert [b["n_min"] or 0 for b in record["bands"]] == n_min
-    assert [int(r[2] or 0) for r in rows[1:]] == n_min and rows[0] == ["p_lo", "p_hi", "n_min",
-                                                                        "n_max"]
+    assert [int(r[2] or 0) for r in rows[1:]] == n_min and rows[0] == [
+        "p_lo",
+        "p_hi",
+        "n_min",
+        "n_max",
+    ]
     assert [float(r[0]) for r in rows[1:]] == edges[:-1]
     assert record["atlas"]["checksum"] == bands.atlas_checksum and "caution" in record
     assert sorted(x.name for x in tmp_path.iterdir() if x.name.startswith(".")) == []
