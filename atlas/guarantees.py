@@ -327,7 +327,8 @@ class RuleConstant:
     family : Family
     constant : float or None
         The smallest c (the largest, when ``stricter`` is "smaller") that guarantees the
-        tolerance, rounded outward to ``DIGITS`` digits; None when no c does.
+        tolerance, rounded outward to ``DIGITS`` digits; None when no c does (or only one whose
+        rule admits no cell of the grid).
     stricter : {"larger", "smaller"}
         Which way of c refuses more.
     at_points : float or None
@@ -608,8 +609,12 @@ def rule_constants(atlas, tol, *, method="normal_cc", metric="interval", familie
     rows = []
     for family in parsed:
         stricter = _direction(family, grid_n, grid_p)
-        c = _solve(family, stricter, *band_checks)
-        at_points = _solve(family, stricter, *point_checks)
+        # A constant whose rule admits no cell of the grid is no rule: none guarantees tol.
+        c, at_points = (
+            x if x is not None and family.at(x)(grid_n[:, None], grid_p[None, :]).any() else None
+            for x in (_solve(family, stricter, *band_checks),
+                      _solve(family, stricter, *point_checks))
+        )  # fmt: skip
         worst = share = None
         if c is not None and math.isfinite(c):
             rule = family.at(c)

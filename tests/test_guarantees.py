@@ -85,7 +85,12 @@ def test_family_pairs_written_two_ways_agree(constants):
 
 
 def test_constants_guarantee_and_give_away(constants, small):
-    for row in constants.rows:
+    skewness = constants.rows[4]
+    # At p = 1/2 the skewness is 0 for every n, so the family admits n = 6 there whatever c;
+    # the band [0.4, 0.5] needs n >= 23: no c guarantees tol (c -> 0 would admit nothing).
+    assert skewness.family.name.startswith("n > 5 and |q - p|") and skewness.constant is None
+    assert skewness.worst is None and skewness.guaranteed is None
+    for row in constants.rows[:4] + constants.rows[5:]:
         assert row.guaranteed and row.worst.worst <= TOL
         assert row.at_points <= row.constant  # the points' own thresholds need no more
         assert 0.0 < row.refused < 1.0
@@ -94,17 +99,21 @@ def test_constants_guarantee_and_give_away(constants, small):
         checks = [(_limit(constants.bands, t.p) - 1, t.p) for t in constants.bands.points]
         assert looser(*np.array(checks).T).any()
     assert 0.0 <= constants.bands_refused < constants.rows[0].refused
+    assert "| n > 5 and |q - p|/sqrt(npq) < c | none |" in constants.to_markdown()
 
 
-def test_a_family_that_admits_more_as_c_grows(small, bands):
-    # The skewness family |q - p| / sqrt(npq) < c: the largest c that guarantees tol.
-    out = rule_constants(small, TOL, bands=bands, families=["(q - p)**2 < c**2*n*p*q"])
+def test_a_family_that_admits_more_as_c_grows(small, bands, constants):
+    # n p q >= 1/c admits more as c grows: the largest c that guarantees tol, rounded down;
+    # the same rule as n p q >= c' with c' = 1/c, so 1/c is c' within their rounding.
+    out = rule_constants(small, TOL, bands=bands, families=["n*p*q >= 1/c"])
     row = out.rows[0]
     assert row.stricter == "smaller" and row.guaranteed
+    assert 1 / row.constant == pytest.approx(constants.rows[0].constant, rel=3e-3)
     rule = row.family.at(row.constant)
     for t in bands.points:
         assert not rule(np.arange(1, _limit(bands, t.p)), t.p).any()
-    assert row.family.at(row.constant * 1.01)(np.arange(1, 301)[:, None], small.p).sum() > 0
+    looser = row.family.at(row.constant * 1.003)
+    assert any(looser(np.arange(1, _limit(bands, t.p)), t.p).any() for t in bands.points)
 
 
 @pytest.mark.parametrize(
