@@ -66,14 +66,23 @@ def merged_bands(bands):
     return edges, [int(bands.n_min[j]) for j in keep], [int(bands.n_max[j]) for j in keep]
 
 
+def _embedded(path):
+    """Whether ``path`` is the embedded default atlas."""
+    from pathlib import Path
+
+    from atlas.store import default_path
+
+    return Path(path).resolve() == Path(default_path()).resolve()
+
+
 def _header(bands, fmt, date):
     """The provenance and caution, as lines of text (no comment marks)."""
     from atlas.cube import CAUTION
 
     command = (f"approx-atlas export --tol {bands.tol!r} --method {bands.method} "
                f"--metric {bands.metric} --format {fmt} -o FILE")  # fmt: skip
-    if bands.atlas_path:
-        command += " --atlas ATLAS"
+    if bands.atlas_path and not _embedded(bands.atlas_path):
+        command += f" --atlas {bands.atlas_path}"
     return [
         f"within_tolerance(n, p): true only where the atlas guarantees that the {bands.method} "
         f"approximation to Bin(n, p) has {bands.metric} error <= {bands.tol!r}.",
