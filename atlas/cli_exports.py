@@ -15,7 +15,9 @@ from atlas.cli import _check_output, _emit, _open_atlas
 from atlas.notation import parse_probability
 
 _NAMES = {"tol": "--tol", "method": "--method", "metric": "--metric", "family": "--family",
-          "format": "--format", "fmt": "--format", "path": "-o"}  # fmt: skip
+          "format": "--format", "fmt": "--format", "path": "-o", "alpha": "--alpha",
+          "limit": "--tol", "rel_tol": "--tol", "max_size": "--tol", "tail": "--tail",
+          "alternative": "--alternative"}  # fmt: skip
 
 
 def _cmd_rule_constants(args):
@@ -24,6 +26,19 @@ def _cmd_rule_constants(args):
 
     tol = parse_probability(args.tol, "--tol")
     families = [parse_family(text) for text in args.family] if args.family else None
+    if args.metric in ("tail", "size"):  # the metrics of atlas.decisions: no atlas file
+        from atlas.decision_constants import decision_rule_constants, render_decision_constants
+
+        if args.alpha is None:
+            raise ValueError(f"`--alpha` must be given with --metric {args.metric}.")
+        alpha = parse_probability(args.alpha, "--alpha")
+        _check_output(args)
+        rows = decision_rule_constants(args.metric, alpha, tol, method=args.method,
+                                       tail=args.tail, alternative=args.alternative,
+                                       families=families)  # fmt: skip
+        text = render_decision_constants(rows, "json" if args.json else "md", metric=args.metric,
+                                         alpha=alpha, limit=tol, method=args.method)  # fmt: skip
+        return _emit(text, args.output)
     _check_output(args)
     atlas = _open_atlas(args)
     bands = threshold_bands(atlas, tol, method=args.method, metric=args.metric)
@@ -70,6 +85,10 @@ def add_commands(commands):
                        help="a family in n, p, q and the constant c, e.g. 'n*p*q >= c' "
                             "(repeatable; default the four of the README)")  # fmt: skip
     rules.add_argument("--json", action="store_true", help="print JSON instead of Markdown")
+    rules.add_argument("--alpha", help="with --metric tail or size: the level (e.g. 0.05)")
+    rules.add_argument("--tail", default="both", help="with --metric tail: lower, upper or both")
+    rules.add_argument("--alternative", default="two-sided",
+                       help="with --metric size: two-sided, less or greater")  # fmt: skip
     rules.add_argument("-o", "--output", metavar="FILE", help="write FILE instead of printing")
     rules.set_defaults(handler=_cmd_rule_constants, names=_NAMES)
 

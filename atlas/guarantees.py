@@ -42,7 +42,8 @@ from atlas.rules import parse_rule
 from atlas.thresholds import minimum_n
 
 __all__ = ["DIGITS", "FAMILIES", "INSIDE", "Family", "RuleConstant", "RuleConstants",
-           "ThresholdBands", "parse_family", "rule_constants", "threshold_bands"]  # fmt: skip
+           "ThresholdBands", "constant_direction", "parse_families", "parse_family",
+           "rule_constants", "solve_constant", "threshold_bands"]  # fmt: skip
 
 INSIDE = 1  # points checked inside each band, equally spaced in log-odds
 DIGITS = 3  # significant digits of a constant, rounded outward (towards the stricter rule)
@@ -489,8 +490,10 @@ def _checks(bands, grid_n, per_point):
     return np.concatenate(ns), np.concatenate(ps)
 
 
-def _solve(family, stricter, n_check, p_check):
-    """The constant by bisection: smallest valid c (``stricter`` larger) or largest."""
+def solve_constant(family, stricter, n_check, p_check):
+    """The constant by bisection: the smallest c (``stricter`` "larger", else the largest) whose
+    rule admits none of the pairs ``(n_check, p_check)``, rounded outward to ``DIGITS`` digits;
+    None when no c does (``math.inf`` for a family that admits none at any c tried)."""
 
     def valid(c):
         return not family.at(c)(n_check, p_check).any()
@@ -530,7 +533,7 @@ def _solve(family, stricter, n_check, p_check):
     return c
 
 
-def _direction(family, grid_n, grid_p):
+def constant_direction(family, grid_n, grid_p):
     """ "larger" when a larger c admits fewer grid cells, else "smaller"."""
     n, p = grid_n[:, None], grid_p[None, :]
     for a, b in ((1.0, 10.0), (0.1, 100.0), (0.001, 1000.0)):
@@ -541,6 +544,20 @@ def _direction(family, grid_n, grid_p):
         f"`family` must admit more or fewer cells of the grid as c changes; {family.text!r} "
         "admits as many at c = 0.001, 1 and 1000."
     )
+
+
+def parse_families(families=None):
+    """The families as :class:`Family`: default :data:`FAMILIES`, a str parsed by
+    :func:`parse_family` (named as in :data:`FAMILIES` when it is one of them)."""
+    names = dict(FAMILIES)
+    out = []
+    for item in FAMILIES if families is None else families:
+        if isinstance(item, Family):
+            out.append(item)
+            continue
+        text = item[0] if isinstance(item, tuple) else item
+        out.append(parse_family(text, name=names.get(text)))
+    return out
 
 
 def rule_constants(atlas, tol, *, method="normal_cc", metric="interval", families=None,
@@ -588,13 +605,7 @@ def rule_constants(atlas, tol, *, method="normal_cc", metric="interval", familie
             f"`bands` must answer the same question; got tol={bands.tol!r}, "
             f"method={bands.method!r}, metric={bands.metric!r}."
         )
-    parsed = []
-    names = dict(FAMILIES)
-    for item in FAMILIES if families is None else families:
-        text = item[0] if isinstance(item, tuple) else item
-        parsed.append(
-            item if isinstance(item, Family) else parse_family(text, name=names.get(text))
-        )
+    parsed = parse_families(families)
     grid_n, grid_p = atlas.n, atlas.p
     errors = np.asarray(atlas.error(grid_n[:, None], grid_p[None, :], method=bands.method,
                                     metric=bands.metric), dtype=float)  # fmt: skip
@@ -608,12 +619,12 @@ def rule_constants(atlas, tol, *, method="normal_cc", metric="interval", familie
     point_checks = _checks(bands, grid_n, per_point=True)
     rows = []
     for family in parsed:
-        stricter = _direction(family, grid_n, grid_p)
+        stricter = constant_direction(family, grid_n, grid_p)
         # A constant whose rule admits no cell of the grid is no rule: none guarantees tol.
         c, at_points = (
             x if x is not None and family.at(x)(grid_n[:, None], grid_p[None, :]).any() else None
-            for x in (_solve(family, stricter, *band_checks),
-                      _solve(family, stricter, *point_checks))
+            for x in (solve_constant(family, stricter, *band_checks),
+                      solve_constant(family, stricter, *point_checks))
         )  # fmt: skip
         worst = share = None
         if c is not None and math.isfinite(c):

@@ -158,3 +158,35 @@ def test_cli_rule_constants(small, tmp_path, capsys):
     )
     assert main(["rule-constants", "--tol", "-1", "--atlas", str(path)]) == 2
     assert "`--tol`" in capsys.readouterr().err
+
+
+# ---- the metrics of tail p-values and tests (atlas.decision_constants) ----
+
+
+def test_tail_constant_is_the_closed_form_on_the_audit_grid():
+    from atlas.decision_constants import decision_rule_constants
+    from atlas.decisions import tail_min_n
+
+    ps = (0.2, 0.5)
+    rows = decision_rule_constants("tail", 0.05, 0.1, families=["n*p*q >= c"], n="1:60",
+                                   p=",".join(map(str, ps)), n_max=60)  # fmt: skip
+    # n p q >= c admits no n below N(p) iff c > (N - 1) p q: the largest, rounded up.
+    worst = max((tail_min_n(x, 0.05, 0.1, n_max=60).n - 1) * x * (1 - x) for x in ps)
+    assert rows[0].constant == bound_up(worst * (1 + 1e-12), 3)
+    assert rows[0].worst <= 0.1 and 0.0 < rows[0].refused < 1.0
+    assert "every integer n to 2,048" in rows[0].checked
+
+
+def test_decision_constant_errors_and_cli(capsys):
+    from atlas.decision_constants import decision_rule_constants
+
+    with pytest.raises(ValueError, match="`metric` must be one of 'tail', 'size'; got 'cdf'"):
+        decision_rule_constants("cdf", 0.05, 0.1)
+    with pytest.raises(ValueError, match="`limit` must be given for the tail metric"):
+        decision_rule_constants("tail", 0.05)
+    assert main(["rule-constants", "--tol", "0.1", "--metric", "size"]) == 2
+    assert capsys.readouterr().err == (
+        "approx-atlas: error: `--alpha` must be given with --metric size.\n"
+    )
+    assert main(["rule-constants", "--tol", "0.1", "--metric", "tail", "--alpha", "2"]) == 2
+    assert capsys.readouterr().err.startswith("approx-atlas: error: `--alpha` must be")
