@@ -6,8 +6,11 @@ band and at ``INSIDE`` points equally spaced in log-odds inside it, the exact mi
 every integer is found (:func:`atlas.thresholds.minimum_n`: the smallest N such that the error
 is within tol at *every integer* n >= N up to the atlas's end, gaps between grid n certified by
 the one-step bound or evaluated by the engine, and beyond the end where the large-n bound takes
-over). A band's threshold is the largest N of its points; the band is "never" when a point has
-none, or when its answer is not exact for every integer (:attr:`atlas.thresholds.Threshold.exact`).
+over). A band's threshold is the largest N of its points. A point whose answer is not exact for
+every integer (:attr:`atlas.thresholds.Threshold.exact`: the search ran out of engine
+evaluations) takes the exact answer at tol/2, tol/4 or tol/8 instead, which is conservative
+(every n from it on is within the smaller tolerance); the band is "never" when a point has no
+answer, or none of these is exact.
 The guarantee reaches every n from the threshold to the atlas's end, and beyond it when every
 point of the band is covered for all n (the Berry-Esseen bound of :mod:`atlas.bounds`, largest
 at one of the band's ends). The p between the points checked are not computed: the claim
@@ -113,6 +116,7 @@ class ThresholdBands:
     atlas_checksum: str = ""
     atlas_path: str = ""
     inexact: int = 0
+    stricter: int = 0
 
     def within(self, n, p):
         """Whether the bands guarantee the tolerance at broadcast integer n and float p.
@@ -138,6 +142,12 @@ class ThresholdBands:
             "holds); a band's threshold is the largest of its points; the p between the points "
             "checked are not computed"
         )
+        if self.stricter:
+            text += (
+                f"; at {self.stricter} points the search for tol ran out of engine evaluations "
+                "and the exact answer at tol/2, tol/4 or tol/8 (every n from it on is within "
+                "the smaller tolerance, so within tol) is used instead"
+            )
         if self.inexact:
             text += f"; {self.inexact} points not exact for every integer: their bands are never"
         return text
@@ -194,10 +204,18 @@ def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval"):
     n_max = np.zeros_like(n_min)
     bad = np.zeros(n_min.size, dtype=bool)
     no_end = np.ones(n_min.size, dtype=bool)
-    inexact = 0
+    inexact = stricter = 0
     for k in order.tolist():
         answer = minimum_n(grid_n, columns[:, k], float(ps[k]), tol, method=method,
                            metric=metric)  # fmt: skip
+        if not answer.exact:  # the exact answer at a smaller tolerance serves (module notes)
+            for smaller in (tol / 2, tol / 4, tol / 8):
+                other = minimum_n(grid_n, columns[:, k], float(ps[k]), smaller, method=method,
+                                  metric=metric)  # fmt: skip
+                if other.exact and other.n is not None:
+                    answer = other
+                    stricter += 1
+                    break
         points.append(answer)
         inexact += not answer.exact
         j = int(band_of[k])
@@ -221,7 +239,7 @@ def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval"):
                           atlas_source=str(attrs.get("source", "")),
                           atlas_checksum=str(attrs.get("checksum", "")),
                           atlas_path="" if atlas.path is None else str(atlas.path),
-                          inexact=inexact)  # fmt: skip
+                          inexact=inexact, stricter=stricter)  # fmt: skip
 
 
 # ---- rule families with one free constant ---------------------------------------------------
