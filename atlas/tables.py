@@ -412,6 +412,11 @@ class RuleAudit:
             ]
         else:
             first = []
+        sources = [
+            f"{rule_name(rule)}: {source}."
+            for rule, source in dict.fromkeys((r.rule, rule_source(r.rule)) for r in self.rows)
+            if source
+        ]
         return first + [
             "worst error: the largest error over the grid cells (n, p) the rule admits; "
             "at n, at p: where it occurs (≈: p rounded to 4 digits; the JSON holds it whole).",
@@ -419,10 +424,7 @@ class RuleAudit:
             f"(of {self.grid_cells:,} grid cells in all; shares count cells, so they follow the "
             "grid's density).",
             "—: the rule admits no cell of the grid.",
-        ] + [
-            f"{rule_name(rule)}: {source}."
-            for rule, source in dict.fromkeys((r.rule, rule_source(r.rule)) for r in self.rows)
-            if source
+            *sources,
         ]
 
     def to_markdown(self):

@@ -66,6 +66,7 @@ def test_table_formats(chart_atlas):
     # "> 100000" (not reached on a grid ending at 10^5), basis says on what it rests.
     rows = list(csv.reader(io.StringIO(table.to_csv())))
     assert rows[0] == ["p", "tol", "min_n", "basis"]
+
     def code(v, where):
         if v is None:
             return "not_reached"
