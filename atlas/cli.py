@@ -12,68 +12,31 @@ is created and removed in its directory) and refuses to replace an existing one 
 """
 
 import argparse
-import re
 import sys
 
-from atlas import METHODS, METRICS, __version__, is_resolved
+from atlas import METRICS, __version__, is_resolved
+from atlas.cli_common import METHOD_LIST as _METHOD_LIST
+from atlas.cli_common import P_FORMS as _P_FORMS
+from atlas.cli_common import PROG
+from atlas.cli_common import Options as _Options
+from atlas.cli_common import check_format as _check_format
+from atlas.cli_common import check_output as _check_output
+from atlas.cli_common import describe_error as _describe_error
+from atlas.cli_common import emit as _emit
+from atlas.cli_common import fail as _fail
+from atlas.cli_common import integer as _integer
+from atlas.cli_common import method_help as _method_help
+from atlas.cli_common import number as _number
+from atlas.cli_common import number_list as _number_list
+from atlas.cli_common import p_range as _p_range
+from atlas.cli_common import print_json as _print_json
+from atlas.cli_common import probabilities as _probabilities
 from atlas.cli_coverage import add_coverage_commands
+from atlas.cli_decisions import add_commands as add_decision_commands
 from atlas.grid import DEFAULT_N_SPEC, DEFAULT_P_SPEC, describe_grid
 from atlas.notation import bound_up, format_beside, format_p, parse_probability, rounded
 
-PROG = "approx-atlas"
-_METHOD_LIST = ", ".join(METHODS)
 _METRIC_HELP = "interval (default: any P(a <= X <= b)) or cdf (any P(X <= k))"
-_P_FORMS = "a number (0.05), a fraction (1/20) or a percentage (5%%)"
-
-
-def _fail(message, *, status=2):
-    """Print ``approx-atlas: error: <message>`` as one line on stderr and return `status`.
-
-    >>> import contextlib, io
-    >>> with contextlib.redirect_stderr(io.StringIO()) as err:
-    ...     code = _fail("`p` must be in the open interval (0, 1); got 1.5.")
-    >>> code, err.getvalue()
-    (2, 'approx-atlas: error: `p` must be in the open interval (0, 1); got 1.5.\\n')
-    """
-    print(f"{PROG}: error: {' '.join(str(message).split())}", file=sys.stderr)
-    return status
-
-
-def _describe_error(error, names=None):
-    """The message of an exception raised by a command, without Python's decorations, with the
-    API's parameter names (`` `p_lo` ``) replaced by the command's options (``names``)."""
-    if isinstance(error, OSError) and error.filename is not None:
-        message = f"{error.strerror or error}: {error.filename!r}"
-    else:
-        message = str(error) or type(error).__name__
-    if names:
-        message = re.sub(r"`(\w+)`", lambda m: f"`{names.get(m.group(1), m.group(1))}`", message)
-        message = re.sub(r"\[(`[^`]+`), \1\]", r"\1", message)  # [`--p-range`, `--p-range`]
-    return message
-
-
-class _Options:
-    """Retell the API's errors raised in the block with the given option names.
-
-    >>> try:
-    ...     with _Options(p_lo="--p-range"):
-    ...         raise ValueError("`p_lo` must be <= `p_hi`.")
-    ... except ValueError as err:
-    ...     print(err)
-    `--p-range` must be <= `p_hi`.
-    """
-
-    def __init__(self, **names):
-        self.names = names
-
-    def __enter__(self):
-        return self
-
-    def __exit__(self, kind, error, _tb):
-        plain_os_error = isinstance(error, OSError) and error.filename is None
-        if isinstance(error, (ValueError, TypeError)) or plain_os_error:
-            raise type(error)(_describe_error(error, self.names)) from None
-        return False
 
 
 def _cmd_grid(args):
@@ -87,18 +50,6 @@ def _cmd_grid(args):
 
 # An invented inspection lot: 80 fasteners, a 2.5 % defect rate, a tolerance of 0.01.
 _DEMO = {"n": 80, "p": 0.025, "tol": 0.01}
-
-
-def _number(text):
-    """A command-line number as int or float. Other text is passed on unchanged, so that the API
-    refuses it with a message naming the argument (e.g. "`n` must be an integer >= 1; got 'x'.").
-    """
-    for convert in (int, float):
-        try:
-            return convert(text)
-        except ValueError:
-            pass
-    return text
 
 
 class _EmbeddedAtlas:
@@ -132,17 +83,6 @@ def _open_atlas(args):
 
     with _atlas_errors(args.atlas is not None):
         return open_atlas(args.atlas)
-
-
-def _probabilities(text, option):
-    """``"0.01,1/3,5%"`` as a list of floats (:func:`atlas.notation.parse_probability`)."""
-    return [parse_probability(item, option) for item in str(text).split(",")]
-
-
-def _print_json(record):
-    import json
-
-    print(json.dumps(record, allow_nan=False))
 
 
 def _digits(atlas, source):
@@ -204,17 +144,6 @@ def _cmd_query(args):
             lines.append("  * where the interval error is attained")
         print("\n".join(lines))
     return 3 if args.strict and not verdict.safe else 0
-
-
-def _p_range(text):
-    """``LO:HI`` as two probabilities, LO <= HI (their range is left to the API to check)."""
-    lo, sep, hi = text.partition(":")
-    if not sep or not lo.strip() or not hi.strip() or ":" in hi:
-        raise ValueError(f"`--p-range` must be LO:HI, such as 0.05:0.95; got {text!r}.")
-    lo, hi = parse_probability(lo, "--p-range"), parse_probability(hi, "--p-range")
-    if lo > hi:
-        raise ValueError(f"`--p-range` LO:HI must have LO <= HI; got {text!r}.")
-    return lo, hi
 
 
 def _cmd_min_n(args):
@@ -361,10 +290,6 @@ def _decision_demo_lines(n, p):
     return demo_lines(n, p)
 
 
-def _method_help(default="normal_cc"):
-    return f"the approximation, one of {_METHOD_LIST} (default {default})"
-
-
 def _add_query_commands(commands):
     """Register query, min-n, compare and demo."""
 
@@ -421,14 +346,6 @@ def _add_query_commands(commands):
 
 
 # --- build, inspect: making and checking atlas files (atlas.build, atlas.cube) ------------------
-
-
-def _integer(text):
-    """A command-line integer, or the text unchanged for the API to refuse by name."""
-    try:
-        return int(text)
-    except ValueError:
-        return text
 
 
 def _cmd_build(args):
@@ -530,36 +447,6 @@ def _add_build_commands(commands):
 # --- chart, table, rules, sheet, wiki: outputs for people (charts, tables, sheets) -------------
 
 
-def _number_list(text, option):
-    """``"0.01,0.005"`` as a list of floats; the API checks their range."""
-    items = [item.strip() for item in str(text).split(",")]
-    try:
-        return [float(item) for item in items]
-    except ValueError:
-        raise ValueError(
-            f"`{option}` must be comma-separated numbers such as 0.01,0.005; got {text!r}."
-        ) from None
-
-
-def _check_output(args):
-    """Refuse ``-o`` (if given) before any work: it exists without --force, or cannot be written."""
-    if args.output is not None:
-        from atlas.files import check_target
-
-        check_target(args.output, overwrite=args.force, name="-o")
-
-
-def _emit(text, output):
-    """Print ``text``, or write it atomically to ``output`` and print the path."""
-    if output is None:
-        sys.stdout.write(text)
-    else:
-        from atlas.files import save_text
-
-        print(save_text(output, text))
-    return 0
-
-
 def _cmd_chart(args):
     """Draw a map (or a comparison) and write it as PNG, SVG or PDF by the file's extension."""
     from atlas import charts, figures
@@ -572,13 +459,6 @@ def _cmd_chart(args):
                        metric=args.metric, p_scale=args.p_scale)  # fmt: skip
     print(figures.save_figure(fig, args.output))
     return 0
-
-
-def _check_format(text, formats):
-    """Refuse a ``--format`` that is not one of ``formats``, before the atlas is opened."""
-    if text not in formats:
-        valid = ", ".join(repr(f) for f in formats)
-        raise ValueError(f"`--format` must be one of {valid}; got {text!r}.")
 
 
 def _cmd_table(args):
@@ -755,12 +635,9 @@ def _build_parser():
     _add_build_commands(commands)
     _add_output_commands(commands)
     add_coverage_commands(commands)  # confidence intervals for p (atlas/cli_coverage.py)
-    # Tail p-values and test sizes: their commands live in atlas/cli_decisions.py, which uses
-    # this module's helpers, so it is imported here rather than at the top.
-    from atlas.cli_decisions import add_commands as add_decision_commands
-
-    add_decision_commands(commands)
-    # Rule constants and exported thresholds (atlas/cli_exports.py), imported here likewise.
+    add_decision_commands(commands)  # tail p-values and test sizes (atlas/cli_decisions.py)
+    # Rule constants and exported thresholds (atlas/cli_exports.py), which open an atlas with
+    # this module's _open_atlas, so it is imported here rather than at the top.
     from atlas.cli_exports import add_commands as add_export_commands
 
     add_export_commands(commands)

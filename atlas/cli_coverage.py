@@ -5,10 +5,21 @@ Thin over :mod:`atlas.coverage_questions`: parse, call the API, print (text, or 
 with ``--json``). :func:`add_coverage_commands` registers the three commands on the subparsers of
 :mod:`atlas.cli`, whose ``main`` runs them: a user's mistake is one line on stderr naming the
 option, exit status 2; ``--strict`` exits with status 3 when the answer is no. Kept apart from
-``cli.py`` so that the two change independently; the helpers of ``cli.py`` are imported when a
-command runs (``cli`` imports this module first).
+``cli.py`` so that the two change independently; the helpers they share are in
+:mod:`atlas.cli_common`.
 """
 
+from atlas.cli_common import (
+    Options,
+    check_format,
+    check_output,
+    emit,
+    number,
+    number_list,
+    p_range,
+    print_json,
+    strict_status,
+)
 from atlas.notation import parse_probability
 
 _INTERVAL_LIST = "wald, wald_cc, wilson, wilson_cc, agresti_coull, jeffreys, clopper_pearson"
@@ -32,10 +43,9 @@ _NAMES = {
 
 def _band(args):
     """The band [p_lo, p_hi] from ``--p`` or ``--p-range``."""
-    from atlas.cli import _p_range
 
     if args.p_range is not None:
-        return _p_range(args.p_range)
+        return p_range(args.p_range)
     p = parse_probability(args.p, "--p")
     return p, p
 
@@ -52,14 +62,13 @@ def _where(p_lo, p_hi):
 
 def _cmd_coverage(args):
     """Print the exact minimum coverage over the band and whether it keeps the floor."""
-    from atlas.cli import _number, _print_json
     from atlas.coverage_questions import check_coverage
 
     p_lo, p_hi = _band(args)
     level, floor = _level_floor(args)
-    v = check_coverage(_number(args.n), p_lo, p_hi, floor, interval=args.interval, level=level)
+    v = check_coverage(number(args.n), p_lo, p_hi, floor, interval=args.interval, level=level)
     if args.json:
-        _print_json(v.to_dict())
+        print_json(v.to_dict())
     else:
         where = {
             "attained": "attained there",
@@ -80,21 +89,20 @@ def _cmd_coverage(args):
             f"  verdict           {verdict}",
         ]
         print("\n".join(lines))
-    return 3 if args.strict and not v.holds else 0
+    return strict_status(args.strict, v.holds)
 
 
 def _cmd_coverage_n(args):
     """Print from which n on the floor holds at every n checked, and the runs where it holds."""
-    from atlas.cli import _number, _print_json
     from atlas.coverage_questions import coverage_min_n
 
     p_lo, p_hi = _band(args)
     level, floor = _level_floor(args)
     r = coverage_min_n(
-        p_lo, p_hi, floor, interval=args.interval, level=level, n_max=_number(args.n_max)
+        p_lo, p_hi, floor, interval=args.interval, level=level, n_max=number(args.n_max)
     )
     if args.json:
-        _print_json(r.to_dict())
+        print_json(r.to_dict())
     else:
         runs = ", ".join(f"{a}" if a == b else f"{a}..{b}" for a, b in r.runs) or "none"
         if r.min_n is not None:
@@ -111,7 +119,7 @@ def _cmd_coverage_n(args):
             "coverage at each), none beyond: coverage is not monotone in n",
         ]
         print("\n".join(lines))
-    return 3 if args.strict and r.min_n is None else 0
+    return strict_status(args.strict, r.min_n is not None)
 
 
 def _interval_list(text):
@@ -120,16 +128,15 @@ def _interval_list(text):
 
 def _cmd_shortest(args):
     """Print every interval ranked by mean expected width, and the shortest that keeps the floor."""
-    from atlas.cli import _number, _print_json
     from atlas.coverage_questions import shortest_interval
 
     p_lo, p_hi = _band(args)
     level, floor = _level_floor(args)
     choice = shortest_interval(
-        _number(args.n), p_lo, p_hi, floor, level=level, intervals=_interval_list(args.interval)
+        number(args.n), p_lo, p_hi, floor, level=level, intervals=_interval_list(args.interval)
     )
     if args.json:
-        _print_json(choice.to_dict())
+        print_json(choice.to_dict())
     else:
         lines = [
             f"level {choice.level:g} intervals at n = {choice.n}, {_where(p_lo, p_hi)}, "
@@ -148,42 +155,40 @@ def _cmd_shortest(args):
             "min coverage: exact infimum over the band)"
         )
         print("\n".join(lines))
-    return 3 if args.strict and choice.best is None else 0
+    return strict_status(args.strict, choice.best is not None)
 
 
 def _cmd_coverage_table(args):
     """Print (or write) the minimum n for each interval and coverage floor over a band."""
-    from atlas.cli import _check_format, _check_output, _emit, _number, _number_list
     from atlas.coverage_questions import TABLE_FORMATS, coverage_table
 
-    _check_format(args.format, TABLE_FORMATS)
+    check_format(args.format, TABLE_FORMATS)
     p_lo, p_hi = _band(args)
     level = parse_probability(args.level, "--level")
-    floors = _number_list(args.floor, "--floor")
-    _check_output(args)
+    floors = number_list(args.floor, "--floor")
+    check_output(args)
     table = coverage_table(
         p_lo,
         p_hi,
         floors,
         level=level,
         intervals=_interval_list(args.interval),
-        n_max=_number(args.n_max),
+        n_max=number(args.n_max),
     )
-    return _emit(table.render(args.format), args.output)
+    return emit(table.render(args.format), args.output)
 
 
 def _cmd_coverage_map(args):
     """Draw a coverage map from the embedded coverage cube (or --cube FILE)."""
     from atlas import figures
-    from atlas.cli import _check_output, _Options
     from atlas.coverage_charts import coverage_map
     from atlas.coverage_cube import open_coverage_cube
 
-    with _Options(path="-o"):
+    with Options(path="-o"):
         figures.figure_format(args.output)
-    _check_output(args)
+    check_output(args)
     level = parse_probability(args.level, "--level")
-    with _Options(path="--cube"):
+    with Options(path="--cube"):
         cube = open_coverage_cube(args.cube)
     fig = coverage_map(cube, interval=args.interval, level=level, variable=args.variable)
     print(figures.save_figure(fig, args.output))

@@ -1,6 +1,6 @@
 """The command-line questions about tail p-values and test sizes (``atlas.decisions``).
 
-Commands, registered by :func:`add_commands` from :func:`atlas.cli._build_parser`:
+Commands, registered by :func:`add_commands` by :mod:`atlas.cli`:
 
 - ``tail``: the tail relative error at (n, p) and level alpha; with ``--rel-tol``, the verdict
   "is every tail of at least alpha within it?".
@@ -14,11 +14,22 @@ one line ``approx-atlas: error: ...`` for a user's mistake. Nothing here reads a
 every number is computed exactly on demand.
 """
 
-from atlas import METHODS
-from atlas.cli import _check_format, _check_output, _emit, _number, _Options, _print_json
+from atlas.cli_common import P_FORMS as _P_FORMS
+from atlas.cli_common import (
+    Options,
+    check_figure_output,
+    check_format,
+    check_output,
+    emit,
+    method_help,
+    number,
+    print_json,
+    probabilities,
+    probability,
+    strict_status,
+)
 from atlas.notation import format_p, parse_probability
 
-_P_FORMS = "a number (0.05), a fraction (1/20) or a percentage (5%%)"
 _TAILS = "lower (P(X <= k)), upper (P(X >= k)) or both (default)"
 _ALTERNATIVES = "two-sided (default), less (lower one-sided) or greater (upper one-sided)"
 _TAIL_TEXT = {
@@ -43,30 +54,26 @@ def _percent(x):
     return f"{100.0 * x:.4g}%"
 
 
-def _probability(text, option):
-    return None if text is None else parse_probability(text, option)
-
-
 def _cmd_tail(args):
     """The tail relative error at (n, p), and the verdict when --rel-tol is given."""
     from atlas import decisions
 
     p = parse_probability(args.p, "--p")
     alpha = parse_probability(args.alpha, "--alpha")
-    rel_tol = _probability(args.rel_tol, "--rel-tol")
+    rel_tol = probability(args.rel_tol, "--rel-tol")
     if rel_tol is None:
         from atlas.tails import tail_error
 
-        n = _number(args.n)
+        n = number(args.n)
         error = tail_error(n, p, alpha, method=args.method, tail=args.tail)
         verdict = None
     else:
         verdict = decisions.tail_verdict(
-            _number(args.n), p, alpha, rel_tol, method=args.method, tail=args.tail
+            number(args.n), p, alpha, rel_tol, method=args.method, tail=args.tail
         )
         n, error = verdict.n, verdict.error
     if args.json:
-        _print_json(
+        print_json(
             {
                 "n": int(n),
                 "p": p,
@@ -99,7 +106,7 @@ def _cmd_tail(args):
             ]
         lines.append(f"  source               {_SOURCE}")
         print("\n".join(lines))
-    return 3 if args.strict and verdict is not None and not verdict.within else 0
+    return strict_status(args.strict, verdict is None or verdict.within)
 
 
 def _cmd_size(args):
@@ -108,9 +115,9 @@ def _cmd_size(args):
 
     p0 = parse_probability(args.p0, "--p0")
     alpha = parse_probability(args.alpha, "--alpha")
-    max_size = _probability(args.max_size, "--max-size")
+    max_size = probability(args.max_size, "--max-size")
     v = decisions.size_verdict(
-        _number(args.n),
+        number(args.n),
         p0,
         alpha,
         max_size=max_size,
@@ -118,7 +125,7 @@ def _cmd_size(args):
         alternative=args.alternative,
     )
     if args.json:
-        _print_json(
+        print_json(
             {
                 "n": v.n,
                 "p0": v.p0,
@@ -151,7 +158,7 @@ def _cmd_size(args):
             f"  source          {_SOURCE}",
         ]
         print("\n".join(lines))
-    return 3 if args.strict and not v.keeps else 0
+    return strict_status(args.strict, v.keeps)
 
 
 def _print_min_n(args, result, head, record):
@@ -165,7 +172,7 @@ def _print_min_n(args, result, head, record):
             "explain": result.explain(),
             "source": "computed",
         }
-        _print_json(record)
+        print_json(record)
     else:
         print(f"{head}: {result.explain()}\n  source: {_SOURCE}")
     return 0
@@ -183,8 +190,8 @@ def _cmd_tail_min_n(args):
         rel_tol,
         method=args.method,
         tail=args.tail,
-        n_max=_number(args.n_max),
-        dense_to=_number(args.dense_to),
+        n_max=number(args.n_max),
+        dense_to=number(args.dense_to),
     )
     head = (
         f"{args.method}: every {_ONE_TAIL.get(args.tail, args.tail)} of at least "
@@ -199,15 +206,15 @@ def _cmd_size_min_n(args):
 
     p0 = parse_probability(args.p0, "--p0")
     alpha = parse_probability(args.alpha, "--alpha")
-    max_size = _probability(args.max_size, "--max-size")
+    max_size = probability(args.max_size, "--max-size")
     result = decisions.size_min_n(
         p0,
         alpha,
         max_size=max_size,
         method=args.method,
         alternative=args.alternative,
-        n_max=_number(args.n_max),
-        dense_to=_number(args.dense_to),
+        n_max=number(args.n_max),
+        dense_to=number(args.dense_to),
     )
     limit = alpha if max_size is None else max_size
     head = (
@@ -229,10 +236,10 @@ def _cmd_tail_compare(args):
 
     p = parse_probability(args.p, "--p")
     alpha = parse_probability(args.alpha, "--alpha")
-    n = _number(args.n)
+    n = number(args.n)
     ranking = decisions.best_tail_method(n, p, alpha, tail=args.tail)
     if args.json:
-        _print_json(
+        print_json(
             {
                 "n": int(n),
                 "p": p,
@@ -258,10 +265,10 @@ def _cmd_size_compare(args):
 
     p0 = parse_probability(args.p0, "--p0")
     alpha = parse_probability(args.alpha, "--alpha")
-    n = _number(args.n)
+    n = number(args.n)
     rows = decisions.best_size_method(n, p0, alpha, alternative=args.alternative)
     if args.json:
-        _print_json(
+        print_json(
             {
                 "n": int(n),
                 "p0": p0,
@@ -301,7 +308,7 @@ def _cmd_rules(args, audit, what_option, what):
         options["p"] = args.p_grid
     rows = audit(args.rule, **options)
     if args.json:
-        _print_json(
+        print_json(
             {
                 "grid": rows[0].grid,
                 "rows": [
@@ -340,44 +347,31 @@ def _cmd_size_rules(args):
     return _cmd_rules(args, size_rule_audit, "alternative", args.alternative)
 
 
-def _list(text, option):
-    return [parse_probability(x, option) for x in str(text).split(",")]
-
-
 def _cmd_tail_table(args):
     """Print (or write) the minimum n for each p and relative tolerance."""
     from atlas.decision_tables import FORMATS, tail_table
 
-    _check_format(args.format, FORMATS)
-    tols, ps = _list(args.rel_tol, "--rel-tol"), _list(args.p, "--p")
+    check_format(args.format, FORMATS)
+    tols, ps = probabilities(args.rel_tol, "--rel-tol"), probabilities(args.p, "--p")
     alpha = parse_probability(args.alpha, "--alpha")
-    _check_output(args)
+    check_output(args)
     table = tail_table(tols, ps, alpha=alpha, method=args.method, tail=args.tail,
-                       n_max=_number(args.n_max), dense_to=_number(args.dense_to))  # fmt: skip
-    return _emit(table.render(args.format), args.output)
+                       n_max=number(args.n_max), dense_to=number(args.dense_to))  # fmt: skip
+    return emit(table.render(args.format), args.output)
 
 
 def _cmd_size_table(args):
     """Print (or write) the minimum n for each p0 and largest size."""
     from atlas.decision_tables import FORMATS, size_table
 
-    _check_format(args.format, FORMATS)
-    limits, ps = _list(args.max_size, "--max-size"), _list(args.p0, "--p0")
+    check_format(args.format, FORMATS)
+    limits, ps = probabilities(args.max_size, "--max-size"), probabilities(args.p0, "--p0")
     alpha = parse_probability(args.alpha, "--alpha")
-    _check_output(args)
+    check_output(args)
     table = size_table(limits, ps, alpha=alpha, method=args.method,
-                       alternative=args.alternative, n_max=_number(args.n_max),
-                       dense_to=_number(args.dense_to))  # fmt: skip
-    return _emit(table.render(args.format), args.output)
-
-
-def _chart_target(args):
-    """Refuse a bad extension or an existing -o before any computation."""
-    from atlas import figures
-
-    with _Options(path="-o"):
-        figures.figure_format(args.output)
-    _check_output(args)
+                       alternative=args.alternative, n_max=number(args.n_max),
+                       dense_to=number(args.dense_to))  # fmt: skip
+    return emit(table.render(args.format), args.output)
 
 
 def _cmd_tail_chart(args):
@@ -385,8 +379,8 @@ def _cmd_tail_chart(args):
     from atlas import figures
     from atlas.decision_charts import MAP_N, MAP_P, tail_error_maps
 
-    _chart_target(args)
-    levels = _list(args.alpha, "--alpha")
+    check_figure_output(args)
+    levels = probabilities(args.alpha, "--alpha")
     fig = tail_error_maps(method=args.method, tail=args.tail, alphas=levels,
                           n=args.n_grid or MAP_N, p=args.p_grid or MAP_P)  # fmt: skip
     print(figures.save_figure(fig, args.output))
@@ -399,8 +393,8 @@ def _cmd_size_chart(args):
     from atlas.decision_charts import size_chart
 
     p0 = parse_probability(args.p0, "--p0")
-    _chart_target(args)
-    fig = size_chart(_number(args.n), p0, method=args.method, alternative=args.alternative)
+    check_figure_output(args)
+    fig = size_chart(number(args.n), p0, method=args.method, alternative=args.alternative)
     print(figures.save_figure(fig, args.output))
     return 0
 
@@ -410,7 +404,7 @@ def _cmd_decision_page(args):
     from atlas.decision_pages import write_decision_page
     from atlas.files import check_directory_target
 
-    with _Options(path="-o", directory="-o"):
+    with Options(path="-o", directory="-o"):
         check_directory_target(args.output, overwrite=args.force)
     from atlas.approximations import check_method
 
@@ -426,7 +420,7 @@ def _cmd_decision_sheet(args):
 
     if not str(args.output).lower().endswith(".pdf"):
         raise ValueError(f"`-o` must end in '.pdf'; got {args.output!r}.")
-    _check_output(args)
+    check_output(args)
     print(write_decision_sheet(args.output, method=args.method))
     return 0
 
@@ -453,14 +447,9 @@ def demo_lines(n, p0, *, alpha=0.05, tail_alpha=0.01, rel_tol=0.1):
 
 def add_commands(commands):
     """Register the tail and size commands on the ``approx-atlas`` subparsers."""
-    methods = ", ".join(METHODS)
 
     def method(sub):
-        sub.add_argument(
-            "--method",
-            default="normal_cc",
-            help=f"the approximation, one of {methods} (default normal_cc)",
-        )
+        sub.add_argument("--method", default="normal_cc", help=method_help())
 
     def tail_option(sub):
         sub.add_argument("--tail", default="both", help=f"which tails: {_TAILS}")

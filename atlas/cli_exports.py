@@ -11,7 +11,8 @@ Registered by :func:`add_commands` from :func:`atlas.cli._build_parser`. Errors 
 """
 
 from atlas import METHODS
-from atlas.cli import _check_output, _emit, _open_atlas
+from atlas.cli import _open_atlas
+from atlas.cli_common import check_output, emit
 from atlas.notation import parse_probability
 
 _NAMES = {"tol": "--tol", "method": "--method", "metric": "--metric", "family": "--family",
@@ -32,19 +33,19 @@ def _cmd_rule_constants(args):
         if args.alpha is None:
             raise ValueError(f"`--alpha` must be given with --metric {args.metric}.")
         alpha = parse_probability(args.alpha, "--alpha")
-        _check_output(args)
+        check_output(args)
         rows = decision_rule_constants(args.metric, alpha, tol, method=args.method,
                                        tail=args.tail, alternative=args.alternative,
                                        families=families)  # fmt: skip
         text = render_decision_constants(rows, "json" if args.json else "md", metric=args.metric,
                                          alpha=alpha, limit=tol, method=args.method)  # fmt: skip
-        return _emit(text, args.output)
-    _check_output(args)
+        return emit(text, args.output)
+    check_output(args)
     atlas = _open_atlas(args)
     bands = threshold_bands(atlas, tol, method=args.method, metric=args.metric)
     out = rule_constants(atlas, tol, method=args.method, metric=args.metric, families=families,
                          bands=bands)  # fmt: skip
-    return _emit(out.render("json" if args.json else "md"), args.output)
+    return emit(out.render("json" if args.json else "md"), args.output)
 
 
 def _cmd_export(args):
@@ -54,7 +55,7 @@ def _cmd_export(args):
 
     tol = parse_probability(args.tol, "--tol")
     fmt = format_for(args.format, args.output)
-    _check_output(args)
+    check_output(args)
     bands = threshold_bands(_open_atlas(args), tol, method=args.method, metric=args.metric)
     print(write_export(bands, args.output, fmt))
     return 0
