@@ -475,7 +475,7 @@ def _cmd_table(args):
 
 def _cmd_rules(args):
     """Print (or write) the audit of the classic rules of thumb and the user's own."""
-    from atlas.rules import CLASSIC_RULES, parse_rule
+    from atlas.rules import AUDIT_RULES, parse_rule
     from atlas.tables import AUDIT_FORMATS, rule_audit
 
     _check_format(args.format, AUDIT_FORMATS)
@@ -484,7 +484,7 @@ def _cmd_rules(args):
     _check_output(args)
     audit = rule_audit(
         _open_atlas(args),
-        list(CLASSIC_RULES) + extra,
+        list(AUDIT_RULES) + extra,
         methods=args.method,
         metrics=args.metric or METRICS,
         tols=tols,
@@ -640,6 +640,11 @@ def _build_parser():
     _add_output_commands(commands)
     add_coverage_commands(commands)  # confidence intervals for p (atlas/cli_coverage.py)
     add_decision_commands(commands)  # tail p-values and test sizes (atlas/cli_decisions.py)
+    # Rule constants and exported thresholds (atlas/cli_exports.py), which open an atlas with
+    # this module's _open_atlas, so it is imported here rather than at the top.
+    from atlas.cli_exports import add_commands as add_export_commands
+
+    add_export_commands(commands)
     return parser
 
 

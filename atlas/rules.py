@@ -8,7 +8,9 @@ parentheses. Anything else (a call, an attribute, a subscript, another name, a l
 numpy functions; :func:`eval` is never used.
 
 The classic rules are the constants `NP5`, `NP10`, `NPQ9` and `NPQ5`; `CLASSIC_RULES` lists
-them and `RULE_NAMES` gives each the name a textbook uses.
+them and `RULE_NAMES` gives each the name a textbook uses. The audit (`AUDIT_RULES`) adds the
+skewness rule `SKEWNESS` and the 3-sigma rule `THREE_SIGMA`, with their sources in
+`RULE_SOURCES` (:func:`rule_source`).
 """
 
 import ast
@@ -25,11 +27,25 @@ NP10 = "n*p >= 10 and n*q >= 10"
 NPQ9 = "n*p*q > 9"
 NPQ5 = "n*p*q >= 5"
 CLASSIC_RULES = (NP5, NP10, NPQ9, NPQ5)
+# |skewness| = |q - p| / sqrt(npq) < 0.3, squared (both sides are non-negative); Box, Hunter and
+# Hunter, Statistics for Experimenters (from memory).
+SKEWNESS = "n > 5 and (q - p)**2 < 0.09*n*p*q"
+# np - 3 sqrt(npq) > 0 and np + 3 sqrt(npq) < n, i.e. n > 9q/p and n > 9p/q; common practice,
+# no source. Written as np > 3 sqrt(npq) and nq > 3 sqrt(npq), so that the comparison's two
+# sides are the quantities themselves and a boundary (n = 21, p = 0.3) holds as written.
+THREE_SIGMA = "n*p > 3*(n*p*q)**0.5 and n*q > 3*(n*p*q)**0.5"
+AUDIT_RULES = (*CLASSIC_RULES, SKEWNESS, THREE_SIGMA)
 RULE_NAMES = {
     NP5: "np >= 5 and nq >= 5",
     NP10: "np >= 10 and nq >= 10",
     NPQ9: "npq > 9",
     NPQ5: "npq >= 5",
+    SKEWNESS: "n > 5 and |q - p|/sqrt(npq) < 0.3",
+    THREE_SIGMA: "np - 3 sqrt(npq) > 0 and np + 3 sqrt(npq) < n",
+}
+RULE_SOURCES = {
+    SKEWNESS: "Box, Hunter and Hunter, Statistics for Experimenters (from memory)",
+    THREE_SIGMA: "common practice, no source",
 }
 
 _ALLOWED = "numbers, n, p, q, + - * / **, unary -, < <= > >= == !=, and, or, not, parentheses"
@@ -222,6 +238,16 @@ def rule_name(rule):
     """The textbook name of a classic rule ("np >= 5 and nq >= 5"), else the text as written."""
     text = rule.text if isinstance(rule, Expression) else str(rule)
     return RULE_NAMES.get(text, text)
+
+
+def rule_source(rule):
+    """Where a rule comes from, when known (``RULE_SOURCES``), else None.
+
+    >>> rule_source(THREE_SIGMA), rule_source("n > 3")
+    ('common practice, no source', None)
+    """
+    text = rule.text if isinstance(rule, Expression) else str(rule)
+    return RULE_SOURCES.get(text)
 
 
 def _refuse(node, name, text):

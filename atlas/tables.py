@@ -21,7 +21,7 @@ from atlas import figures
 from atlas.engine import METRICS, check_metric
 from atlas.figures import METRIC_FORMULAS, format_level, provenance_line
 from atlas.notation import FLOAT64_DIGITS, error_digits, format_p, format_p_brief, rounded
-from atlas.rules import CLASSIC_RULES, parse_rule, rule_name
+from atlas.rules import AUDIT_RULES, parse_rule, rule_name, rule_source
 
 TABLE_TOLS = (0.01, 0.005, 0.001, 0.0001)
 TABLE_PS = (0.001, 0.01, 0.05, 0.1, 0.2, 0.3, 0.5)
@@ -360,6 +360,7 @@ class AuditRow:
             "worst_p": self.worst_p,
         }
         out["share_within"] = {format_p(t): s for t, s in zip(tols, self.shares, strict=True)}
+        out["source"] = rule_source(self.rule)
         if self.checked is not None:
             out["checked"] = dict(self.checked.as_dict(), words=self.checked.checked())
         return out
@@ -434,11 +435,17 @@ class RuleAudit:
                 "worst error: the largest error over the grid cells (n, p) the rule admits; "
                 "at n, at p: where it occurs (≈: p rounded to 4 digits; the JSON holds it whole).",
             ]
+        sources = [
+            f"{rule_name(rule)}: {source}."
+            for rule, source in dict.fromkeys((r.rule, rule_source(r.rule)) for r in self.rows)
+            if source
+        ]
         return first + [
             "≤ tol: the share of the rule's grid cells whose error is within tol "
             f"(of {self.grid_cells:,} grid cells in all; shares count cells, so they follow the "
             "grid's density).",
             "—: the rule admits no cell of the grid.",
+            *sources,
         ]
 
     def to_markdown(self):
@@ -485,7 +492,7 @@ def rule_audit(atlas, rules=None, *, methods=None, metrics=METRICS, tols=AUDIT_T
     atlas : Atlas or xarray.Dataset
     rules : sequence of str, optional
         Rules as expressions in n, p and q (see :mod:`atlas.rules`); default the classic ones,
-        :data:`atlas.rules.CLASSIC_RULES`.
+        the skewness rule and the 3-sigma rule, :data:`atlas.rules.AUDIT_RULES`.
     methods : sequence of str, optional
         Methods of the atlas (default all).
     metrics : sequence of str, optional
@@ -523,7 +530,7 @@ def rule_audit(atlas, rules=None, *, methods=None, metrics=METRICS, tols=AUDIT_T
     ds = figures.as_dataset(atlas)
     if isinstance(rules, str):
         rules = (rules,)
-    parsed = [parse_rule(r) for r in (CLASSIC_RULES if rules is None else rules)]
+    parsed = [parse_rule(r) for r in (AUDIT_RULES if rules is None else rules)]
     if not parsed:
         raise ValueError("`rules` must hold at least one rule; got an empty sequence.")
     methods = figures.atlas_methods(ds) if methods is None else tuple(methods)

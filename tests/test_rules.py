@@ -9,6 +9,7 @@ from hypothesis import strategies as st
 from numpy.testing import assert_array_equal
 
 from atlas.rules import (
+    AUDIT_RULES,
     CLASSIC_RULES,
     MAX_LENGTH,
     NP5,
@@ -16,10 +17,13 @@ from atlas.rules import (
     NPQ5,
     NPQ9,
     RULE_NAMES,
+    SKEWNESS,
+    THREE_SIGMA,
     Expression,
     parse_expression,
     parse_rule,
     rule_name,
+    rule_source,
 )
 
 # ---- the classic rules (expected values: arithmetic on the rule's definition) ----
@@ -47,6 +51,39 @@ def test_classic_rules(rule, n, p, expected):
     got = parse_rule(rule)(n, p)
     assert got.dtype == bool and got.shape == ()
     assert bool(got) is expected
+
+
+@pytest.mark.parametrize(
+    ("rule", "n", "p", "expected"),
+    [
+        # |q - p| / sqrt(npq) < 0.3 at p = 0.1: 0.64 < 0.09 * n * 0.09, i.e. n > 79.01
+        (SKEWNESS, 80, 0.1, True),
+        (SKEWNESS, 79, 0.1, False),
+        (SKEWNESS, 80, 0.9, True),  # symmetric in p and q
+        (SKEWNESS, 6, 0.5, True),  # skewness 0, n > 5
+        (SKEWNESS, 5, 0.5, False),  # n > 5 is strict
+        # n > 9q/p and n > 9p/q: at p = 0.1, n > 81; at n = 81, np = 8.1 = 3 sqrt(7.29) exactly
+        (THREE_SIGMA, 81, 0.1, False),
+        (THREE_SIGMA, 82, 0.1, True),
+        (THREE_SIGMA, 82, 0.9, True),
+        (THREE_SIGMA, 81, 0.9, False),
+        (THREE_SIGMA, 9, 0.5, False),  # np = 4.5 = 3 sqrt(2.25)
+        (THREE_SIGMA, 10, 0.5, True),
+    ],
+)
+def test_audit_rules(rule, n, p, expected):
+    # Expected values: arithmetic on each rule's definition (in the comments).
+    assert bool(parse_rule(rule)(n, p)) is expected
+
+
+def test_audit_rules_carry_their_sources():
+    assert AUDIT_RULES == (*CLASSIC_RULES, SKEWNESS, THREE_SIGMA)
+    assert rule_name(SKEWNESS) == "n > 5 and |q - p|/sqrt(npq) < 0.3"
+    assert rule_source(parse_rule(SKEWNESS)) == (
+        "Box, Hunter and Hunter, Statistics for Experimenters (from memory)"
+    )
+    assert rule_source(THREE_SIGMA) == "common practice, no source"
+    assert rule_source(NP5) is None
 
 
 def test_classic_rules_listed_with_names():

@@ -43,16 +43,18 @@ def test_sheet_pages(chart_atlas):
         "Worst-case error of interval probabilities: edgeworth_cc",
         "Minimum n for each tolerance",
         "Rules of thumb: the worst error each admits",
+        # six rules (the skewness and 3-sigma rules joined the audit) x two methods x two metrics
+        "Rules of thumb: the worst error each admits (continued)",
         "Definitions",
         "Provenance and caution",
     ]
     for k, fig in enumerate(pages, start=1):
         texts = {t.get_gid(): t.get_text() for t in fig.texts if t.get_gid()}
-        assert texts["page-number"] == f"page {k} of 6"
+        assert texts["page-number"] == f"page {k} of 7"
         assert " ".join(cube.CAUTION.split()) in " ".join(texts["footer"].split())
     last = " ".join(t.get_text() for t in pages[-1].texts)
     assert chart_atlas.dataset.attrs["checksum"] in last and "chart.nc" in last
-    definitions = " ".join(t.get_text() for t in pages[4].texts)
+    definitions = " ".join(t.get_text() for t in pages[5].texts)
     assert "max over 0 ≤ a ≤ b ≤ n of |P(a ≤ X ≤ b) − (G(b) − G(a − 1))|" in definitions
     assert "max over 0 ≤ k ≤ n of |F(k) − G(k)|" in definitions
     # The tables page holds the four tables (two methods, two metrics) with the query's values.
@@ -68,7 +70,7 @@ def test_write_sheet(chart_atlas, tmp_path):
     path = sheets.write_sheet(chart_atlas, tmp_path / "sheet.pdf")
     data = path.read_bytes()
     assert data.startswith(b"%PDF-") and b"%%EOF" in data[-64:]
-    assert _pdf_page_count(data) == 6
+    assert _pdf_page_count(data) == 7  # the audit runs over two pages (test_sheet_pages)
     assert os.listdir(tmp_path) == ["sheet.pdf"]
     with pytest.raises(ValueError, match=r"^`path` must end in '\.pdf'; got '.*sheet\.png'\.$"):
         sheets.write_sheet(chart_atlas, tmp_path / "sheet.png")

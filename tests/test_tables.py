@@ -12,7 +12,7 @@ from numpy.testing import assert_allclose
 from atlas import build_atlas, tables
 from atlas.cli import main
 from atlas.engine import worst_error
-from atlas.rules import CLASSIC_RULES, NP5
+from atlas.rules import AUDIT_RULES, CLASSIC_RULES, NP5, SKEWNESS, THREE_SIGMA
 
 TOLS = (0.01, 0.005, 0.001)
 PS = (0.01, 0.05, 0.1, 0.3, 0.5)  # all on the chart atlas's p axis
@@ -154,6 +154,8 @@ def _brute_masks(n, p):
         CLASSIC_RULES[1]: (n * p >= 10 - slack) & (n * q >= 10 - slack),
         CLASSIC_RULES[2]: n * p * q > 9 + slack,
         CLASSIC_RULES[3]: n * p * q >= 5 - slack,
+        SKEWNESS: (n > 5) & (np.abs(q - p) / np.sqrt(n * p * q) < 0.3 - slack),
+        THREE_SIGMA: (n > 9 * q / p + slack) & (n > 9 * p / q + slack),
         "n*p*q >= 25 or n > 50000": (n * p * q >= 25 - slack) | (n > 50000),
     }
 
@@ -210,11 +212,16 @@ def test_audit_formats(chart_atlas):
             "≤ 0.001 |") in markdown  # fmt: skip
     for row in audit.rows:
         open_mark = " †" if tables._left_open(row) else ""  # integers left unchecked: marked
-        assert (f"| {row.name} | normal_cc | interval | {row.cells:,} | "
+        name = tables.escape_markdown(row.name)  # the skewness rule's |q - p| is escaped
+        assert (f"| {name} | normal_cc | interval | {row.cells:,} | "
                 f"{row.worst_error:.3g}{open_mark} |") in markdown  # fmt: skip
     record = json.loads(audit.render("json"))
-    assert [r["rule"] for r in record["rows"]] == list(CLASSIC_RULES)
+    assert [r["rule"] for r in record["rows"]] == list(AUDIT_RULES)
     assert record["rows"][2]["name"] == "npq > 9"
+    assert record["rows"][4]["source"].startswith("Box, Hunter and Hunter")
+    assert "- np - 3 sqrt(npq) > 0 and np + 3 sqrt(npq) < n: common practice, no source." in (
+        markdown
+    )
     assert record["rows"][0]["worst_error"] == audit.rows[0].worst_error
     with pytest.raises(ValueError, match=r"^`format` must be one of 'md', 'json'; got 'csv'\.$"):
         audit.render("csv")
@@ -298,12 +305,12 @@ def test_cli_rules(chart_atlas, capsys):
                  "--method", "normal_cc", "--metric", "cdf", "--format", "json",
                  "--tol", "0.01"]) == 0  # fmt: skip
     record = json.loads(capsys.readouterr().out)
-    assert [r["rule"] for r in record["rows"]] == [*CLASSIC_RULES, "n*p*q >= 25"]
+    assert [r["rule"] for r in record["rows"]] == [*AUDIT_RULES, "n*p*q >= 25"]
     assert {r["method"] for r in record["rows"]} == {"normal_cc"}
     assert {r["metric"] for r in record["rows"]} == {"cdf"}
     expected = tables.rule_audit(
         chart_atlas,
-        [*CLASSIC_RULES, "n*p*q >= 25"],
+        [*AUDIT_RULES, "n*p*q >= 25"],
         methods=["normal_cc"],
         metrics=["cdf"],
         tols=[0.01],
