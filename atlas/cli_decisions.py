@@ -14,8 +14,8 @@ one line ``approx-atlas: error: ...`` for a user's mistake. Nothing here reads a
 every number is computed exactly on demand.
 """
 
-from atlas.cli_common import P_FORMS as _P_FORMS
 from atlas.cli_common import (
+    OK,
     Options,
     check_figure_output,
     check_format,
@@ -28,6 +28,7 @@ from atlas.cli_common import (
     probability,
     strict_status,
 )
+from atlas.cli_common import P_FORMS as _P_FORMS
 from atlas.notation import format_p, parse_probability
 
 _TAILS = "lower (P(X <= k)), upper (P(X >= k)) or both (default)"
@@ -161,137 +162,89 @@ def _cmd_size(args):
     return strict_status(args.strict, v.keeps)
 
 
-def _print_min_n(args, result, head, record):
+def _asked(args):
+    """The point and level of a tail or size command: (p, alpha), p from --p or --p0."""
+    option = "--p" if args.family == "tail" else "--p0"
+    p = parse_probability(args.p if args.family == "tail" else args.p0, option)
+    return p, parse_probability(args.alpha, "--alpha")
+
+
+def _cmd_min_n(args):
+    """The smallest n from which every tail is within --rel-tol, or the test keeps --max-size."""
+    from atlas import decisions
+
+    p, alpha = _asked(args)
+    search = {"method": args.method, "n_max": number(args.n_max),
+              "dense_to": number(args.dense_to)}  # fmt: skip
+    if args.family == "tail":
+        rel_tol = parse_probability(args.rel_tol, "--rel-tol")
+        result = decisions.tail_min_n(p, alpha, rel_tol, tail=args.tail, **search)
+        head = (f"{args.method}: every {_ONE_TAIL.get(args.tail, args.tail)} of at least "
+                f"{format_p(alpha)} within {_percent(rel_tol)} at p = {format_p(p)}")  # fmt: skip
+        record = {"p": p, "alpha": alpha, "rel_tol": rel_tol, "tail": args.tail}
+    else:
+        max_size = probability(args.max_size, "--max-size")
+        result = decisions.size_min_n(p, alpha, max_size=max_size,
+                                      alternative=args.alternative, **search)  # fmt: skip
+        limit = alpha if max_size is None else max_size
+        test = _TEST_TEXT[args.alternative]
+        head = (f"{args.method} p-values, {test} at level {format_p(alpha)}: size at most "
+                f"{format_p(limit)} at p0 = {format_p(p)}")  # fmt: skip
+        record = {"p0": p, "alpha": alpha, "max_size": limit, "alternative": args.alternative}
     if args.json:
-        record |= {
+        print_json(record | {
+            "method": args.method,
             "min_n": result.n,
             "previous": result.previous,
             "dense_to": result.dense_to,
             "n_max": result.n_max,
-            "exact_for_integers": result.exact_for_integers,
+            "every_integer": True,
+            "evaluated": result.evaluated,
+            "certified": result.certified,
+            "runs": [{"first": a, "last": b, "within": w} for a, b, w in result.runs],
             "explain": result.explain(),
             "source": "computed",
-        }
-        print_json(record)
+        })  # fmt: skip
     else:
         print(f"{head}: {result.explain()}\n  source: {_SOURCE}")
-    return 0
+    return OK
 
 
-def _cmd_tail_min_n(args):
+def _cmd_compare(args):
+    """Every method ranked by its tail relative error, or by its test's size against alpha."""
     from atlas import decisions
 
-    p = parse_probability(args.p, "--p")
-    alpha = parse_probability(args.alpha, "--alpha")
-    rel_tol = parse_probability(args.rel_tol, "--rel-tol")
-    result = decisions.tail_min_n(
-        p,
-        alpha,
-        rel_tol,
-        method=args.method,
-        tail=args.tail,
-        n_max=number(args.n_max),
-        dense_to=number(args.dense_to),
-    )
-    head = (
-        f"{args.method}: every {_ONE_TAIL.get(args.tail, args.tail)} of at least "
-        f"{format_p(alpha)} within {_percent(rel_tol)} at p = {format_p(p)}"
-    )
-    record = {"p": p, "alpha": alpha, "rel_tol": rel_tol, "tail": args.tail, "method": args.method}
-    return _print_min_n(args, result, head, record)
-
-
-def _cmd_size_min_n(args):
-    from atlas import decisions
-
-    p0 = parse_probability(args.p0, "--p0")
-    alpha = parse_probability(args.alpha, "--alpha")
-    max_size = probability(args.max_size, "--max-size")
-    result = decisions.size_min_n(
-        p0,
-        alpha,
-        max_size=max_size,
-        method=args.method,
-        alternative=args.alternative,
-        n_max=number(args.n_max),
-        dense_to=number(args.dense_to),
-    )
-    limit = alpha if max_size is None else max_size
-    head = (
-        f"{args.method} p-values, {_TEST_TEXT[args.alternative]} at level "
-        f"{format_p(alpha)}: size at most {format_p(limit)} at p0 = {format_p(p0)}"
-    )
-    record = {
-        "p0": p0,
-        "alpha": alpha,
-        "max_size": limit,
-        "alternative": args.alternative,
-        "method": args.method,
-    }
-    return _print_min_n(args, result, head, record)
-
-
-def _cmd_tail_compare(args):
-    from atlas import decisions
-
-    p = parse_probability(args.p, "--p")
-    alpha = parse_probability(args.alpha, "--alpha")
+    p, alpha = _asked(args)
     n = number(args.n)
-    ranking = decisions.best_tail_method(n, p, alpha, tail=args.tail)
+    if args.family == "tail":
+        rows = [(m, e, None) for m, e in decisions.best_tail_method(n, p, alpha, tail=args.tail)]
+        key, which, what = "tail_error", {"tail": args.tail}, "p"
+        head = (f"Bin(n={int(n)}, p={format_p(p)}), tail relative error, {_TAIL_TEXT[args.tail]} "
+                f"of at least {format_p(alpha)}, best first")  # fmt: skip
+    else:
+        rows = decisions.best_size_method(n, p, alpha, alternative=args.alternative)
+        key, which, what = "size", {"alternative": args.alternative}, "p0"
+        head = (f"Bin(n={int(n)}, p0={format_p(p)}), {_TEST_TEXT[args.alternative]} at level "
+                f"{format_p(alpha)}: sizes, best first (at most the level first, then nearest "
+                "it)")  # fmt: skip
     if args.json:
-        print_json(
-            {
-                "n": int(n),
-                "p": p,
-                "alpha": alpha,
-                "tail": args.tail,
-                "source": "computed",
-                "ranking": [{"method": m, "tail_error": e} for m, e in ranking],
-            }
-        )
-        return 0
-    lines = [
-        f"Bin(n={int(n)}, p={format_p(p)}), tail relative error, {_TAIL_TEXT[args.tail]} "
-        f"of at least {format_p(alpha)}, best first"
-    ]
-    lines += [f"  {i:>2}  {m:<14} {e:.3e}" for i, (m, e) in enumerate(ranking, start=1)]
+        record = {"n": int(n), what: p, "alpha": alpha} | which | {"source": "computed"}
+        if args.family == "size":
+            record["exact_size"] = rows[0][2]
+        print_json(record | {"ranking": [{"method": m, key: v} for m, v, _ in rows]})
+        return OK
+    lines = [head]
+    for i, (m, v, exact) in enumerate(rows, start=1):
+        if exact is None:
+            lines.append(f"  {i:>2}  {m:<14} {v:.3e}")
+        else:
+            above = "" if v <= alpha else "  above"
+            lines.append(f"  {i:>2}  {m:<14} {v:.4g}  ({_percent(v)}){above}")
+    if args.family == "size":
+        lines.append(f"  exact test      {rows[0][2]:.4g}  ({_percent(rows[0][2])})")
     lines.append(f"  source: {_SOURCE}")
     print("\n".join(lines))
-    return 0
-
-
-def _cmd_size_compare(args):
-    from atlas import decisions
-
-    p0 = parse_probability(args.p0, "--p0")
-    alpha = parse_probability(args.alpha, "--alpha")
-    n = number(args.n)
-    rows = decisions.best_size_method(n, p0, alpha, alternative=args.alternative)
-    if args.json:
-        print_json(
-            {
-                "n": int(n),
-                "p0": p0,
-                "alpha": alpha,
-                "alternative": args.alternative,
-                "source": "computed",
-                "exact_size": rows[0][2],
-                "ranking": [{"method": m, "size": s} for m, s, _ in rows],
-            }
-        )
-        return 0
-    lines = [
-        f"Bin(n={int(n)}, p0={format_p(p0)}), {_TEST_TEXT[args.alternative]} at level "
-        f"{format_p(alpha)}: sizes, best first (at most the level first, then nearest it)"
-    ]
-    lines += [
-        f"  {i:>2}  {m:<14} {s:.4g}  ({_percent(s)}){'' if s <= alpha else '  above'}"
-        for i, (m, s, _) in enumerate(rows, start=1)
-    ]
-    lines.append(f"  exact test      {rows[0][2]:.4g}  ({_percent(rows[0][2])})")
-    lines.append(f"  source: {_SOURCE}")
-    print("\n".join(lines))
-    return 0
+    return OK
 
 
 def _cmd_rules(args, audit, what_option, what):
@@ -347,30 +300,22 @@ def _cmd_size_rules(args):
     return _cmd_rules(args, size_rule_audit, "alternative", args.alternative)
 
 
-def _cmd_tail_table(args):
-    """Print (or write) the minimum n for each p and relative tolerance."""
-    from atlas.decision_tables import FORMATS, tail_table
+def _cmd_table(args):
+    """Print (or write) the minimum n for each p and relative tolerance, or p0 and size."""
+    from atlas.decision_tables import FORMATS, size_table, tail_table
 
     check_format(args.format, FORMATS)
-    tols, ps = probabilities(args.rel_tol, "--rel-tol"), probabilities(args.p, "--p")
     alpha = parse_probability(args.alpha, "--alpha")
-    check_output(args)
-    table = tail_table(tols, ps, alpha=alpha, method=args.method, tail=args.tail,
-                       n_max=number(args.n_max), dense_to=number(args.dense_to))  # fmt: skip
-    return emit(table.render(args.format), args.output)
-
-
-def _cmd_size_table(args):
-    """Print (or write) the minimum n for each p0 and largest size."""
-    from atlas.decision_tables import FORMATS, size_table
-
-    check_format(args.format, FORMATS)
-    limits, ps = probabilities(args.max_size, "--max-size"), probabilities(args.p0, "--p0")
-    alpha = parse_probability(args.alpha, "--alpha")
-    check_output(args)
-    table = size_table(limits, ps, alpha=alpha, method=args.method,
-                       alternative=args.alternative, n_max=number(args.n_max),
-                       dense_to=number(args.dense_to))  # fmt: skip
+    search = {"alpha": alpha, "method": args.method, "n_max": number(args.n_max),
+              "dense_to": number(args.dense_to)}  # fmt: skip
+    if args.family == "tail":
+        limits, ps = probabilities(args.rel_tol, "--rel-tol"), probabilities(args.p, "--p")
+        check_output(args)
+        table = tail_table(limits, ps, tail=args.tail, **search)
+    else:
+        limits, ps = probabilities(args.max_size, "--max-size"), probabilities(args.p0, "--p0")
+        check_output(args)
+        table = size_table(limits, ps, alternative=args.alternative, **search)
     return emit(table.render(args.format), args.output)
 
 
@@ -462,7 +407,9 @@ def add_commands(commands):
         sub.add_argument(
             "--dense-to",
             default="2048",
-            help="every integer n is checked up to here (2048); above it, n about 5%% apart",
+            help="every integer n is evaluated up to here (2048); above it a ladder of n "
+            "about 5%% apart says where to look, and every integer between is evaluated or "
+            "covered by a proven bound",
         )
 
     def json_option(sub):
@@ -525,7 +472,7 @@ def add_commands(commands):
     method(tail_min)
     ladder(tail_min)
     json_option(tail_min)
-    tail_min.set_defaults(handler=_cmd_tail_min_n, names=common | {"p": "--p"})
+    tail_min.set_defaults(handler=_cmd_min_n, family="tail", names=common | {"p": "--p"})
 
     size_min = commands.add_parser(
         "size-min-n", help="the smallest n from which the test keeps its size at most a limit"
@@ -537,7 +484,7 @@ def add_commands(commands):
     method(size_min)
     ladder(size_min)
     json_option(size_min)
-    size_min.set_defaults(handler=_cmd_size_min_n, names=common | {"p": "--p0"})
+    size_min.set_defaults(handler=_cmd_min_n, family="size", names=common | {"p": "--p0"})
 
     tail_cmp = commands.add_parser(
         "tail-compare", help="every method ranked by its tail relative error at (n, p)"
@@ -547,7 +494,7 @@ def add_commands(commands):
     tail_cmp.add_argument("--alpha", required=True, help=alpha_tail)
     tail_option(tail_cmp)
     json_option(tail_cmp)
-    tail_cmp.set_defaults(handler=_cmd_tail_compare, names=common | {"p": "--p"})
+    tail_cmp.set_defaults(handler=_cmd_compare, family="tail", names=common | {"p": "--p"})
 
     size_cmp = commands.add_parser(
         "size-compare", help="every method ranked by its test's size against the level"
@@ -557,7 +504,7 @@ def add_commands(commands):
     size_cmp.add_argument("--alpha", required=True, help=alpha_test)
     alternative_option(size_cmp)
     json_option(size_cmp)
-    size_cmp.set_defaults(handler=_cmd_size_compare, names=common | {"p": "--p0"})
+    size_cmp.set_defaults(handler=_cmd_compare, family="size", names=common | {"p": "--p0"})
 
     def audit_options(sub, levels):
         sub.add_argument(
@@ -609,7 +556,7 @@ def add_commands(commands):
     method(tail_tab)
     ladder(tail_tab)
     table_output(tail_tab)
-    tail_tab.set_defaults(handler=_cmd_tail_table, names=table_names | {"p": "--p"})
+    tail_tab.set_defaults(handler=_cmd_table, family="tail", names=table_names | {"p": "--p"})
 
     size_tab = commands.add_parser(
         "size-table", help="the minimum n for each p0 and largest size of the test"
@@ -623,7 +570,9 @@ def add_commands(commands):
     method(size_tab)
     ladder(size_tab)
     table_output(size_tab)
-    size_tab.set_defaults(handler=_cmd_size_table, names=table_names | {"p": "--p0", "ps": "--p0"})
+    size_tab.set_defaults(
+        handler=_cmd_table, family="size", names=table_names | {"p": "--p0", "ps": "--p0"}
+    )
 
     def chart_output(sub):
         sub.add_argument("-o", "--output", required=True, metavar="FILE",

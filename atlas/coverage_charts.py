@@ -33,7 +33,8 @@ def _cube_provenance(ds):
     history = str(ds.attrs.get("history", ""))[:10] or "unknown date"
     return (
         f"Coverage cube: {ds.attrs.get('source', 'approx-atlas')}, built {history}; grid "
-        f"n = {n[0]:,}…{n[-1]:,} ({n.size} values), p = {p[0]:g}…{p[-1]:g} ({p.size} values), "
+        f"n = {n[0]:,} to {n[-1]:,} ({n.size} values), p = {p[0]:g} to {p[-1]:g} "
+        f"({p.size} values), "
         f"logit-spaced p-cells; exact values (atlas.confidence), no p sampled."
     )
 

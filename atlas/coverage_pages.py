@@ -1,27 +1,43 @@
-"""The coverage page of the wiki and the coverage sheet: maps, minimum-n tables, definitions.
+"""The coverage section of the sheet and wiki page: maps, minimum-n tables, definitions.
 
-- :func:`write_coverage_page`: ``coverage.html`` and ``coverage.md`` with an SVG map per interval
-  and the minimum-n tables beside them, written into an existing directory (the wiki page's, so
-  that ``index.html`` can link ``coverage.html``); no script, no external address.
-- :func:`write_coverage_sheet`: a multi-page PDF of the same.
+- :func:`section`: the content (:class:`atlas.sections.Section`), which the main sheet and wiki
+  page (:mod:`atlas.sheets`) compose with the others; its maps come from a dataset passed in,
+  or from :func:`load_coverage_data` (the embedded coverage cube: the one line to change when
+  the coverage variables move).
+- :func:`write_coverage_page`: the section alone, ``coverage.html`` and ``coverage.md`` with an
+  SVG map per interval and the minimum-n tables beside them, into an existing directory.
+- :func:`write_coverage_sheet`: the section alone as a multi-page PDF.
 
-Every file is written under a temporary name and renamed when complete. The maps come from the
-coverage cube (:mod:`atlas.coverage_cube`), the tables from :func:`atlas.coverage_table`.
+Every file is written under a temporary name and renamed when complete. The tables come from
+:func:`atlas.coverage_table`.
 """
 
-import html
-import textwrap
+import functools
 from pathlib import Path
 
-from atlas import figures
 from atlas.confidence import check_level
 from atlas.coverage_questions import coverage_table
-from atlas.cube import CAUTION
-from atlas.files import replacing, save_text
+from atlas.files import save_text
+from atlas.sections import (
+    Chart,
+    Section,
+    Table,
+    page_html,
+    save_charts,
+    section_html,
+    section_markdown,
+    write_pdf,
+)
 
 BANDS = ((0.05, 0.5), (0.01, 0.99))
 FLOORS = (0.93, 0.94, 0.95)
+KEY = "coverage"
 TITLE = "Confidence intervals for p: where they keep their promise"
+INTRO = (
+    "The interval p̂ ± z √(p̂ q̂ / n) is taught with the same rules of thumb as the normal curve, "
+    "and its actual coverage is erratic. This section gives, for each interval, the exact "
+    "minimum coverage over p and the n from which it keeps a floor at every n.",
+)
 #: The definitions of the intervals (the contract of atlas.confidence), for people.
 INTERVAL_DEFINITIONS = (
     ("wald", "p̂ ∓ z √(p̂ q̂ / n)"),
@@ -51,38 +67,46 @@ NOTES = (
 )
 
 
-def _tables(level, bands, floors, n_max):
-    return [coverage_table(lo, hi, floors, level=level, n_max=n_max) for lo, hi in bands]
+def load_coverage_data():
+    """The coverage dataset the pages draw their maps from: the embedded coverage cube.
 
-
-def _maps(cube, level):
-    from atlas.coverage_charts import coverage_map
-
-    names = [str(v) for v in cube["interval"].values]
-    return [(name, coverage_map(cube, interval=name, level=level)) for name in names]
-
-
-def _cube(cube):
-    if cube is not None:
-        return cube
+    The one place that says where the coverage variables live; the sheet and wiki page call it
+    only when no dataset is passed to them.
+    """
     from atlas.coverage_cube import open_coverage_cube
 
     return open_coverage_cube()
 
 
-def write_coverage_page(
-    directory, *, cube=None, level=0.95, bands=BANDS, floors=FLOORS, n_max=1000
-):
-    """Write ``coverage.html``, ``coverage.md``, the SVG maps and the tables into ``directory``.
+def _tables(level, bands, floors, n_max):
+    return [coverage_table(lo, hi, floors, level=level, n_max=n_max) for lo, hi in bands]
+
+
+def _table(table):
+    """A coverage table as section content: the intervals down, the floors across."""
+    caption = f"Minimum n, level {table.level:g}, every p in [{table.p_lo:g}, {table.p_hi:g}]"
+    note = (
+        f"Every integer n from 1 to {table.n_max} checked (the exact minimum coverage at each); "
+        f"'> {table.n_max}': fails at n = {table.n_max}; '*': the floor also held at a smaller "
+        "n and failed again (coverage is not monotone in n)."
+    )
+    header = ("interval", *[f"floor {f:g}" for f in table.floors])
+    rows = tuple((name, *[table.cell(name, f) for f in table.floors]) for name in table.intervals)
+    return Table(caption, header, rows, (note,))
+
+
+def section(data=None, *, level=0.95, bands=BANDS, floors=FLOORS, n_max=1000):
+    """The section on confidence intervals for p, as content (:class:`atlas.sections.Section`).
+
+    Made once per set of arguments when ``data`` is not given (its tables take about half a
+    minute at ``n_max`` = 1000).
 
     Parameters
     ----------
-    directory : str or os.PathLike
-        An existing directory (the wiki page's); files of the same names are replaced.
-    cube : xarray.Dataset, optional
-        A coverage cube; default the embedded one.
+    data : xarray.Dataset, optional
+        The coverage variables (a coverage cube); default :func:`load_coverage_data`.
     level : float
-        The nominal level of the maps and tables (one the cube holds).
+        The nominal level of the maps and tables (one the data holds).
     bands : sequence of (float, float)
         The p bands of the minimum-n tables.
     floors : sequence of float
@@ -93,170 +117,119 @@ def write_coverage_page(
 
     Returns
     -------
+    atlas.sections.Section
+    """
+    bands = tuple(tuple(b) for b in bands)
+    floors = tuple(floors)
+    if data is None:
+        return _default_content(level, bands, floors, n_max)[0]
+    return _content(data, level, bands, floors, n_max)[0]
+
+
+@functools.cache
+def _default_content(level, bands, floors, n_max):
+    return _content(load_coverage_data(), level, bands, floors, n_max)
+
+
+def _content(data, level, bands, floors, n_max):
+    """The section and its CoverageTable objects."""
+    level = check_level(level)
+    tag = f"{round(level * 100):d}"
+    charts = tuple(
+        Chart(f"coverage_{name}_{tag}.svg",
+              f"{name}: minimum coverage over each p-cell at the nominal {level:g} (red below "
+              "it, blue above)",
+              lambda name=name, **size: _map(data, name, level, **size))
+        for name in (str(v) for v in data["interval"].values)
+    )  # fmt: skip
+    tables = _tables(level, bands, floors, n_max)
+    definitions = (("Notation", NOTES[0]), ("Coverage", NOTES[1]), ("Exact minimum", NOTES[2]),
+                   ("Minimum n", NOTES[3])) + tuple(
+        (name, text) for name, text in INTERVAL_DEFINITIONS)  # fmt: skip
+    content = Section(KEY, TITLE, intro=INTRO, definitions=definitions, charts=charts,
+                      tables=tuple(_table(t) for t in tables),
+                      provenance=_provenance(data))  # fmt: skip
+    return content, tables
+
+
+def tables(data=None, *, level=0.95, bands=BANDS, floors=FLOORS, n_max=1000):
+    """The minimum-n tables of :func:`section` (:class:`atlas.coverage_questions.CoverageTable`),
+    the same objects, for writing them as files (:func:`write_table_files`)."""
+    bands, floors = tuple(tuple(b) for b in bands), tuple(floors)
+    if data is None:
+        return _default_content(level, bands, floors, n_max)[1]
+    return _content(data, level, bands, floors, n_max)[1]
+
+
+def _map(data, name, level, **size):
+    from atlas.coverage_charts import coverage_map
+
+    return coverage_map(data, interval=name, level=level, **size)
+
+
+def _provenance(data):
+    source = data.attrs.get("source", "approx-atlas")
+    return (f"Maps from the coverage cube ({source}); tables computed exactly on demand, every "
+            "integer n checked.")  # fmt: skip
+
+
+def write_coverage_page(
+    directory, *, cube=None, level=0.95, bands=BANDS, floors=FLOORS, n_max=1000
+):
+    """Write ``coverage.html``, ``coverage.md``, the SVG maps and the tables into ``directory``.
+
+    The main wiki page (:func:`atlas.sheets.write_wiki`) holds the same section; this writes it
+    alone, beside other files.
+
+    Parameters
+    ----------
+    directory : str or os.PathLike
+        An existing directory; files of the same names are replaced.
+    cube, level, bands, floors, n_max
+        As for :func:`section` (``cube`` is its ``data``).
+
+    Returns
+    -------
     list of pathlib.Path
         The files written.
     """
-    level = check_level(level)
     directory = Path(directory)
     if not directory.is_dir():
         raise FileNotFoundError(f"`directory` is not a directory: {str(directory)!r}.")
-    cube = _cube(cube)
-    tables = _tables(level, bands, floors, n_max)
-    written, images = [], []
-    tag = f"{round(level * 100):d}"
-    for name, fig in _maps(cube, level):
-        file = f"coverage_{name}_{tag}.svg"
-        written.append(figures.save_figure(fig, directory / file))
-        images.append((name, file))
-    for table in tables:
-        stem = f"coverage_min_n_{table.p_lo:g}_{table.p_hi:g}"
-        for fmt in ("md", "csv", "json"):
-            written.append(save_text(directory / f"{stem}.{fmt}", table.render(fmt)))
-    written.append(save_text(directory / "coverage.md", _markdown(level, images, tables)))
-    written.append(save_text(directory / "coverage.html", _html(level, images, tables)))
+    bands, floors = tuple(tuple(b) for b in bands), tuple(floors)
+    if cube is None:
+        content, tables = _default_content(level, bands, floors, n_max)
+    else:
+        content, tables = _content(cube, level, bands, floors, n_max)
+    written = save_charts(content, directory)
+    written += write_table_files(directory, tables)
+    written.append(save_text(directory / "coverage.md",
+                             "# " + section_markdown(content, level=1)[2:]))  # fmt: skip
+    written.append(save_text(directory / "coverage.html",
+                             page_html(TITLE, section_html(content, level=1))))  # fmt: skip
     return written
 
 
-def _markdown(level, images, tables):
-    lines = [f"# {TITLE}", "", *[f"- {note}" for note in NOTES], "", "## The intervals", ""]
-    lines += ["| interval | [lo(x), hi(x)] |", "|---|---|"]
-    lines += [f"| `{name}` | {text} |" for name, text in INTERVAL_DEFINITIONS]
-    lines += ["", "## Minimum n per interval and floor", ""]
+def write_table_files(directory, tables):
+    """The minimum-n tables as ``coverage_min_n_<lo>_<hi>.md``, ``.csv`` and ``.json``."""
+    written = []
     for table in tables:
-        lines += [table.render("md"), ""]
-    lines += [f"## Minimum coverage maps, nominal {level:g}", ""]
-    lines += [f"![{name}]({file})" for name, file in images]
-    lines += ["", f"**Caution.** {CAUTION}", ""]
-    return "\n".join(lines)
-
-
-def _html_table(table):
-    head = "".join(
-        f"<th>{html.escape(h)}</th>" for h in ["interval", *[f"floor {f:g}" for f in table.floors]]
-    )
-    rows = []
-    for name in table.intervals:
-        cells = "".join(
-            f'<td class="num">{html.escape(table.cell(name, f))}</td>' for f in table.floors
-        )
-        rows.append(f"<tr><td><code>{name}</code></td>{cells}</tr>")
-    caption = (
-        f"Minimum n, level {table.level:g}, every p in [{table.p_lo:g}, {table.p_hi:g}], every n "
-        f"checked up to {table.n_max} (*: the floor also held at a smaller n and failed again)"
-    )
-    return (
-        f"<table><caption>{html.escape(caption)}</caption><tr>{head}</tr>"
-        + "".join(rows)
-        + "</table>"
-    )
-
-
-def _html(level, images, tables):
-    notes = "".join(f"<li>{html.escape(note)}</li>" for note in NOTES)
-    defs = "".join(
-        f"<tr><td><code>{n}</code></td><td>{html.escape(t)}</td></tr>"
-        for n, t in INTERVAL_DEFINITIONS
-    )
-    figs = "".join(
-        f'<figure><img src="{file}" alt="minimum coverage map of the {name} interval">'
-        f"<figcaption>{name}: minimum coverage over each p-cell at the nominal {level:g} "
-        "(red below it, blue above)</figcaption></figure>"
-        for name, file in images
-    )
-    style = (
-        "body{font-family:'DejaVu Sans',Arial,sans-serif;margin:2em auto;max-width:70em;"
-        "padding:0 1em;line-height:1.45}table{border-collapse:collapse;margin:.8em 0}"
-        "th,td{border:1px solid #999;padding:.25em .6em}th{background:#e6e6e6}"
-        "td.num{text-align:right}caption{text-align:left;font-weight:bold}"
-        "figure img{width:100%;height:auto;border:1px solid #ccc}"
-        ".caution{border:2px solid #8b0000;padding:.6em 1em;background:#fff4f4}"
-    )
-    return (
-        '<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
-        f"<title>{html.escape(TITLE)}</title><style>{style}</style></head><body>"
-        f"<h1>{html.escape(TITLE)}</h1><ul>{notes}</ul>"
-        f"<h2>The intervals</h2><table><tr><th>interval</th><th>[lo(x), hi(x)]</th></tr>"
-        f"{defs}</table><h2>Minimum n per interval and floor</h2>"
-        + "".join(_html_table(t) for t in tables)
-        + f"<h2>Minimum coverage maps, nominal {level:g}</h2>{figs}"
-        f'<p class="caution"><strong>Caution.</strong> {html.escape(CAUTION)}</p>'
-        "</body></html>\n"
-    )
-
-
-def _text_figure(title, blocks):
-    """A landscape page with a title and paragraphs of monospace or plain text."""
-    mpl = figures.mpl()
-    fig = mpl.figure.Figure(figsize=(10.0, 7.4), dpi=100)
-    fig.text(0.04, 0.955, title, fontsize=15, weight="bold", va="top", gid="title")
-    y = 0.89
-    for text, mono in blocks:
-        size = 8.0 if mono else 9.5
-        body = text if mono else "\n".join(textwrap.wrap(text, 125))
-        fig.text(
-            0.04,
-            y,
-            body,
-            fontsize=size,
-            va="top",
-            linespacing=1.35,
-            family="DejaVu Sans Mono" if mono else "DejaVu Sans",
-        )
-        y -= (body.count("\n") + 1) * size * 1.35 / (72 * 7.4) + 0.02
-    fig.text(
-        0.04, 0.03, "\n".join(textwrap.wrap("Caution: " + CAUTION, 160)), **figures.FOOTER_STYLE
-    )
-    return fig
-
-
-def _aligned(table):
-    """A table as aligned monospace text with its caption above, for a sheet page."""
-    head = ["interval", *[f"floor {f:g}" for f in table.floors]]
-    rows = [head, *[[i, *[table.cell(i, f) for f in table.floors]] for i in table.intervals]]
-    widths = [max(len(r[k]) for r in rows) for k in range(len(head))]
-    lines = [
-        "  ".join(
-            c.ljust(w) if k == 0 else c.rjust(w)
-            for k, (c, w) in enumerate(zip(r, widths, strict=True))
-        )
-        for r in rows
-    ]
-    caption = (
-        f"Level {table.level:g}, every p in [{table.p_lo:g}, {table.p_hi:g}]; every integer n "
-        f"from 1 to {table.n_max} checked; '> {table.n_max}': fails at n = {table.n_max}; '*': "
-        "the floor also held at a smaller n and failed again (coverage is not monotone in n)."
-    )
-    return "\n".join([*textwrap.wrap(caption, 125), "", *lines]), True
+        stem = f"coverage_min_n_{table.p_lo:g}_{table.p_hi:g}"
+        for fmt in ("md", "csv", "json"):
+            written.append(save_text(Path(directory) / f"{stem}.{fmt}", table.render(fmt)))
+    return written
 
 
 def write_coverage_sheet(path, *, cube=None, level=0.95, bands=BANDS, floors=FLOORS, n_max=1000):
-    """Write the coverage sheet, a multi-page PDF, atomically.
-
-    Pages: the definitions and the argument for exactness, the minimum-n tables, then a
-    minimum-coverage map per interval. Parameters as :func:`write_coverage_page`; ``path`` ends
-    in ``.pdf``.
+    """Write the coverage section alone as a PDF, atomically (the main sheet holds the same
+    pages). Parameters as :func:`write_coverage_page`; ``path`` ends in ``.pdf``.
 
     Returns
     -------
     pathlib.Path
     """
-    mpl = figures.mpl()
-    from matplotlib.backends.backend_pdf import PdfPages
-
     path = Path(path)
     if path.suffix.lower() != ".pdf":
         raise ValueError(f"`path` must end in '.pdf'; got {str(path)!r}.")
-    level = check_level(level)
-    with replacing(path) as tmp:
-        cube = _cube(cube)
-        tables = _tables(level, bands, floors, n_max)
-        defs = "\n".join(f"{name:<16} {text}" for name, text in INTERVAL_DEFINITIONS)
-        pages = [_text_figure(TITLE, [*[(note, False) for note in NOTES], (defs, True)])]
-        title = "Minimum n per interval and floor"
-        pages.append(_text_figure(title, [_aligned(t) for t in tables]))
-        pages += [fig for _, fig in _maps(cube, level)]
-        metadata = {"Title": "approx-atlas coverage sheet", "CreationDate": None}
-        with mpl.rc_context({"pdf.fonttype": 42}), PdfPages(tmp, metadata=metadata) as pdf:
-            for fig in pages:
-                pdf.savefig(fig, dpi=figures.PNG_DPI)
-    return path
+    content = section(cube, level=level, bands=bands, floors=floors, n_max=n_max)
+    return write_pdf(content, path)

@@ -98,7 +98,7 @@ def tail_error_maps(
         lines = ax.contour(x, n_axis, values[i], levels=TOLERANCES, colors="white",
                            linewidths=0.9)  # fmt: skip
         lines.set_gid("tolerance-contours")
-        ax.clabel(lines, fmt=lambda v: f"{100 * v:g}%", fontsize=7)
+        ax.clabel(lines, fmt=lambda v: f"{100 * v:g}%", fontsize=8)
         ax.set_yscale("log")
         ticks = [0.001, 0.01, 0.1, 0.5, 0.9, 0.99, 0.999]
         ax.set_xticks([np.log(t / (1 - t)) for t in ticks], [format_p(t) for t in ticks])

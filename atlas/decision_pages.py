@@ -7,23 +7,31 @@ printable PDF, computed on demand.
 
 The page holds the definitions (the contract of :mod:`atlas.tails` and :mod:`atlas.sizes`), the
 maps of the tail relative error, the size of the invented inspection lot's test against alpha,
-the minimum-n tables and the rule audits, with the caution. Nothing reads an atlas file; the
-main sheet and wiki page (:mod:`atlas.sheets`) can take these pieces in.
+the minimum-n tables and the rule audits, with the caution (:func:`section`); the main sheet and
+wiki page (:mod:`atlas.sheets`) compose it with the others, set by :mod:`atlas.sections`.
+Nothing reads an atlas file.
 """
 
-import html
-import textwrap
+import functools
 from pathlib import Path
 
-from atlas import __version__, cube, figures
+from atlas import __version__
+from atlas.approximations import check_method
 from atlas.decision_charts import size_chart, tail_error_maps
 from atlas.decision_rules import size_rule_audit, tail_rule_audit
+from atlas.decision_search import N_MAX
 from atlas.decision_tables import size_table, tail_table
-from atlas.files import replacing, replacing_directory, save_text
+from atlas.sections import Chart, Section, Table, write_page, write_pdf
 
-__all__ = ["DEFINITIONS", "write_decision_page", "write_decision_sheet"]
+__all__ = ["DEFINITIONS", "section", "write_decision_page", "write_decision_sheet"]
 
+KEY = "tests"
 TITLE = "Tail p-values and tests: how far the shortcut goes wrong"
+INTRO = (
+    "An absolute error misleads where the approximation decides something: a tail of 0.002 "
+    "approximated as 0.006 is off by 0.004 but three times too large. This section measures "
+    "the error of what a p-value shortcut, a control limit or a test computes.",
+)
 DEMO = (80, 0.025)  # the invented inspection lot of the demo: 80 fasteners, claimed rate 2.5%
 DEFINITIONS = (
     ("Model", "X ~ Bin(n, p), q = 1 − p, F(k) = P(X ≤ k), G(k) an approximation of F, b the "
@@ -39,79 +47,61 @@ DEFINITIONS = (
 )  # fmt: skip
 
 
-def _content(method):
-    """Figures (name, caption, factory), tables and audits of the page."""
+@functools.cache
+def section(method="normal_cc", *, n_max=N_MAX):
+    """The section on tail p-values and tests, as content (:class:`atlas.sections.Section`).
+
+    The maps of the tail relative error, the size of the invented lot's test against alpha,
+    the minimum-n tables (every integer n up to ``n_max``), the rule audits, the definitions.
+    Nothing reads an atlas file: every number is computed on demand (about a minute and a half
+    at ``n_max`` = 10^5, most of it the tail table); kept once made, per argument.
+
+    Parameters
+    ----------
+    method : str, optional
+        One of :data:`atlas.METHODS`.
+    n_max : int, optional
+        The largest n of the minimum-n tables.
+
+    Returns
+    -------
+    atlas.sections.Section
+    """
+    check_method(method)
     n, p0 = DEMO
-    charts = [
-        ("decision_tail_maps.svg", f"Tail relative error of {method}, one panel per level α",
-         lambda: tail_error_maps(method=method)),
-        ("decision_size_lot.svg",
-         f"Invented lot: n = {n}, claimed rate p0 = {p0}; upper one-sided test, size against α",
-         lambda: size_chart(n, p0, method=method, alternative="greater")),
-    ]  # fmt: skip
-    tables = [tail_table(method=method), size_table(method=method, alternative="greater")]
-    audits = [
+    charts = (
+        Chart("decision_tail_maps.svg", f"Tail relative error of {method}, one panel per level α",
+              lambda **size: tail_error_maps(method=method, **size)),
+        Chart("decision_size_lot.svg",
+              f"Invented lot: n = {n}, claimed rate p0 = {p0}; upper one-sided test, size "
+              "against α",
+              lambda **size: size_chart(n, p0, method=method, alternative="greater", **size)),
+    )  # fmt: skip
+    tables = []
+    for table in (tail_table(method=method, n_max=n_max),
+                  size_table(method=method, alternative="greater", n_max=n_max)):  # fmt: skip
+        header, rows = table.to_rows()
+        header[0] = f"p \\ {table.column}"
+        tables.append(Table(table.title, tuple(header), tuple(tuple(r) for r in rows),
+                            tuple(table.notes())))  # fmt: skip
+    audits = (
         ("Rules of thumb: the tail relative error they admit", tail_rule_audit(method=method)),
         ("Rules of thumb: the upper one-sided test's size they admit",
          size_rule_audit(method=method, alternative="greater")),
-    ]  # fmt: skip
-    return charts, tables, audits
+    )  # fmt: skip
+    lists = tuple((f"{title} (grid: {rows[0].grid})", tuple(r.explain() for r in rows))
+                  for title, rows in audits)  # fmt: skip
+    return Section(KEY, TITLE, intro=INTRO, definitions=DEFINITIONS, charts=charts,
+                   tables=tuple(tables), lists=lists, provenance=_provenance())  # fmt: skip
 
 
 def _provenance():
     return f"Computed exactly on demand by approx-atlas {__version__}; no atlas file is read."
 
 
-def _markdown(images, tables, audits):
-    out = [f"# {TITLE}", ""]
-    out += [f"- **{term}.** {text}" for term, text in DEFINITIONS] + [""]
-    for name, caption in images:
-        out += [f"![{caption}]({name})", "", f"*{caption}*", ""]
-    for table in tables:
-        out += [table.to_markdown(), ""]
-    for title, rows in audits:
-        out += [f"**{title}** (grid: {rows[0].grid})", ""]
-        out += [f"- {row.explain()}" for row in rows] + [""]
-    out += [_provenance(), "", f"> **Caution.** {cube.CAUTION}", ""]
-    return "\n".join(out)
-
-
-def _html(images, tables, audits):
-    esc = html.escape
-    body = [f"<h1>{esc(TITLE)}</h1>", "<dl>"]
-    body += [f"<dt>{esc(term)}</dt><dd>{esc(text)}</dd>" for term, text in DEFINITIONS]
-    body.append("</dl>")
-    for name, caption in images:
-        body.append(f'<figure><img src="{esc(name)}" alt="{esc(caption)}" style="max-width:100%">'
-                    f"<figcaption>{esc(caption)}</figcaption></figure>")  # fmt: skip
-    for table in tables:
-        header, rows = table.to_rows()
-        body.append(
-            f"<table><caption>{esc(table.title)}</caption><thead><tr>"
-            + "".join(f"<th>{esc(h)}</th>" for h in header)
-            + "</tr></thead><tbody>"
-        )
-        body += ["<tr>" + "".join(f"<td>{esc(c)}</td>" for c in row) + "</tr>" for row in rows]
-        body.append("</tbody></table>")
-        body += [f"<p><small>{esc(line)}</small></p>" for line in table.notes()]
-    for title, rows in audits:
-        body.append(f"<h2>{esc(title)}</h2><p><small>Grid: {esc(rows[0].grid)}</small></p><ul>")
-        body += [f"<li>{esc(row.explain())}</li>" for row in rows]
-        body.append("</ul>")
-    body += [f"<p>{esc(_provenance())}</p>",
-             f"<p><strong>Caution.</strong> {esc(cube.CAUTION)}</p>"]  # fmt: skip
-    style = (
-        "body{font-family:sans-serif;max-width:60em;margin:2em auto;color:#222}"
-        "table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #bbb;"
-        "padding:.2em .6em;text-align:right}caption{font-weight:bold;text-align:left}"
-    )
-    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
-            f"<title>{esc(TITLE)}</title><style>{style}</style></head><body>\n"
-            + "\n".join(body) + "\n</body></html>\n")  # fmt: skip
-
-
 def write_decision_page(directory, *, method="normal_cc", overwrite=True):
-    """Write the page: ``index.html``, ``index.md`` and the SVG charts, into ``directory``.
+    """Write the section alone as a page: ``index.html``, ``index.md`` and the SVG charts,
+    into ``directory`` (the main wiki page holds the same section, :mod:`atlas.sheets`).
 
     Parameters
     ----------
@@ -126,37 +116,12 @@ def write_decision_page(directory, *, method="normal_cc", overwrite=True):
     list of pathlib.Path
         The files written.
     """
-    directory = Path(directory)
-    with replacing_directory(directory, overwrite=overwrite) as folder:
-        charts, tables, audits = _content(method)
-        images = []
-        for name, caption, make in charts:
-            figures.save_figure(make(), folder / name)
-            images.append((name, caption))
-        save_text(folder / "index.md", _markdown(images, tables, audits))
-        save_text(folder / "index.html", _html(images, tables, audits))
-    return [directory / name for name, _ in images] + [directory / "index.md",
-                                                       directory / "index.html"]  # fmt: skip
-
-
-def _text_figure(title, paragraphs):
-    """A page of text: a title and wrapped paragraphs (A4 landscape)."""
-    matplotlib = figures.mpl()
-    fig = matplotlib.figure.Figure(figsize=(11.69, 8.27))
-    fig.text(0.04, 0.95, title, fontsize=14, va="top", weight="bold")
-    y = 0.89
-    for para in paragraphs:
-        lines = textwrap.wrap(para, 150) or [""]
-        fig.text(0.04, y, "\n".join(lines), fontsize=8.5, va="top", family="monospace"
-                 if para.startswith("|") else None, linespacing=1.3)  # fmt: skip
-        y -= 0.022 * len(lines) + 0.012
-    fig.text(0.04, 0.03, f"{_provenance()} Caution: {cube.CAUTION}", fontsize=7,
-             color=figures.TEXT_COLOUR, wrap=True)  # fmt: skip
-    return fig
+    return write_page(section(method), directory, overwrite=overwrite)
 
 
 def write_decision_sheet(path, *, method="normal_cc"):
-    """Write the page as a PDF: definitions, charts, tables and rule audits.
+    """Write the section alone as a PDF: definitions, charts, tables and rule audits (the main
+    sheet holds the same pages, :mod:`atlas.sheets`).
 
     Parameters
     ----------
@@ -168,22 +133,6 @@ def write_decision_sheet(path, *, method="normal_cc"):
     -------
     pathlib.Path
     """
-    from matplotlib.backends.backend_pdf import PdfPages
-
-    path = Path(path)
-    if path.suffix.lower() != ".pdf":
+    if Path(path).suffix.lower() != ".pdf":
         raise ValueError(f"`path` must end in '.pdf'; got {str(path)!r}.")
-    charts, tables, audits = _content(method)
-    pages = [_text_figure(TITLE, [f"{term}. {text}" for term, text in DEFINITIONS])]
-    pages += [make() for _, _, make in charts]
-    table_text = []
-    for table in tables:
-        table_text += [table.title] + table.to_markdown().splitlines()[2:] + [""]
-    pages.append(_text_figure("Minimum n", table_text))
-    for title, rows in audits:
-        pages.append(_text_figure(title, [f"Grid: {rows[0].grid}"]
-                                  + [row.explain() for row in rows]))  # fmt: skip
-    with replacing(path) as tmp, PdfPages(tmp, metadata={"CreationDate": None}) as pdf:
-        for fig in pages:
-            pdf.savefig(fig)
-    return path
+    return write_pdf(section(method), path)

@@ -5,9 +5,10 @@
 - :func:`size_table`: for each p0 and largest size, the smallest n from which the test at
   level alpha keeps its size within it (:func:`atlas.decisions.size_min_n`).
 
-Each p is searched once for all the tolerances (:func:`atlas.decisions.min_ns`). A cell is the
-n; ``*`` marks an n above ``dense_to`` (only a ladder of n about 5% apart checked above it), and
-``> n_max`` a tolerance not met at ``n_max``. CSV, Markdown and JSON, as the threshold tables.
+Each p is searched once for all the tolerances (:func:`atlas.decision_search.min_ns`, values
+shared). A cell is the n from which every integer n up to ``n_max`` passes (each evaluated or
+covered by a proven bound); ``> n_max`` marks a tolerance not met at ``n_max``. CSV, Markdown
+and JSON, as the threshold tables.
 """
 
 import csv
@@ -16,11 +17,12 @@ import json
 from dataclasses import dataclass
 
 from atlas.approximations import check_method
-from atlas.decisions import DENSE_TO, N_MAX, _alpha, _point, check_rel_tol, min_ns
+from atlas.decision_search import DENSE_TO, N_MAX, min_ns, size_search, tail_search
+from atlas.decisions import _alpha, _point, _search_options, check_rel_tol
 from atlas.notation import format_p
-from atlas.sizes import cell_sizes, check_alternative
+from atlas.sizes import check_alternative
 from atlas.tables import markdown_table
-from atlas.tails import cell_tail_errors, check_tail
+from atlas.tails import check_tail
 
 __all__ = ["DecisionTable", "size_table", "tail_table"]
 
@@ -55,18 +57,16 @@ class DecisionTable:
     def _text(result):
         if result.n is None:
             return f"> {result.n_max}"
-        return f"{result.n}{'' if result.exact_for_integers else '*'}"
+        return f"{result.n}"
 
     def notes(self):
         """The footnotes, as lines."""
         first = self.cells[0][0]
-        if first.n_max <= first.dense_to:
-            checked = f"Every integer n up to {first.n_max} checked"
-        else:
-            checked = (f"Every integer n up to {first.dense_to} checked; * above it only n "
-                       f"about 5% apart up to {first.n_max}")  # fmt: skip
         return [
-            f"{checked}; > {first.n_max}: not met at {first.n_max}. Computed exactly on demand."
+            f"Each n: every integer from it to {first.n_max} is within the limit (each "
+            f"evaluated, or above {first.dense_to} covered by a proven bound) and the one "
+            f"before is not; > {first.n_max}: not met at {first.n_max}. Computed exactly on "
+            "demand."
         ]
 
     def to_rows(self):
@@ -107,8 +107,9 @@ class DecisionTable:
                 {
                     "p": p,
                     "min_n": [c.n for c in row],
-                    "exact_for_integers": [c.exact_for_integers for c in row],
                     "previous": [c.previous for c in row],
+                    "evaluated": [c.evaluated for c in row],
+                    "certified": [c.certified for c in row],
                 }
                 for p, row in zip(self.ps, self.cells, strict=True)
             ],
@@ -174,14 +175,9 @@ def tail_table(
     ps = _ps(ps, "ps")
     alpha, method, tail = _alpha(alpha), check_method(method), check_tail(tail)
 
-    def value(p):
-        def at(n):
-            lower, upper = cell_tail_errors(n, p, method, [alpha])
-            return {"lower": lower[0], "upper": upper[0]}.get(tail, max(lower[0], upper[0]))
-
-        return at
-
-    cells = tuple(tuple(min_ns(value(p), tols, n_max, dense_to)) for p in ps)
+    n_max, dense_to = _search_options(n_max, dense_to)
+    cells = tuple(tuple(min_ns(tail_search(p, alpha, method, tail), tols, n_max, dense_to))
+                  for p in ps)  # fmt: skip
     words = {"lower": "lower tail", "upper": "upper tail", "both": "tail"}[tail]
     title = (f"Minimum n: every {words} of at least {format_p(alpha)} within the relative "
              f"tolerance ({method})")  # fmt: skip
@@ -222,10 +218,9 @@ def size_table(
     alpha = _alpha(alpha)
     method, alternative = check_method(method), check_alternative(alternative)
 
-    def value(p):
-        return lambda n: float(cell_sizes(n, p, method, [alpha], alternative)[0][0])
-
-    cells = tuple(tuple(min_ns(value(p), limits, n_max, dense_to)) for p in ps)
+    n_max, dense_to = _search_options(n_max, dense_to)
+    cells = tuple(tuple(min_ns(size_search(p, alpha, method, alternative), limits, n_max,
+                               dense_to)) for p in ps)  # fmt: skip
     title = (f"Minimum n: the {alternative} test at level {format_p(alpha)} keeps its size "
              f"within the limit ({method} p-values)")  # fmt: skip
     return DecisionTable(title, "largest size", limits, ps, cells)

@@ -11,10 +11,11 @@ Nothing here reads the cube: every number is computed exactly by :mod:`atlas.tai
 :mod:`atlas.sizes` (a few milliseconds per (n, p) at n = 10^6).
 
 Minimum n. Neither metric is monotone in n (the lattice makes the size of a test a sawtooth in
-n), so "the minimum n" is the smallest N such that every checked n from N up to ``n_max``
-passes. Every integer n up to ``dense_to`` is checked; above it, n on a geometric ladder (each
-about 5 % above the last) and ``n_max`` itself. The answer says which: ``exact_for_integers``
-is true when N <= ``dense_to``, and ``previous`` is the largest checked n that fails.
+n), so "the minimum n" is the smallest N such that every integer n from N up to ``n_max``
+passes, and N - 1 fails. Every integer n up to ``dense_to`` is evaluated; above it a ladder of
+n about 5% apart says where to look, and every integer between is evaluated or covered by a
+proven bound (:mod:`atlas.decision_search`, which holds the proofs). ``previous`` is N - 1;
+``runs`` says where the n that pass are not one run from N upward.
 """
 
 from dataclasses import dataclass
@@ -22,6 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from atlas.approximations import METHODS, check_method
+from atlas.decision_search import DENSE_TO, N_MAX, MinN, min_ns, size_search, tail_search
 from atlas.engine import check_n, check_p
 from atlas.sizes import cell_sizes, check_alternative
 from atlas.tails import cell_tail_errors, check_alpha, check_tail
@@ -38,9 +40,6 @@ __all__ = [
     "tail_verdict",
 ]
 
-DENSE_TO = 2048
-N_MAX = 10**5
-_LADDER = 1.05
 
 _TAIL_WORDS = {
     "lower": "lower tail P(X <= k)",
@@ -286,53 +285,6 @@ def size_verdict(n, p0, alpha, *, max_size=None, method="normal_cc", alternative
     return SizeVerdict(size <= max_size, size, exact, alpha, max_size, alternative, method, n, p0)
 
 
-@dataclass(frozen=True)
-class MinN:
-    """The smallest n from which a condition holds at every checked n up to ``n_max``.
-
-    Attributes
-    ----------
-    n : int or None
-        The answer, or None when ``n_max`` itself fails.
-    previous : int or None
-        The largest checked n that fails (None when every checked n passes).
-    dense_to : int
-        Every integer n up to here is checked.
-    n_max : int
-        The largest n checked.
-    exact_for_integers : bool
-        True when ``n <= dense_to``: every integer from ``n`` to ``dense_to`` passes, and
-        ``n - 1`` fails (or ``n`` is 1). Above ``dense_to`` only the ladder of n (each about 5%
-        above the last) is checked.
-    """
-
-    n: object
-    previous: object
-    dense_to: int
-    n_max: int
-    exact_for_integers: bool
-
-    def explain(self):
-        """What was checked, in one line."""
-        if self.n is None:
-            return f"at no n up to {self.n_max}: n = {self.n_max} fails"
-        if self.exact_for_integers:
-            above = (
-                f", and above it every n on a ladder about 5% apart up to {self.n_max}"
-                if self.n_max > self.dense_to
-                else ""
-            )
-            fails = "" if self.previous is None else f"; n = {self.previous} fails"
-            return (
-                f"from n = {self.n}: every integer n from {self.n} to "
-                f"{min(self.dense_to, self.n_max)} checked{above}{fails}"
-            )
-        return (
-            f"from n = {self.n}: beyond n = {self.dense_to} only n on a ladder about 5% apart "
-            f"up to {self.n_max} are checked; n = {self.previous} fails"
-        )
-
-
 def _renamed_n(value, name):
     """check_n for another integer argument, its messages naming ``name``."""
     try:
@@ -341,59 +293,10 @@ def _renamed_n(value, name):
         raise type(error)(str(error).replace("`n`", f"`{name}`")) from None
 
 
-def _ladder(dense_to, n_max):
-    """Every integer to ``dense_to``, then n about 5% apart, and ``n_max``; increasing."""
-    points = list(range(1, min(dense_to, n_max) + 1))
-    n = dense_to
-    while True:
-        n = max(n + 1, int(round(n * _LADDER)))
-        if n >= n_max:
-            break
-        points.append(n)
-    if n_max > dense_to:
-        points.append(n_max)
-    return sorted(set(points))
-
-
-def min_ns(value, limits, n_max, dense_to):
-    """For each limit, the smallest n from which ``value(n) <= limit`` at every checked n.
-
-    The ladder is searched from the top down, each n evaluated once for all the limits, until
-    every limit has met a failing n (or the bottom is reached).
-
-    Parameters
-    ----------
-    value : callable
-        n -> the metric at n.
-    limits : sequence of float
-    n_max, dense_to : int
-        As for :func:`tail_min_n`.
-
-    Returns
-    -------
-    list of MinN
-        One per limit.
-    """
+def _search_options(n_max, dense_to):
     n_max = int(_one(n_max, lambda v: _renamed_n(v, "n_max"), "n_max", "integer"))
     dense_to = int(_one(dense_to, lambda v: _renamed_n(v, "dense_to"), "dense_to", "integer"))
-    points = _ladder(dense_to, n_max)
-    previous = [None] * len(limits)
-    pending = list(range(len(limits)))
-    for i in range(len(points) - 1, -1, -1):
-        if not pending:
-            break
-        got = value(points[i])
-        for j in [j for j in pending if not got <= limits[j]]:
-            previous[j] = points[i]
-            pending.remove(j)
-    out = []
-    for failing in previous:
-        if failing == n_max:
-            out.append(MinN(None, failing, dense_to, n_max, False))
-            continue
-        answer = points[0] if failing is None else points[points.index(failing) + 1]
-        out.append(MinN(answer, failing, dense_to, n_max, answer <= dense_to))
-    return out
+    return n_max, dense_to
 
 
 def tail_min_n(
@@ -408,7 +311,9 @@ def tail_min_n(
     n_max : int, optional
         The largest n checked (default 10^5).
     dense_to : int, optional
-        Every integer n up to here is checked (default 2048); above it, n about 5% apart.
+        Every integer n up to here is evaluated (default 2048); above it, a ladder of n about
+        5% apart says where to look and every integer between is evaluated or covered by a
+        bound (:mod:`atlas.decision_search`).
 
     Returns
     -------
@@ -422,7 +327,9 @@ def tail_min_n(
     _, p = _point(1, p)
     alpha, rel_tol = _alpha(alpha), check_rel_tol(rel_tol)
     method, tail = check_method(method), check_tail(tail)
-    return min_ns(lambda n: _tail_value(n, p, alpha, method, tail), [rel_tol], n_max, dense_to)[0]
+    n_max, dense_to = _search_options(n_max, dense_to)
+    search = tail_search(p, alpha, method, tail)
+    return min_ns(search, [rel_tol], n_max, dense_to, runs=True)[0]
 
 
 def size_min_n(
@@ -458,10 +365,9 @@ def size_min_n(
     max_size = _max_size(max_size, alpha)
     method, alternative = check_method(method), check_alternative(alternative)
 
-    def size(n):
-        return float(cell_sizes(n, p0, method, [alpha], alternative)[0][0])
-
-    return min_ns(size, [max_size], n_max, dense_to)[0]
+    n_max, dense_to = _search_options(n_max, dense_to)
+    search = size_search(p0, alpha, method, alternative)
+    return min_ns(search, [max_size], n_max, dense_to, runs=True)[0]
 
 
 def _methods(methods):

@@ -14,13 +14,19 @@ import html
 import math
 import os
 import re
-import textwrap
 from pathlib import Path
 
 from atlas import charts, cube, figures
 from atlas.engine import METRICS, check_metric
-from atlas.figures import METHOD_LABELS, TEXT_COLOUR, provenance_line
+from atlas.figures import METHOD_LABELS, provenance_line
 from atlas.files import replacing, replacing_directory, save_text
+from atlas.layout import Flow as _Flow
+from atlas.layout import draw_table as _draw_table
+from atlas.layout import page_number as _page_number
+from atlas.layout import text_page as _text_page
+from atlas.layout import wrap as _wrap
+from atlas.sections import CSS, save_charts, section_html, section_markdown, section_pages
+from atlas.sections import html_table as _html_table
 from atlas.tables import (
     AUDIT_TOLS,
     TABLE_PS,
@@ -56,25 +62,6 @@ def _where(atlas):
 # ---- HTML pieces ---------------------------------------------------------------------------
 
 
-def _html_table(header, rows, *, numeric_from=1, caption=None):
-    out = ["<table>"]
-    if caption:
-        out.append(f"<caption>{html.escape(caption)}</caption>")
-    out.append("<thead><tr>" + "".join(f"<th>{html.escape(h)}</th>" for h in header)
-               + "</tr></thead><tbody>")  # fmt: skip
-    for row in rows:
-        cells = []
-        for k, cell in enumerate(row):
-            cls = ' class="num"' if k >= numeric_from else ""
-            # A comparison stays on one line ("np >= 10"); edgeworth_cc may break after "_".
-            text = re.sub(r" (>=|<=|==|!=|>|<|=) ", "\u00a0\\1\u00a0", str(cell))
-            text = html.escape(text).replace("_", "_<wbr>")
-            cells.append(f"<td{cls}>{text}</td>")
-        out.append("<tr>" + "".join(cells) + "</tr>")
-    out.append("</tbody></table>")
-    return "\n".join(out)
-
-
 # ---- the printable sheet -------------------------------------------------------------------
 
 
@@ -95,8 +82,6 @@ PAPERS = {"a4": (297 / 25.4, 210 / 25.4), "letter": (11.0, 8.5)}
 LETTER_TERRITORIES = frozenset(
     {"US", "CA", "MX", "PH", "BO", "CL", "CO", "CR", "GT", "NI", "PA", "PR", "SV", "VE"}
 )
-_CHAR_WIDTH = 0.55  # DejaVu Sans: mean advance of a character, in em (monospace: 0.6)
-_TOP, _BOTTOM = 0.89, 0.13  # the body of a text page, as fractions of its height
 
 
 def default_paper(environ=None):
@@ -131,83 +116,12 @@ def check_paper(paper):
     return figures.check_choice(paper, "paper", tuple(PAPERS))
 
 
-def _text_page(title, size):
-    mpl = figures.mpl()
-    fig = mpl.figure.Figure(figsize=size, dpi=100)
-    fig.text(0.04, 0.955, title, fontsize=15, weight="bold", va="top", gid="title")
-    return fig
-
-
-class _Flow:
-    """Paragraphs set from the top of a text page down, a new page when one is full."""
-
-    def __init__(self, title, size):
-        self.title = title
-        self.size = size
-        self.pages = []
-        self._new_page()
-
-    def _new_page(self):
-        suffix = " (continued)" if self.pages else ""
-        self.fig = _text_page(self.title + suffix, self.size)
-        self.pages.append(self.fig)
-        self.y = _TOP
-
-    def para(self, text, *, left=0.04, right=0.96, size=9.5, mono=False, term=None, gap=0.012,
-             **style):  # fmt: skip
-        width_pt = (right - left) * self.size[0] * 72
-        chars = max(20, int(width_pt / (size * (0.63 if mono else _CHAR_WIDTH))))
-        body = "\n".join(textwrap.fill(part, chars) if part else "" for part in text.split("\n"))
-        lines = body.count("\n") + 1
-        height = lines * size * 1.35 / (72 * self.size[1])
-        if self.y - height < _BOTTOM and self.y < _TOP:
-            self._new_page()
-        if term is not None:
-            self.fig.text(0.04, self.y, term, fontsize=size, weight="bold", va="top",
-                          color=style.get("color", "black"))  # fmt: skip
-        self.fig.text(left, self.y, body, fontsize=size, va="top", linespacing=1.35,
-                      family="DejaVu Sans Mono" if mono else "DejaVu Sans", **style)  # fmt: skip
-        self.y -= height + gap
-
-
-def _draw_table(fig, rect, header, rows, *, title=None, fontsize=8.5, col_widths=None,
-                text_columns=1):  # fmt: skip
-    """A table filling the rectangle (left, bottom, width, height) of the figure."""
-    ax = fig.add_axes(rect)
-    ax.set_axis_off()
-    if title:
-        ax.set_title(title, loc="left", fontsize=10.5, weight="bold", pad=4)
-    table = ax.table(cellText=rows, colLabels=header, bbox=(0, 0, 1, 1), cellLoc="right",
-                     colLoc="right", colWidths=col_widths)  # fmt: skip
-    table.auto_set_font_size(False)
-    table.set_fontsize(fontsize)
-    for (r, c), cell in table.get_celld().items():
-        cell.set_edgecolor("#999999")
-        cell.set_linewidth(0.5)
-        cell.PAD = 0.04
-        if r == 0:
-            cell.set_facecolor("#E6E6E6")
-            cell.get_text().set_weight("bold")
-        if c < text_columns:
-            cell.get_text().set_horizontalalignment("left")
-    return ax
-
-
-def _page_number(fig, page, pages):
-    fig.text(0.985, 0.985, f"page {page} of {pages}", fontsize=8, ha="right", va="top",
-             color=TEXT_COLOUR, gid="page-number")  # fmt: skip
-
-
 def _page_marks(fig, ds, page, pages):
     """The provenance and caution at the foot of a page, its number at the top right."""
     chars = int(0.92 * fig.get_figwidth() * 72 / (figures.FOOTER_STYLE["fontsize"] * 0.6))
     fig.text(0.04, 0.02, "\n".join(figures.footer_lines(ds, chars)), va="bottom", gid="footer",
              **figures.FOOTER_STYLE)  # fmt: skip
     _page_number(fig, page, pages)
-
-
-def _wrap(text, fontsize, page_width, width=0.92):
-    return textwrap.fill(text, int(width * page_width * 72 / (fontsize * _CHAR_WIDTH)))
 
 
 def _tables_page(tables, size):
@@ -277,37 +191,59 @@ def _definitions_pages(ds, where, size):
     return pages + flow.pages
 
 
+def default_sections(method="normal_cc", *, coverage=None):
+    """The sections the sheet and the wiki page add to the error atlas's: tail p-values and
+    tests (:func:`atlas.decision_pages.section`, for ``method``) and confidence intervals
+    (:func:`atlas.coverage_pages.section`, its maps from ``coverage``, by default
+    :func:`atlas.coverage_pages.load_coverage_data`). Each is made once per process and
+    arguments (about two minutes in all the first time)."""
+    from atlas import coverage_pages, decision_pages
+
+    return (decision_pages.section(method), coverage_pages.section(coverage))
+
+
+def _sections(sections, chosen):
+    return default_sections(chosen[0]) if sections is None else tuple(sections)
+
+
 def sheet_figures(atlas, *, methods=None, metric="interval", tols=TABLE_TOLS, ps=TABLE_PS,
-                  audit_tols=AUDIT_TOLS, paper=None):  # fmt: skip
+                  audit_tols=AUDIT_TOLS, paper=None, sections=None):  # fmt: skip
     """The pages of the reference sheet, as a list of Figures (see :func:`write_sheet`)."""
     ds = figures.as_dataset(atlas)
     check_metric(metric)
     size = PAPERS[check_paper(paper)]
     chosen = _headline(ds, methods)
+    extra = _sections(sections, chosen)
     pages = [charts.error_map(ds, method=m, metric=metric, width=size[0], height=size[1])
              for m in chosen]  # fmt: skip
     tables = [threshold_table(atlas, tols, ps, method=m, metric=x) for m in chosen
               for x in METRICS]  # fmt: skip
     pages.append(_tables_page(tables, size))
     pages += _audit_pages(rule_audit(ds, methods=chosen, tols=audit_tols), size)
+    own_marks = set(range(1, len(chosen) + 1))  # the maps carry their own footer
+    for section in extra:
+        part = section_pages(section, size)
+        own_marks.update(range(len(pages) + 1, len(pages) + len(part) + 1))
+        pages += part
     pages += _definitions_pages(ds, _where(atlas), size)
     for k, fig in enumerate(pages, start=1):
-        if k > len(chosen):  # the maps carry their own footer
-            _page_marks(fig, ds, k, len(pages))
-        else:
+        if k in own_marks:
             _page_number(fig, k, len(pages))
+        else:
+            _page_marks(fig, ds, k, len(pages))
     return pages
 
 
 def write_sheet(atlas, path, *, methods=None, metric="interval", tols=TABLE_TOLS, ps=TABLE_PS,
-                paper=None):  # fmt: skip
+                paper=None, sections=None):  # fmt: skip
     """Write the printable multi-page PDF reference sheet, atomically.
 
     Pages: an error map for each headline method (normal_cc and edgeworth_cc when the atlas
-    holds them), the threshold tables (both metrics), the rule audit, then the definitions,
-    the provenance (the atlas's attributes) and the caution. Every page is the paper's size
-    (landscape) and prints at 100 %; no text is smaller than 8 points and no line is cut short
-    (long ones wrap).
+    holds them), the threshold tables (both metrics), the rule audit, the sections on tail
+    p-values and tests and on confidence intervals (definitions, charts, tables, rule audits,
+    caution), then the definitions, the provenance (the atlas's attributes) and the caution.
+    Every page is the paper's size (landscape) and prints at 100 %; no text is smaller than 8
+    points and no line is cut short (long ones wrap).
 
     Parameters
     ----------
@@ -323,6 +259,9 @@ def write_sheet(atlas, path, *, methods=None, metric="interval", tols=TABLE_TOLS
     paper : {"a4", "letter"}, optional
         The paper; default :func:`default_paper`, from the locale (US Letter for the
         territories of ``LETTER_TERRITORIES``, else A4).
+    sections : sequence of atlas.sections.Section, optional
+        The sections after the rule audit; default :func:`default_sections` (pass ``()`` for
+        the error atlas's pages alone).
 
     Returns
     -------
@@ -344,7 +283,7 @@ def write_sheet(atlas, path, *, methods=None, metric="interval", tols=TABLE_TOLS
     paper = check_paper(paper)
     with replacing(path) as tmp:  # refuses a missing directory before any drawing
         pages = sheet_figures(atlas, methods=methods, metric=metric, tols=tols, ps=ps,
-                              paper=paper)  # fmt: skip
+                              paper=paper, sections=sections)  # fmt: skip
         metadata = {"Title": "approx-atlas reference sheet", "CreationDate": None}
         with mpl.rc_context({"pdf.fonttype": 42}), PdfPages(tmp, metadata=metadata) as pdf:
             for fig in pages:
@@ -353,26 +292,6 @@ def write_sheet(atlas, path, *, methods=None, metric="interval", tols=TABLE_TOLS
 
 
 # ---- the wiki page -------------------------------------------------------------------------
-
-_CSS = """
-body { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; margin: 2em auto;
-       max-width: 70em; padding: 0 1em; color: #111; line-height: 1.45; }
-h1 { font-size: 1.7em; } h2 { margin-top: 2em; border-bottom: 1px solid #999; }
-figure { margin: 1.5em 0; } figure img { width: 100%; height: auto; border: 1px solid #ccc; }
-figcaption { font-size: 0.9em; color: #333; }
-p, li, dd, dt, caption, code { overflow-wrap: anywhere; }
-table { max-width: 100%; } td.num { white-space: nowrap; }
-table { border-collapse: collapse; margin: 0.8em 0 0.4em; font-size: 0.92em; }
-caption { text-align: left; font-weight: bold; padding-bottom: 0.3em; }
-th, td { border: 1px solid #999; padding: 0.25em 0.6em; }
-th { background: #e6e6e6; } td.num { text-align: right; font-variant-numeric: tabular-nums; }
-.caution { border: 2px solid #8b0000; padding: 0.6em 1em; background: #fff4f4; }
-.notes { font-size: 0.9em; color: #333; } code { font-size: 0.95em; }
-dl dt { font-weight: bold; margin-top: 0.5em; }
-@media print { figure { page-break-inside: avoid; } }
-/* last, so that it overrides the rules above on a narrow window */
-@media (max-width: 900px) { table { font-size: 0.74em; } th, td { padding: 0.15em 0.3em; } }
-"""
 
 
 def _wiki_charts(ds, chosen, metric):
@@ -410,12 +329,14 @@ def _wiki_charts(ds, chosen, metric):
 
 
 def write_wiki(atlas, directory, *, methods=None, metric="interval", tols=TABLE_TOLS,
-               ps=TABLE_PS, overwrite=True):  # fmt: skip
+               ps=TABLE_PS, overwrite=True, sections=None):  # fmt: skip
     """Write a static wiki page: ``index.html`` and ``index.md`` with SVG charts beside them.
 
-    The page has the charts, the threshold tables, the rule audit, the definitions, the
-    provenance and the caution; it links only to files in ``directory`` by relative names, holds
-    no script and no external address, and so opens offline.
+    The page has a table of contents, the charts, the threshold tables, the rule audit, the
+    sections on tail p-values and tests and on confidence intervals (their charts beside the
+    page's), the definitions, the provenance and the caution; it links only to files in
+    ``directory`` by relative names, holds no script and no external address, and so opens
+    offline.
 
     Parameters
     ----------
@@ -428,11 +349,14 @@ def write_wiki(atlas, directory, *, methods=None, metric="interval", tols=TABLE_
     overwrite : bool, optional
         Replace a non-empty directory that holds only page files (``.html``, ``.md``,
         ``.svg``, ...); a directory holding anything else is never replaced.
+    sections : sequence of atlas.sections.Section, optional
+        As for :func:`write_sheet`.
 
     Returns
     -------
     list of pathlib.Path
-        The files written: the SVG charts, ``index.md`` and ``index.html``.
+        The files written: the SVG charts (the sections' too), ``index.md`` and
+        ``index.html``.
 
     Raises
     ------
@@ -451,6 +375,7 @@ def write_wiki(atlas, directory, *, methods=None, metric="interval", tols=TABLE_
     ds = figures.as_dataset(atlas)
     check_metric(metric)
     chosen = _headline(ds, methods)
+    extra = _sections(sections, chosen)
     directory = Path(directory)
     with replacing_directory(directory, overwrite=overwrite) as folder:
         tables = [threshold_table(atlas, tols, ps, method=m, metric=x) for m in chosen
@@ -462,24 +387,41 @@ def write_wiki(atlas, directory, *, methods=None, metric="interval", tols=TABLE_
             figures.save_figure(make(), folder / name)
             names.append(name)
             images.append((name, caption))
+        for section in extra:
+            names += [path.name for path in save_charts(section, folder)]
         provenance = provenance_line(ds)
         where = _where(atlas)
-        page = _wiki_markdown(ds, images, tables, audit, provenance, where)
+        page = _wiki_markdown(ds, images, tables, audit, provenance, where, extra)
         save_text(folder / "index.md", page)
-        save_text(folder / "index.html", _wiki_html(ds, images, tables, audit, provenance, where))
+        save_text(folder / "index.html",
+                  _wiki_html(ds, images, tables, audit, provenance, where, extra))  # fmt: skip
     return [directory / name for name in (*names, "index.md", "index.html")]
 
 
-def _wiki_markdown(ds, images, tables, audit, provenance, where):
+def _contents(extra):
+    """(anchor, title) of every part of the wiki page, in order."""
+    return ([("charts", "Charts"), ("min-n", "Minimum n for each tolerance"),
+             ("rules", "Rules of thumb: the worst error each admits")]
+            + [(section.key, section.title) for section in extra]
+            + [("definitions", "Definitions"), ("provenance", "Provenance"),
+               ("caution", "Caution")])  # fmt: skip
+
+
+def _wiki_markdown(ds, images, tables, audit, provenance, where, extra=()):
     out = ["# approx-atlas: where the approximations to the binomial are safe", ""]
     out += [f"> **Caution.** {cube.CAUTION}", ""]
-    out += [f"_{provenance}_", "", "## Charts", ""]
+    out += [f"_{provenance}_", "", "Contents:", ""]
+    out += [f"{k}. [{title}](#{key})" for k, (key, title) in enumerate(_contents(extra), 1)]
+    out += ["", "## Charts", ""]
     for name, caption in images:
         out += [f"![{caption}]({name})", "", f"*{caption}.*", ""]
     out += ["## Minimum n for each tolerance", ""]
     for table in tables:
         out.append(table.to_markdown())
-    out += ["## Rules of thumb", "", audit.to_markdown(), "## Definitions", ""]
+    out += ["## Rules of thumb", "", audit.to_markdown()]
+    for section in extra:
+        out.append(section_markdown(section))
+    out += ["## Definitions", ""]
     out += [f"- **{term}.** {text}" for term, text in DEFINITIONS]
     out += [""] + [
         f"- `{m}`: {METHOD_LABELS.get(m, m)}; G(k) = {cube.METHOD_DESCRIPTIONS.get(m, '')}"
@@ -492,31 +434,35 @@ def _wiki_markdown(ds, images, tables, audit, provenance, where):
     return "\n".join(out)
 
 
-def _wiki_html(ds, images, tables, audit, provenance, where):
+def _wiki_html(ds, images, tables, audit, provenance, where, extra=()):
     e = html.escape
     out = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
            '<meta name="viewport" content="width=device-width, initial-scale=1">',
            "<title>approx-atlas: where the approximations to the binomial are safe</title>",
-           f"<style>{_CSS}</style>", "</head>", "<body>",
+           f"<style>{CSS}</style>", "</head>", "<body>",
            "<h1>approx-atlas: where the approximations to the binomial are safe</h1>",
            f'<p class="caution"><strong>Caution.</strong> {e(cube.CAUTION)}</p>',
-           f'<p class="notes">{e(provenance)}</p>', "<h2>Charts</h2>"]  # fmt: skip
+           f'<p class="notes">{e(provenance)}</p>',
+           '<nav class="contents"><h2 id="contents">Contents</h2><ol>']  # fmt: skip
+    out += [f'<li><a href="#{e(key)}">{e(title)}</a></li>' for key, title in _contents(extra)]
+    out += ["</ol></nav>", '<h2 id="charts">Charts</h2>']
     for name, caption in images:
         # The image links to itself: at a narrow page width a reader opens it full size.
         out.append(f'<figure><a href="{e(name)}"><img src="{e(name)}" alt="{e(caption)}"></a>'
                    f"<figcaption>{e(caption)} (select the chart to open it full size)."
                    "</figcaption></figure>")  # fmt: skip
-    out.append("<h2>Minimum n for each tolerance</h2>")
+    out.append('<h2 id="min-n">Minimum n for each tolerance</h2>')
     for table in tables:
         header, rows = table.to_rows()
         out.append(_html_table(header, rows, caption=table.title()))
         out.append('<ul class="notes">' + "".join(f"<li>{e(x)}</li>" for x in table.notes())
                    + "</ul>")  # fmt: skip
-    out.append("<h2>Rules of thumb: the worst error each admits</h2>")
+    out.append('<h2 id="rules">Rules of thumb: the worst error each admits</h2>')
     out.append(_html_table(audit.header(), audit.to_rows(), numeric_from=3))
     out.append('<ul class="notes">' + "".join(f"<li>{e(x)}</li>" for x in audit.notes())
                + "</ul>")  # fmt: skip
-    out.append("<h2>Definitions</h2><dl>")
+    out += [section_html(section) for section in extra]
+    out.append('<h2 id="definitions">Definitions</h2><dl>')
     out += [f"<dt>{e(term)}</dt><dd>{e(text)}</dd>" for term, text in DEFINITIONS]
     out.append("</dl><ul>")
     out += [
@@ -524,12 +470,12 @@ def _wiki_html(ds, images, tables, audit, provenance, where):
         f"{e(cube.METHOD_DESCRIPTIONS.get(m, ''))}</li>"
         for m in figures.atlas_methods(ds)
     ]
-    out.append("</ul><h2>Provenance</h2><dl>")
+    out.append('</ul><h2 id="provenance">Provenance</h2><dl>')
     out.append(f"<dt>file</dt><dd><code>{e(where)}</code></dd>")
     out += [f"<dt>{e(k)}</dt><dd>{e(str(v))}</dd>" for k, v in ds.attrs.items()
             if k not in cube.FORMAT_ATTRIBUTES]  # fmt: skip
     out.append("</dl>")
-    out.append(f'<h2>Caution</h2><p class="caution">{e(cube.CAUTION)}</p>')
+    out.append(f'<h2 id="caution">Caution</h2><p class="caution">{e(cube.CAUTION)}</p>')
     out += ["</body>", "</html>", ""]
     return "\n".join(out)
 
@@ -541,6 +487,7 @@ __all__ = [
     "PAPERS",
     "check_paper",
     "default_paper",
+    "default_sections",
     "sheet_figures",
     "write_sheet",
     "write_wiki",

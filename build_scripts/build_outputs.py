@@ -10,9 +10,13 @@ published or opened as it is. Beside them:
 - ``min_n_<method>_<metric>.csv`` and ``.md``: the minimum n for each tolerance and p;
 - ``rules_audit.md`` and ``.json``: the rules of thumb audited for every method and metric;
 - ``reference_sheet.pdf``: the printable multi-page sheet;
-- ``coverage.html``, ``coverage.md``, ``coverage_*.svg``, ``coverage_min_n_*`` and
-  ``coverage_sheet.pdf``: the page and sheet on confidence intervals for p
-  (:mod:`atlas.coverage_pages`, from the embedded coverage cube).
+- the sections on tail p-values and tests and on confidence intervals are part of the sheet
+  and of ``index.html`` (their charts ``decision_*.svg`` and ``coverage_<interval>_95.svg``
+  beside it); ``coverage_min_n_*`` (md, csv, json) hold the coverage tables as files, and
+  ``build_decision_outputs.py`` adds the flat files of tails and tests.
+
+The sections are made once (:func:`atlas.sheets.default_sections`, about two minutes) and
+handed to both the wiki page and the sheet.
 
 The files carry no creation date (the charts show the atlas's build date), so a rerun on the
 same atlas rewrites the same bytes and the repository sees no change.
@@ -77,8 +81,10 @@ def main(argv=None):
     out.mkdir(parents=True, exist_ok=True)
     written = []
 
+    # The sections on tests and on coverage, once for the page and the sheet.
+    extra = sheets.default_sections(HEADLINE[0])
     # The wiki page first: index.html, index.md and its SVG charts.
-    written += sheets.write_wiki(atlas, out)
+    written += sheets.write_wiki(atlas, out, sections=extra)
     for stem, make in _charts(atlas):
         fig = make()
         written.append(figures.save_figure(fig, out / f"{stem}.png"))
@@ -96,10 +102,9 @@ def main(argv=None):
     audit = tables.rule_audit(atlas)
     written.append(files.save_text(out / "rules_audit.md", audit.to_markdown()))
     written.append(files.save_text(out / "rules_audit.json", audit.to_json()))
-    written.append(sheets.write_sheet(atlas, out / "reference_sheet.pdf"))
-    # The coverage page and sheet (confidence intervals for p), from the embedded coverage cube.
-    written += coverage_pages.write_coverage_page(out)
-    written.append(coverage_pages.write_coverage_sheet(out / "coverage_sheet.pdf"))
+    written.append(sheets.write_sheet(atlas, out / "reference_sheet.pdf", sections=extra))
+    # The coverage tables as files (the same tables as the page's section).
+    written += coverage_pages.write_table_files(out, coverage_pages.tables())
 
     for path in written:
         print(f"{path.stat().st_size / 1024:9.1f} KB  {path.relative_to(out.parent)}")

@@ -50,6 +50,35 @@ def chart_atlas(tmp_path_factory):
     return atlas.open_atlas(path)
 
 
+# The sheet and the wiki page add the sections on tests and on confidence intervals
+# (atlas.sheets.default_sections, about two minutes at their full size). The tests of the sheet
+# and the wiki, and of their commands, use the same sections with small tables: n to 2,500 for
+# the tests' tables, to 60 for the coverage tables (their content is tested with its module).
+LIGHT_SECTION_N_MAX = {"decisions": 2500, "coverage": 60}
+
+
+@pytest.fixture(autouse=True)
+def light_sections(monkeypatch):
+    """Replace :func:`atlas.sheets.default_sections` by the same sections with small tables."""
+    import functools
+
+    from atlas import sheets
+
+    @functools.cache
+    def light(method="normal_cc", *, coverage=None):
+        from atlas import coverage_pages, decision_pages
+
+        return (
+            decision_pages.section(method, n_max=LIGHT_SECTION_N_MAX["decisions"]),
+            coverage_pages.section(coverage, n_max=LIGHT_SECTION_N_MAX["coverage"]),
+        )
+
+    monkeypatch.setattr(sheets, "default_sections", _LIGHT.setdefault("f", light))
+
+
+_LIGHT = {}
+
+
 # ---- a build killed with SIGKILL, and the processes it leaves behind ---------------------------
 
 # About 170 chunks of about a second of one core (atlas.chunks.plan_chunks with all methods on

@@ -70,7 +70,8 @@ def test_min_n_commands(capsys):
     record = json.loads(out)
     expected = decisions.size_min_n(0.1, 0.05, max_size=0.055, alternative="greater",
                                     n_max=300, dense_to=300)  # fmt: skip
-    assert code == 0 and record["min_n"] == expected.n and record["exact_for_integers"]
+    assert code == 0 and record["min_n"] == expected.n and record["every_integer"]
+    assert record["runs"] == [{"first": a, "last": b, "within": w} for a, b, w in expected.runs]
     code, out, _ = run(capsys, ["tail-min-n", "--p", "0.2", "--alpha", "0.01", "--rel-tol",
                                 "30%", "--n-max", "400", "--dense-to", "400"])  # fmt: skip
     expected = decisions.tail_min_n(0.2, 0.01, 0.3, n_max=400, dense_to=400)

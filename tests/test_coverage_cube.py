@@ -149,7 +149,10 @@ def test_coverage_page(small_cube, tmp_path):
     for src in re.findall(r'src="([^"]+)"', page):
         assert (tmp_path / src).is_file()
     table = coverage_table(0.05, 0.5, (0.93, 0.94, 0.95), n_max=60)
-    assert table.render("md") in (tmp_path / "coverage.md").read_text()
+    md = (tmp_path / "coverage.md").read_text()
+    for name in table.intervals:  # each row of the table, as the page sets it
+        cells = " | ".join(table.cell(name, f).replace("|", "\\|") for f in table.floors)
+        assert f"| {name} | {cells} |" in md
     assert (tmp_path / "coverage_min_n_0.05_0.5.csv").read_text() == table.render("csv")
     assert "Caution." in page and "Newcombe (1998), method 4" in page
     # The page's files are page files: the wiki may replace the directory that holds them.
@@ -165,7 +168,8 @@ def test_coverage_sheet(small_cube, tmp_path):
                                 n_max=40)  # fmt: skip
     data = path.read_bytes()
     assert data.startswith(b"%PDF")
-    assert len(re.findall(rb"/Type\s*/Page\b", data)) == 2 + 3  # two text pages, three maps
+    # definitions, three maps, the tables, the caution (atlas.sections.section_pages)
+    assert len(re.findall(rb"/Type\s*/Page\b", data)) == 1 + 3 + 1 + 1
     assert [p.name for p in tmp_path.iterdir()] == ["s.pdf"]
     with pytest.raises(ValueError, match=r"^`path` must end in '\.pdf'; got '.*s\.png'\.$"):
         write_coverage_sheet(tmp_path / "s.png", cube=small_cube)

@@ -48,7 +48,7 @@ def test_tail_min_n_against_definition(tail):
     got = decisions.tail_min_n(0.2, 0.01, 0.3, tail=tail, n_max=400, dense_to=400)
     errors = atlas.tail_error(np.arange(1, 401), 0.2, 0.01, tail=tail)
     passing = errors <= 0.3
-    assert got.exact_for_integers and got.n is not None
+    assert got.n is not None
     assert passing[got.n - 1 :].all()
     assert not passing[got.n - 2]
     assert got.previous == got.n - 1
@@ -60,16 +60,17 @@ def test_size_min_n_against_definition():
     sizes = atlas.test_size(np.arange(1, 301), 0.1, 0.05, alternative="greater").size
     passing = sizes <= 0.055  # definition
     assert passing[got.n - 1 :].all() and not passing[got.n - 2]
-    assert got.explain() == (
+    assert got.explain().startswith(
         f"from n = {got.n}: every integer n from {got.n} to 300 checked; n = {got.n - 1} fails"
     )
 
 
-def test_min_n_ladder_and_none():
-    # Above dense_to only the ladder is checked, and the answer says so.
+def test_min_n_above_dense_to_and_none():
+    # Above dense_to every integer is evaluated or covered by a bound: the answer passes and
+    # the one before fails (definition, by tail_error).
     got = decisions.tail_min_n(0.1, 0.01, 0.1, n_max=5000, dense_to=100)
-    assert not got.exact_for_integers and got.n > 100
-    assert "only n on a ladder about 5% apart up to 5000" in got.explain()
+    assert got.n > 100 and got.previous == got.n - 1
+    assert f"every integer n from {got.n:,} to 5,000 checked" in got.explain()
     assert atlas.tail_error(got.n, 0.1, 0.01) <= 0.1  # definition
     assert atlas.tail_error(got.previous, 0.1, 0.01) > 0.1  # definition
     # A tolerance never met up to n_max: no answer.
@@ -78,10 +79,18 @@ def test_min_n_ladder_and_none():
     assert none.explain() == "at no n up to 60: n = 60 fails"
 
 
-def test_ladder_points():
-    points = decisions._ladder(100, 1000)
-    assert points[:100] == list(range(1, 101)) and points[-1] == 1000
-    assert all(1 < b / a <= 1.06 for a, b in zip(points[99:-1], points[100:], strict=True))
+def test_min_n_says_when_the_passing_n_are_not_one_run():
+    # The size of the upper test at p0 = 0.1 is a sawtooth in n: some n below the answer pass
+    # too, and the answer lists the stretches (checked here against test_size at every n).
+    got = decisions.size_min_n(0.1, 0.05, max_size=0.055, alternative="greater", n_max=300,
+                               dense_to=300)  # fmt: skip
+    sizes = atlas.test_size(np.arange(1, 301), 0.1, 0.05, alternative="greater").size
+    passing = sizes <= 0.055  # definition
+    assert got.scattered == (sum(r[2] for r in got.runs) > 1) and got.scattered
+    for first, last, within in got.runs:
+        assert (passing[first - 1 : last] == within).all()
+    assert got.runs[-1] == (got.n, 300, True)
+    assert "the n that pass are not one run" in got.explain()
 
 
 def test_best_methods_ranked():

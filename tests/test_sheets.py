@@ -35,26 +35,39 @@ def _pdf_page_count(data):
     return len(re.findall(rb"/Type\s*/Page(?![s\w])", data))
 
 
+def _title(fig):
+    """A page's title: the text with gid "title", else the figure's suptitle."""
+    found = [t.get_text() for t in fig.texts if t.get_gid() == "title"]
+    suptitle = getattr(fig, "_suptitle", None)
+    return found[0] if found else suptitle.get_text()
+
+
 def test_sheet_pages(chart_atlas):
+    from atlas import coverage_pages, decision_pages
+
     pages = sheets.sheet_figures(chart_atlas)
-    titles = [next(t.get_text() for t in fig.texts if t.get_gid() == "title") for fig in pages]
-    assert titles == [
+    titles = [_title(fig) for fig in pages]
+    assert titles[:5] == [
         "Worst-case error of interval probabilities: normal_cc",
         "Worst-case error of interval probabilities: edgeworth_cc",
         "Minimum n for each tolerance",
         "Rules of thumb: the worst error each admits",
         # six rules (the skewness and 3-sigma rules joined the audit) x two methods x two metrics
         "Rules of thumb: the worst error each admits (continued)",
-        "Definitions",
-        "Provenance and caution",
     ]
+    assert titles[-2:] == ["Definitions", "Provenance and caution"]
+    # The sections on tests and on confidence intervals, in that order, between them.
+    middle = " | ".join(titles[5:-2])
+    assert middle.startswith(decision_pages.TITLE) and coverage_pages.TITLE in middle
+    assert middle.index(decision_pages.TITLE) < middle.index(coverage_pages.TITLE)
+    assert "Tail relative error of normal_cc" in middle and "wilson interval" in middle
     for k, fig in enumerate(pages, start=1):
         texts = {t.get_gid(): t.get_text() for t in fig.texts if t.get_gid()}
-        assert texts["page-number"] == f"page {k} of 7"
+        assert texts["page-number"] == f"page {k} of {len(pages)}"
         assert " ".join(cube.CAUTION.split()) in " ".join(texts["footer"].split())
     last = " ".join(t.get_text() for t in pages[-1].texts)
     assert chart_atlas.dataset.attrs["checksum"] in last and "chart.nc" in last
-    definitions = " ".join(t.get_text() for t in pages[5].texts)
+    definitions = " ".join(t.get_text() for t in pages[titles.index("Definitions")].texts)
     assert "max over 0 ≤ a ≤ b ≤ n of |P(a ≤ X ≤ b) − (G(b) − G(a − 1))|" in definitions
     assert "max over 0 ≤ k ≤ n of |F(k) − G(k)|" in definitions
     # The tables page holds the four tables (two methods, two metrics) with the query's values.
@@ -70,7 +83,10 @@ def test_write_sheet(chart_atlas, tmp_path):
     path = sheets.write_sheet(chart_atlas, tmp_path / "sheet.pdf")
     data = path.read_bytes()
     assert data.startswith(b"%PDF-") and b"%%EOF" in data[-64:]
-    assert _pdf_page_count(data) == 7  # the audit runs over two pages (test_sheet_pages)
+    assert _pdf_page_count(data) == len(sheets.sheet_figures(chart_atlas))  # with the sections
+    assert _pdf_page_count(sheets.write_sheet(chart_atlas, tmp_path / "alone.pdf",
+                                              sections=()).read_bytes()) == 7  # fmt: skip
+    (tmp_path / "alone.pdf").unlink()
     assert os.listdir(tmp_path) == ["sheet.pdf"]
     with pytest.raises(ValueError, match=r"^`path` must end in '\.pdf'; got '.*sheet\.png'\.$"):
         sheets.write_sheet(chart_atlas, tmp_path / "sheet.png")
@@ -86,6 +102,11 @@ def wiki(chart_atlas, tmp_path_factory):
     folder = tmp_path_factory.mktemp("wiki") / "page"
     written = sheets.write_wiki(chart_atlas, folder)
     return folder, written
+
+
+def _section_charts(method="normal_cc"):
+    """The SVG charts of the sections the sheet and the wiki add (tests, coverage)."""
+    return [c.name for section in sheets.default_sections(method) for c in section.charts]
 
 
 class _Links(html.parser.HTMLParser):
@@ -115,7 +136,7 @@ def test_wiki_files(wiki, chart_atlas):
     assert names == sorted(["map_normal_cc_interval.svg", "map_edgeworth_cc_interval.svg",
                             "compare_normal_cc_edgeworth_cc_interval.svg",
                             "gain_edgeworth_cc_over_normal_cc_interval.svg", "best_interval.svg",
-                            "index.md", "index.html"])  # fmt: skip
+                            "index.md", "index.html", *_section_charts()])  # fmt: skip
     assert sorted(os.listdir(folder)) == names  # nothing else, no temporary file
 
 
@@ -126,11 +147,17 @@ def test_wiki_html_opens_offline(wiki):
     parser.feed(page)
     assert "script" not in parser.tags and "iframe" not in parser.tags
     assert "http://" not in page and "https://" not in page and "url(" not in page
-    assert len(parser.images) == 5
-    assert parser.anchors == parser.images  # each chart opens full size from the page
+    assert len(parser.images) == 5 + len(_section_charts())
+    # The contents first, then each chart opening full size from the page.
+    contents = [a for a in parser.anchors if a.startswith("#")]
+    assert contents == ["#charts", "#min-n", "#rules", "#tests", "#coverage", "#definitions",
+                        "#provenance", "#caution"]  # fmt: skip
+    for anchor in contents:
+        assert f'id="{anchor[1:]}"' in page
+    assert [a for a in parser.anchors if not a.startswith("#")] == parser.images
     for link in parser.links:
         assert _is_local(link), link
-        assert (folder / link).is_file(), link
+        assert link.startswith("#") or (folder / link).is_file(), link
     for src in parser.images:
         root = ET.parse(folder / src).getroot()  # valid XML
         assert root.tag == "{http://www.w3.org/2000/svg}svg"
@@ -146,7 +173,9 @@ def test_wiki_markdown(wiki):
     folder, _ = wiki
     text = (folder / "index.md").read_text(encoding="utf-8")
     images = re.findall(r"!\[[^\]]*\]\(([^)]+)\)", text)
-    assert len(images) == 5 and all(_is_local(i) and (folder / i).is_file() for i in images)
+    assert len(images) == 5 + len(_section_charts())
+    assert all(_is_local(i) and (folder / i).is_file() for i in images)
+    assert "1. [Charts](#charts)" in text and "](#coverage)" in text
     assert "http" not in text and "](/" not in text  # no links out of the page
     assert cube.CAUTION in text
     assert "| p | tol 0.01 | tol 0.005 | tol 0.001 | tol 1e-4 |" in text
@@ -219,8 +248,9 @@ def test_wiki_in_a_real_browser(wiki, tmp_path):
     report = json.loads(html.unescape(match.group(1)))
     good = report["good"]
     assert good["title"].startswith("approx-atlas")
-    assert good["tables"] == 5  # four threshold tables and the audit
-    assert len(good["images"]) == 5
+    # Four threshold tables and the audit; two of tests, two of coverage.
+    assert good["tables"] == 5 + 2 + 2
+    assert len(good["images"]) == 5 + len(_section_charts())
     for image in good["images"]:
         assert image["complete"] and image["width"] > 500 and image["height"] > 300, image
     states = {i["src"]: i["width"] for i in report["broken"]["images"]}
@@ -255,14 +285,20 @@ def test_cli_sheet_and_wiki(chart_atlas, capsys, tmp_path):
     assert main(["sheet", "--atlas", str(chart_atlas.path), "--method", "poisson", "-o",
                  str(pdf)]) == 0  # fmt: skip
     assert capsys.readouterr().out.strip() == str(pdf)
-    assert _pdf_page_count(pdf.read_bytes()) == 5  # one map, tables, audit, two text pages
+    # One map, tables, audit, two text pages, and the sections' pages.
+    alone = sheets.sheet_figures(chart_atlas, methods=["poisson"], sections=())
+    assert len(alone) == 5
+    assert _pdf_page_count(pdf.read_bytes()) == len(
+        sheets.sheet_figures(chart_atlas, methods=["poisson"])
+    )
     folder = tmp_path / "wiki"
     assert main(["wiki", "--atlas", str(chart_atlas.path), "--method", "poisson", "-o",
                  str(folder)]) == 0  # fmt: skip
     assert capsys.readouterr().out.strip() == str(folder / "index.html")
-    assert sorted(os.listdir(folder)) == ["best_interval.svg", "index.html", "index.md",
-                                          "map_poisson_interval.svg"]  # fmt: skip
-    assert Path(folder / "index.html").read_text().count("<img ") == 2
+    assert sorted(os.listdir(folder)) == sorted(["best_interval.svg", "index.html", "index.md",
+                                                 "map_poisson_interval.svg",
+                                                 *_section_charts("poisson")])  # fmt: skip
+    assert Path(folder / "index.html").read_text().count("<img ") == 2 + len(_section_charts())
 
 
 # ---- paper, type sizes, whole lines ----
@@ -325,7 +361,8 @@ def test_sheet_prints_on_the_paper_with_no_small_or_cut_text(chart_atlas, paper)
     joined = " ".join(" ".join(seen).split())
     ds = chart_atlas.dataset
     assert ds.attrs["checksum"] in joined  # the whole checksum, in the footers
-    assert sum(" ".join(s.split()).count(ds.attrs["checksum"]) for s in seen) >= len(pages) - 2
+    # The atlas's own six pages carry its checksum (the sections carry their own provenance).
+    assert sum(" ".join(s.split()).count(ds.attrs["checksum"]) for s in seen) >= 6 - 2
     spec = ds.attrs["p_spec"]
     assert spec.replace(",", "") in joined.replace(",", "").replace(" ", "")  # whole, wrapped
 
@@ -411,7 +448,7 @@ def test_wiki_has_no_sideways_scrolling_at_1280_and_800_pixels(wiki, tmp_path):
         assert state["scroll"] <= state["client"], (width, state)
         assert state["widest"] <= state["client"] + 0.5, (width, state)
         assert state["broken"] == 0, (width, state)  # no number is split over two lines
-        assert len(state["images"]) == 5
+        assert len(state["images"]) == 5 + len(_section_charts())
         assert all(0 < w <= state["client"] for w in state["images"]), (width, state)
 
 
