@@ -61,7 +61,9 @@ def test_grid_is_the_default(default):
     assert default.attrs["n_spec"] == grid.DEFAULT_N_SPEC
     assert default.attrs["p_spec"] == grid.DEFAULT_P_SPEC
     assert_array_equal(default["n"].values, grid.default_n())
-    assert_array_equal(default["p"].values, grid.default_p())
+    # The logit spacing is computed with numpy's exp/log, whose last bit differs between numpy
+    # builds: the stored axis (the one every answer uses) agrees with this machine's to 1 ulp.
+    np.testing.assert_allclose(default["p"].values, grid.default_p(), rtol=4.5e-16, atol=0)
     assert tuple(default["approximation"].values) == tuple(sorted(atlas.METHODS))
 
 
