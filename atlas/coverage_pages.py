@@ -6,7 +6,8 @@
 - :func:`write_coverage_sheet`: a multi-page PDF of the same.
 
 Every file is written under a temporary name and renamed when complete. The maps come from the
-coverage cube (:mod:`atlas.coverage_cube`), the tables from :func:`atlas.coverage_table`.
+coverage variables of the atlas (:func:`atlas.coverage_cube.open_coverage_cube`), the tables
+from :func:`atlas.coverage_table`.
 """
 
 import html
@@ -80,7 +81,7 @@ def write_coverage_page(
     directory : str or os.PathLike
         An existing directory (the wiki page's); files of the same names are replaced.
     cube : xarray.Dataset, optional
-        A coverage cube; default the embedded one.
+        A coverage cube; default the coverage variables of the embedded atlas.
     level : float
         The nominal level of the maps and tables (one the cube holds).
     bands : sequence of (float, float)

@@ -12,7 +12,7 @@ published or opened as it is. Beside them:
 - ``reference_sheet.pdf``: the printable multi-page sheet;
 - ``coverage.html``, ``coverage.md``, ``coverage_*.svg``, ``coverage_min_n_*`` and
   ``coverage_sheet.pdf``: the page and sheet on confidence intervals for p
-  (:mod:`atlas.coverage_pages`, from the embedded coverage cube).
+  (:mod:`atlas.coverage_pages`, from the coverage variables of the embedded atlas).
 
 The files carry no creation date (the charts show the atlas's build date), so a rerun on the
 same atlas rewrites the same bytes and the repository sees no change.
@@ -97,7 +97,8 @@ def main(argv=None):
     written.append(files.save_text(out / "rules_audit.md", audit.to_markdown()))
     written.append(files.save_text(out / "rules_audit.json", audit.to_json()))
     written.append(sheets.write_sheet(atlas, out / "reference_sheet.pdf"))
-    # The coverage page and sheet (confidence intervals for p), from the embedded coverage cube.
+    # The coverage page and sheet (confidence intervals for p), from the embedded atlas's
+    # coverage variables.
     written += coverage_pages.write_coverage_page(out)
     written.append(coverage_pages.write_coverage_sheet(out / "coverage_sheet.pdf"))
 
