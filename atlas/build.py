@@ -9,6 +9,7 @@ imports them, never the other way round.
 """
 
 import contextlib
+import re
 import time
 from datetime import datetime, timezone
 
@@ -29,6 +30,21 @@ from atlas.chunks import (  # noqa: F401 - re-exported, see above
     positive_int,
 )
 from atlas.engine import TAIL_TOL, check_n
+
+#: The keyword arguments of build_atlas for the decision and coverage variables (the build
+#: command's options of the same names).
+GROUP_OPTIONS = (
+    "decisions",
+    "decision_n",
+    "decision_p",
+    "tail_levels",
+    "test_levels",
+    "coverage",
+    "coverage_n",
+    "coverage_p",
+    "intervals",
+    "coverage_levels",
+)
 
 # The largest cube a build allocates: six arrays of 8 bytes per cell, 4.8 GB.
 MAX_CELLS = 10**8
@@ -75,8 +91,19 @@ def build_atlas(
     checkpoint=None,
     p_block=None,
     chunk_cost=CHUNK_COST,
+    decisions=False,
+    decision_n=None,
+    decision_p=None,
+    tail_levels=None,
+    test_levels=None,
+    coverage=False,
+    coverage_n=None,
+    coverage_p=None,
+    intervals=None,
+    coverage_levels=None,
 ):
-    """Compute every method's worst-case errors over an (n, p) grid.
+    """Compute every method's worst-case errors over an (n, p) grid, and optionally the tail,
+    test-size and coverage variables on grids of their own.
 
     Parameters
     ----------
@@ -102,17 +129,41 @@ def build_atlas(
     chunk_cost : float, optional
         Target work per chunk, in the units of :func:`atlas.chunks.cell_cost` (default
         ``CHUNK_COST``, about a second of one core).
+    decisions : bool, optional
+        Add the tail and test-size variables (``tail_error``, ``test_size``,
+        ``exact_test_size``; :mod:`atlas.decision_cube`) for every method, on their own grid.
+        Giving any of the next four options adds them too.
+    decision_n, decision_p : str or sequence, optional
+        Their grid (default :data:`atlas.decision_cube.DECISION_N` and ``DECISION_P``: every n
+        to 200 and 121 n log-spaced to 10^8; 41 p logit-spaced from 1e-4 to 0.9999, and 1/2).
+    tail_levels, test_levels : str or sequence of float, optional
+        Their levels, each in (0, 1) (default 0.0001, 0.001, 0.01, 0.05 for tails and 0.001,
+        0.01, 0.05, 0.1 for tests).
+    coverage : bool, optional
+        Add the coverage variables of confidence intervals for p (``coverage``,
+        ``min_coverage``, ``expected_width``, ``p_cell_lo``, ``p_cell_hi``;
+        :mod:`atlas.coverage_cube`), on their own grid. Giving any of the next four options
+        adds them too.
+    coverage_n, coverage_p : str or sequence, optional
+        Their grid (default :data:`atlas.coverage_cube.DEFAULT_COVERAGE_N_SPEC` and
+        ``DEFAULT_COVERAGE_P_SPEC``: every n to 100, 21 n log-spaced to 10^4; 61 p logit-spaced
+        from 0.001 to 0.999); n at most 10^6, at least two p.
+    intervals : str or sequence of str, optional
+        The intervals (default all of :data:`atlas.INTERVALS`).
+    coverage_levels : str or sequence of float, optional
+        Their nominal levels (default 0.9, 0.95, 0.99).
 
     Returns
     -------
     xarray.Dataset
-        The atlas (see :mod:`atlas.cube`).
+        The atlas (see :mod:`atlas.cube`), with the groups asked for (:func:`atlas.cube.attach`).
 
     Raises
     ------
     ValueError
         For a bad grid specification, method list, worker count, ``p_block`` or
-        ``chunk_cost``, or a grid of more than ``MAX_CELLS`` cells, before any work starts.
+        ``chunk_cost``, or a grid of more than ``MAX_CELLS`` cells, or a bad option of the
+        decision or coverage variables, before any work starts.
     TypeError
         For a ``workers``, ``p_block`` or ``chunk_cost`` that is not a number, or an axis that
         is neither a spec string nor a sequence of numbers.
@@ -137,6 +188,18 @@ def build_atlas(
     p_axis, p_spec = _axis(p, grid.parse_p, grid.DEFAULT_P_SPEC)
     check_n(n_axis)  # the engine's own limit on n, checked before any work
     methods = tuple(sorted(check_methods(methods)))  # the order of the cube's index
+    extra = check_groups(
+        decisions=decisions,
+        decision_n=decision_n,
+        decision_p=decision_p,
+        tail_levels=tail_levels,
+        test_levels=test_levels,
+        coverage=coverage,
+        coverage_n=coverage_n,
+        coverage_p=coverage_p,
+        intervals=intervals,
+        coverage_levels=coverage_levels,
+    )
     if workers is not None:
         workers = positive_int("workers", workers)
     cells = len(methods) * n_axis.size * p_axis.size
@@ -178,7 +241,7 @@ def build_atlas(
     )
     from atlas.cube import make_dataset
 
-    return make_dataset(
+    ds = make_dataset(
         n_axis,
         p_axis,
         methods,
@@ -188,6 +251,137 @@ def build_atlas(
         history=history,
         tail_tolerance=TAIL_TOL,
     )
+    return _add_groups(ds, extra, methods, workers)
+
+
+def _named(name, check, value):
+    """``check(value)``, its error naming ``name`` in place of the checker's own argument."""
+    try:
+        return check(value)
+    except (TypeError, ValueError) as err:
+        raise type(err)(re.sub(r"^`[^`]+`", f"`{name}`", str(err), count=1)) from None
+
+
+def _levels(name, value):
+    """A level list from a comma-separated string or a sequence: each in (0, 1), none twice."""
+    if isinstance(value, str):
+        value = [item.strip() for item in value.split(",")]
+    try:
+        items = list(value)
+    except TypeError:
+        raise TypeError(f"`{name}` must be a comma-separated string or a sequence of levels; "
+                        f"got {value!r}.") from None  # fmt: skip
+    levels = []
+    for item in items:
+        try:
+            level = float(item)
+        except (TypeError, ValueError):
+            level = None
+        if isinstance(item, bool) or level is None or not 0.0 < level < 1.0:
+            raise ValueError(f"`{name}` must hold levels in the open interval (0, 1); got "
+                             f"{item!r}.")  # fmt: skip
+        levels.append(level)
+    if not levels:
+        raise ValueError(f"`{name}` must hold at least one level; got none.")
+    if len(set(levels)) != len(levels):
+        raise ValueError(f"`{name}` must not repeat a level; got {value!r}.")
+    return tuple(levels)
+
+
+def _or(value, default):
+    """``value``, or ``default`` when it is None (an empty value is refused, not replaced)."""
+    return default if value is None else value
+
+
+def _spec(name, parse, value):
+    """A grid spec string (or values) checked by ``parse``, as given."""
+    _named(name, parse, value)
+    return value
+
+
+def check_groups(
+    *,
+    decisions=False,
+    decision_n=None,
+    decision_p=None,
+    tail_levels=None,
+    test_levels=None,
+    coverage=False,
+    coverage_n=None,
+    coverage_p=None,
+    intervals=None,
+    coverage_levels=None,
+):
+    """Check the options of the decision and coverage variables before any work.
+
+    Returns
+    -------
+    dict
+        ``{"decisions": {...}, "coverage": {...}}`` with the keyword arguments of
+        :func:`atlas.decision_cube.decision_dataset` and
+        :func:`atlas.coverage_cube.build_coverage_cube` for each group asked for (a group is
+        asked for by its flag or by any of its options).
+
+    Raises
+    ------
+    ValueError, TypeError
+        Naming the option (``decision_n``, ``tail_levels``, ``intervals``, ...).
+    """
+    from atlas import confidence
+    from atlas.coverage_cube import (
+        DEFAULT_COVERAGE_N_SPEC,
+        DEFAULT_COVERAGE_P_SPEC,
+        DEFAULT_LEVELS,
+        MAX_N,
+    )
+    from atlas.decision_cube import DECISION_N, DECISION_P, TAIL_LEVELS, TEST_LEVELS
+
+    out = {}
+    options = (decision_n, decision_p, tail_levels, test_levels)
+    if decisions or any(v is not None for v in options):
+        out["decisions"] = {
+            "n": _spec("decision_n", grid.parse_n, _or(decision_n, DECISION_N)),
+            "p": _spec("decision_p", grid.parse_p, _or(decision_p, DECISION_P)),
+            "tail_levels": _levels("tail_levels", _or(tail_levels, TAIL_LEVELS)),
+            "test_levels": _levels("test_levels", _or(test_levels, TEST_LEVELS)),
+        }
+        _named("decision_n", check_n, grid.parse_n(out["decisions"]["n"]))
+    options = (coverage_n, coverage_p, intervals, coverage_levels)
+    if coverage or any(v is not None for v in options):
+        n_values = _named("coverage_n", grid.parse_n, _or(coverage_n, DEFAULT_COVERAGE_N_SPEC))
+        p_values = _named("coverage_p", grid.parse_p, _or(coverage_p, DEFAULT_COVERAGE_P_SPEC))
+        if n_values[-1] > MAX_N:
+            raise ValueError(f"`coverage_n` must be at most {MAX_N}; got {n_values[-1]}.")
+        if p_values.size < 2:
+            raise ValueError(f"`coverage_p` must give at least two values; got {coverage_p!r}.")
+        names = intervals if intervals is not None else confidence.INTERVALS
+        if isinstance(names, str):
+            names = [item.strip() for item in names.split(",")]
+        names = tuple(_named("intervals", confidence.check_interval, m) for m in names)
+        if not names:
+            raise ValueError("`intervals` must name at least one interval; got none.")
+        if len(set(names)) != len(names):
+            raise ValueError(f"`intervals` must not repeat an interval; got {', '.join(names)}.")
+        out["coverage"] = {
+            "n": _or(coverage_n, DEFAULT_COVERAGE_N_SPEC),
+            "p": _or(coverage_p, DEFAULT_COVERAGE_P_SPEC),
+            "intervals": names,
+            "levels": _levels("coverage_levels", _or(coverage_levels, DEFAULT_LEVELS)),
+        }
+    return out
+
+
+def _add_groups(ds, extra, methods, workers):
+    """The atlas ``ds`` with the groups of ``extra`` (from :func:`check_groups`) added."""
+    if "decisions" in extra:
+        from atlas.decision_cube import attach, decision_dataset
+
+        ds = attach(ds, decision_dataset(methods=methods, workers=workers, **extra["decisions"]))
+    if "coverage" in extra:
+        from atlas.coverage_cube import attach, build_coverage_cube
+
+        ds = attach(ds, build_coverage_cube(**extra["coverage"]))
+    return ds
 
 
 def _place(arrays, chunk, part):

@@ -14,7 +14,7 @@ is created and removed in its directory) and refuses to replace an existing one 
 import argparse
 import sys
 
-from atlas import METRICS, __version__, is_resolved
+from atlas import INTERVALS, METRICS, __version__, is_resolved
 from atlas.cli_common import METHOD_LIST as _METHOD_LIST
 from atlas.cli_common import P_FORMS as _P_FORMS
 from atlas.cli_common import PROG
@@ -353,21 +353,24 @@ def _cmd_build(args):
     import time
 
     from atlas import cube
-    from atlas.build import build_atlas, check_methods
+    from atlas.build import GROUP_OPTIONS, build_atlas, check_groups, check_methods
     from atlas.files import check_target
     from atlas.grid import parse_n, parse_p
 
     # Every check that can fail comes before any work: FILE can be written (a probe file is
-    # created and removed beside it), the specs and methods are valid.
+    # created and removed beside it), the specs, methods and group options are valid.
     target = check_target(args.output, overwrite=args.force, name="-o")
     parse_n(args.n)
     parse_p(args.p)
     check_methods(args.methods)
+    groups = {name: getattr(args, name) for name in GROUP_OPTIONS}
+    check_groups(**groups)
     options = {
         "methods": args.methods,
         "workers": args.workers,
         "checkpoint": args.checkpoint,
         "progress": True,
+        **groups,
     }
     started = time.perf_counter()
     if args.dask is None:
@@ -385,10 +388,14 @@ def _cmd_build(args):
     sizes = ds.sizes
     methods = sizes["approximation"]
     cells = methods * sizes["n"] * sizes["p"]
+    extra = "".join(
+        f", {what}" for key, what in (("decision_n", "tail and test-size variables"),
+                                      ("coverage_n", "coverage variables")) if key in sizes
+    )  # fmt: skip
     print(
         f"wrote {target}: {sizes['n']} n x {sizes['p']} p x {methods} methods = {cells} "
         f"cells in {elapsed:.1f} s ({cells / elapsed:.0f} cells/s), "
-        f"{target.stat().st_size / 1e6:.2f} MB, {ds['interval_error'].dtype} errors"
+        f"{target.stat().st_size / 1e6:.2f} MB, {ds['interval_error'].dtype} errors{extra}"
     )
     return 0
 
@@ -431,11 +438,60 @@ def _add_build_commands(commands):
     )
     build.add_argument("--dask", metavar="SPEC", help="'local:K' or 'tcp://HOST:PORT'")
     build.add_argument("--checkpoint", metavar="DIR", help="keep finished chunks in DIR")
+    tails = build.add_argument_group(
+        "tail and test-size variables", "on a grid of their own; any of these options adds them"
+    )
+    tails.add_argument(
+        "--decisions",
+        action="store_true",
+        help="add tail_error, test_size and exact_test_size (default grid)",
+    )
+    tails.add_argument(
+        "--decision-n", metavar="SPEC", help="their n axis (default 1:200,log:200:100000000:121)"
+    )
+    tails.add_argument(
+        "--decision-p", metavar="SPEC", help="their p axis (default logit:0.0001:0.9999:41,0.5)"
+    )
+    tails.add_argument(
+        "--tail-levels", metavar="LIST", help="tail levels alpha (default 0.0001,0.001,0.01,0.05)"
+    )
+    tails.add_argument(
+        "--test-levels", metavar="LIST", help="test levels alpha (default 0.001,0.01,0.05,0.1)"
+    )
+    cover = build.add_argument_group(
+        "coverage variables", "on a grid of their own; any of these options adds them"
+    )
+    cover.add_argument(
+        "--coverage",
+        action="store_true",
+        help="add coverage, min_coverage and expected_width (default grid)",
+    )
+    cover.add_argument(
+        "--coverage-n",
+        metavar="SPEC",
+        help="their n axis, n <= 10^6 (default 1:100,log:100:10000:21)",
+    )
+    cover.add_argument(
+        "--coverage-p",
+        metavar="SPEC",
+        help="their p axis, two p or more (default logit:0.001:0.999:61)",
+    )
+    cover.add_argument(
+        "--intervals",
+        metavar="NAMES",
+        help=f"comma-separated intervals (default all: {', '.join(INTERVALS)})",
+    )
+    cover.add_argument(
+        "--coverage-levels", metavar="LIST", help="nominal levels (default 0.9,0.95,0.99)"
+    )
     build.set_defaults(
         handler=_cmd_build,
         names={"n": "--n", "p": "--p", "methods": "--methods", "method": "--methods",
                "workers": "--workers", "spec": "--dask", "checkpoint": "--checkpoint",
-               "path": "-o"},
+               "path": "-o", "decision_n": "--decision-n", "decision_p": "--decision-p",
+               "tail_levels": "--tail-levels", "test_levels": "--test-levels",
+               "coverage_n": "--coverage-n", "coverage_p": "--coverage-p",
+               "intervals": "--intervals", "coverage_levels": "--coverage-levels"},
     )  # fmt: skip
 
     inspect = commands.add_parser("inspect", help="describe an atlas file and verify its checksum")

@@ -179,7 +179,7 @@ def _cmd_coverage_table(args):
 
 
 def _cmd_coverage_map(args):
-    """Draw a coverage map from the embedded coverage cube (or --cube FILE)."""
+    """Draw a coverage map from the coverage variables of the embedded atlas (or --atlas FILE)."""
     from atlas import figures
     from atlas.coverage_charts import coverage_map
     from atlas.coverage_cube import open_coverage_cube
@@ -188,8 +188,8 @@ def _cmd_coverage_map(args):
         figures.figure_format(args.output)
     check_output(args)
     level = parse_probability(args.level, "--level")
-    with Options(path="--cube"):
-        cube = open_coverage_cube(args.cube)
+    with Options(path="--atlas"):
+        cube = open_coverage_cube(args.atlas)
     fig = coverage_map(cube, interval=args.interval, level=level, variable=args.variable)
     print(figures.save_figure(fig, args.output))
     return 0
@@ -271,7 +271,7 @@ def add_coverage_commands(commands):
         "coverage-map", help="map the (minimum) coverage of an interval over n and p"
     )
     chart.add_argument("--interval", default="wald", help=interval_help)
-    chart.add_argument("--level", default="0.95", help="a level of the cube: 0.9, 0.95 or 0.99")
+    chart.add_argument("--level", default="0.95", help="a level of the atlas: 0.9, 0.95 or 0.99")
     chart.add_argument(
         "--variable",
         default="min_coverage",
@@ -279,7 +279,11 @@ def add_coverage_commands(commands):
         "coverage (at the grid points)",
     )
     chart.add_argument(
-        "--cube", metavar="FILE", help="coverage cube file (default: the embedded one)"
+        "--atlas",
+        "--cube",  # the name of the option when the coverage cube was a file of its own
+        dest="atlas",
+        metavar="FILE",
+        help="an atlas file holding the coverage variables (default: the embedded atlas)",
     )
     chart.add_argument(
         "-o", "--output", required=True, metavar="FILE", help="FILE.png, FILE.svg or FILE.pdf"

@@ -1,8 +1,12 @@
 """The coverage cube: coverage, minimum coverage and expected width of confidence intervals for p
-over (interval, level, n, p), as an xarray Dataset and a NetCDF file.
+over (interval, level, n, p), as an xarray Dataset, and the coverage group of the atlas file.
 
-A companion of the error atlas, kept in its own Dataset and file (its grid is coarser and its
-dimensions differ, and the error atlas's schema is left alone):
+:func:`build_coverage_cube` computes it over a grid of its own (coarser than the atlas's);
+:func:`attach` adds it to an atlas Dataset as the ``coverage`` group of
+:data:`atlas.store.GROUPS` (dimensions renamed ``coverage_n`` and ``coverage_p``, so that they
+never clash with the atlas's n and p; :func:`coverage_part`), which :func:`atlas.build_atlas`
+does with ``coverage=True``; :func:`open_coverage_cube` reads it back from an atlas file with
+the dimensions named n and p again (:func:`coverage_view`). The cube, as built and as read:
 
 - dimensions and coordinates ``interval`` (the names of :data:`atlas.confidence.INTERVALS`, as
   fixed-width characters in the file), ``level`` (0.90, 0.95, 0.99 by default), ``n`` and ``p``;
@@ -18,7 +22,6 @@ The definitions are those of :mod:`atlas.confidence`.
 """
 
 from datetime import datetime, timezone
-from pathlib import Path
 
 import numpy as np
 
@@ -33,21 +36,25 @@ from atlas.confidence import (
     coverage,
     min_coverage_cells,
 )
-from atlas.files import replacing
 
 #: The default coverage grid: every n to 100, then 21 log-spaced n to 10^4; 61 p logit-spaced.
 DEFAULT_COVERAGE_N_SPEC = "1:100,log:100:10000:21"
 DEFAULT_COVERAGE_P_SPEC = "logit:0.001:0.999:61"
 DEFAULT_LEVELS = (0.9, 0.95, 0.99)
-COVERAGE_SCHEMA = "1"
 MAX_N = 10**6
+TITLE = "approx-atlas: coverage of confidence intervals for a binomial p"
+_COORD_ATTRS = {
+    "n": {"long_name": "number of trials", "units": "1"},
+    "p": {"long_name": "success probability", "units": "1"},
+}
 
 _VARIABLE_ATTRS = {
     "coverage": {
         "long_name": "coverage probability of the confidence interval",
         "units": "1",
         "description": "C(n, p) = sum over x = 0..n of b(x; n, p) [lo(x) <= p <= hi(x)], "
-        "closed intervals, endpoints as defined in atlas.confidence",
+        "closed intervals, endpoints as defined in atlas.confidence; n and p are coverage_n and "
+        "coverage_p in the atlas file",
     },
     "min_coverage": {
         "long_name": "minimum coverage over the p-cell",
@@ -122,10 +129,13 @@ def build_coverage_cube(
     >>> print(f"{float(ds.coverage.sel(interval='wilson', level=0.95, n=40, p=0.3)):.4f}")
     0.9443
     """
+    import time
+
     import xarray as xr
 
     from atlas.grid import parse_n, parse_p
 
+    started = time.perf_counter()
     n_spec = n if isinstance(n, str) else ",".join(str(int(v)) for v in n)
     p_spec = p if isinstance(p, str) else ",".join(repr(float(v)) for v in p)
     n_axis, p_axis = parse_n(n), parse_p(p)
@@ -165,94 +175,157 @@ def build_coverage_cube(
             "interval": (
                 "interval",
                 np.asarray(names, dtype=object),
-                {"long_name": "confidence interval for p"},
+                {
+                    "long_name": "confidence interval for p",
+                    "description": "wald, wald_cc, wilson, wilson_cc, agresti_coull, jeffreys, "
+                    "clopper_pearson: the endpoints lo(x), hi(x) defined in atlas.confidence "
+                    "(README: confidence intervals for p)",
+                },
             ),
             "level": (
                 "level",
                 np.asarray(levels),
-                {"long_name": "nominal confidence level", "units": "1"},
+                {
+                    "long_name": "nominal confidence level",
+                    "units": "1",
+                    "description": "the level of each interval, z = the (1 + level)/2 normal "
+                    "quantile; strictly increasing",
+                },
             ),
-            "n": ("n", n_axis, {"long_name": "number of trials", "units": "1"}),
-            "p": ("p", p_axis, {"long_name": "success probability", "units": "1"}),
+            "n": ("n", n_axis, dict(_COORD_ATTRS["n"])),
+            "p": ("p", p_axis, dict(_COORD_ATTRS["p"])),
         },
     )
     stamp = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    seconds = time.perf_counter() - started
     ds.attrs = {
-        "title": "approx-atlas: coverage of confidence intervals for a binomial p",
+        "title": TITLE,
         "Conventions": "CF-1.10",
         "source": f"approx-atlas {__version__}",
-        "history": f"{stamp} built by atlas.coverage_cube.build_coverage_cube",
+        "history": (
+            f"{stamp} approx-atlas {__version__} coverage: {n_axis.size} n x {p_axis.size} p x "
+            f"{len(names)} intervals x {len(levels)} levels, {seconds:.1f} s"
+        ),
         "references": _REFERENCES,
         "n_spec": n_spec,
         "p_spec": p_spec,
-        "coverage_schema": COVERAGE_SCHEMA,
         "p_cells": "split at logit-scale midpoints of neighbouring grid p; the ends at the "
         "first and last grid p",
     }
     return ds
 
 
-def save_coverage_cube(ds, path, *, overwrite=False):
-    """Write a coverage cube to NetCDF4 atomically (a temporary name, renamed when complete).
+#: Global attributes of the coverage view that the atlas file keeps under another name.
+_FILE_ATTRIBUTES = {"n_spec": "coverage_n_spec", "p_spec": "coverage_p_spec",
+                    "p_cells": "coverage_p_cells"}  # fmt: skip
+#: Dimensions of the view (the pages' n and p) and of the atlas file (never the atlas's n, p).
+_FILE_DIMENSIONS = {"n": "coverage_n", "p": "coverage_p"}
+COVERAGE_NOTE = (
+    "The coverage of confidence intervals for p (coverage, min_coverage over the p-cell of each "
+    "coverage_p, expected_width) over its own grid (coverage_n, coverage_p), every interval "
+    "named in interval at each level; the endpoints as defined in atlas.confidence, exact "
+    "(no p sampled). Any other n, p, band or level is computed exactly on demand by "
+    "atlas.coverage, atlas.min_coverage and atlas.expected_width."
+)
+
+
+def coverage_part(ds):
+    """The coverage view ``ds`` in the layout of the atlas file: the coverage group.
+
+    The dimensions n and p become ``coverage_n`` and ``coverage_p`` (never the atlas's n and
+    p), the intervals are stored in alphabetical order (as every index of the file), and the
+    grid attributes become ``coverage_n_spec``, ``coverage_p_spec`` and ``coverage_p_cells``.
 
     Parameters
     ----------
     ds : xarray.Dataset
         From :func:`build_coverage_cube`.
-    path : str or os.PathLike
-    overwrite : bool
-        If False, refuse an existing target.
 
     Returns
     -------
-    pathlib.Path
+    xarray.Dataset
+        For :func:`atlas.cube.attach`.
     """
-    path = Path(path)
-    missing = [v for v in ("coverage", "min_coverage", "expected_width") if v not in ds]
-    if missing:
-        raise ValueError(f"`ds` is not a coverage cube: it lacks {', '.join(missing)}.")
-    if path.exists() and not overwrite:
-        raise FileExistsError(
-            f"`path` exists: {str(path)!r}; pass overwrite (--force) to replace it."
+    names = [str(v) for v in ds["interval"].values]
+    part = ds.isel(interval=sorted(range(len(names)), key=names.__getitem__))
+    part = part.rename(_FILE_DIMENSIONS)
+    for old, new in _FILE_DIMENSIONS.items():
+        part[new].attrs = dict(part[new].attrs)
+        part[new].attrs["description"] = (
+            f"{old} of X ~ Bin(n, p) on the grid of the coverage variables; strictly increasing; "
+            f"see {new}_spec"
         )
-    encoding = {
-        name: {"zlib": True, "complevel": 6, "shuffle": True, "_FillValue": None}
-        for name in ("coverage", "min_coverage", "expected_width", "p_cell_lo", "p_cell_hi")
+    part.attrs = {_FILE_ATTRIBUTES[k]: v for k, v in ds.attrs.items() if k in _FILE_ATTRIBUTES}
+    part.attrs["coverage_note"] = COVERAGE_NOTE
+    part.attrs["references"] = _REFERENCES
+    if "history" in ds.attrs:
+        part.attrs["history"] = ds.attrs["history"]
+    return part
+
+
+def attach(atlas_ds, cube):
+    """The atlas Dataset with the coverage view ``cube`` added as its coverage group."""
+    from atlas.cube import attach as attach_group
+
+    return attach_group(atlas_ds, coverage_part(cube))
+
+
+def coverage_view(atlas_ds):
+    """The coverage group of an atlas Dataset as the coverage cube the pages and charts read.
+
+    Dimensions ``interval``, ``level``, ``n`` and ``p`` (renamed from ``coverage_n`` and
+    ``coverage_p``), the intervals in the order of :data:`atlas.confidence.INTERVALS`, the
+    attributes of :func:`build_coverage_cube` (``n_spec``, ``p_spec``, ``p_cells``; ``source``
+    and ``history`` those of the atlas).
+
+    Raises
+    ------
+    ValueError
+        If the atlas holds no coverage variables.
+    """
+    from atlas.cube import group_part
+
+    part = group_part(atlas_ds, "coverage")
+    names = [v.decode() if isinstance(v, bytes) else str(v) for v in part["interval"].values]
+    part = part.assign_coords(
+        interval=("interval", np.asarray(names, dtype=object), part["interval"].attrs)
+    )
+    order = sorted(range(len(names)), key=lambda i: INTERVALS.index(names[i]))
+    view = part.isel(interval=order).rename({new: old for old, new in _FILE_DIMENSIONS.items()})
+    for old in _FILE_DIMENSIONS:
+        view[old].attrs = dict(_COORD_ATTRS[old])
+    attrs = {
+        "title": TITLE,
+        "Conventions": "CF-1.10",
+        "source": part.attrs.get("source", ""),
+        "history": part.attrs.get("history", ""),
+        "references": _REFERENCES,
     }
-    # Fixed-width characters, as the error atlas stores its names (see atlas.store).
-    encoding["interval"] = {"dtype": "S1", "char_dim_name": "interval_strlen"}
-    for name in ("level", "n", "p"):
-        encoding[name] = {"_FillValue": None}
-    with replacing(path) as tmp:
-        ds.to_netcdf(tmp, engine="netcdf4", format="NETCDF4", encoding=encoding)
-    return path
-
-
-def default_coverage_path():
-    """The path of the embedded coverage cube (the default grid, all intervals and levels)."""
-    return Path(__file__).with_name("data") / "coverage_cube.nc"
+    attrs.update({k: part.attrs[v] for k, v in _FILE_ATTRIBUTES.items() if v in part.attrs})
+    view.attrs = attrs
+    return view
 
 
 def open_coverage_cube(path=None):
-    """Read a coverage cube written by :func:`save_coverage_cube` into memory.
+    """The coverage variables of an atlas file, read into memory, as the coverage cube.
 
     Parameters
     ----------
     path : str or os.PathLike, optional
-        Default: the embedded cube (:func:`default_coverage_path`).
+        An atlas file holding the coverage variables (``approx-atlas build --coverage``);
+        default the embedded atlas.
+
+    Returns
+    -------
+    xarray.Dataset
+        :func:`coverage_view` of the file: dimensions ``interval``, ``level``, ``n`` and ``p``.
+
+    Raises
+    ------
+    FileNotFoundError, ValueError
+        As :func:`atlas.cube.load_dataset`; ValueError if the atlas holds no coverage variables.
     """
-    import xarray as xr
+    from atlas import cube, store
 
-    path = default_coverage_path() if path is None else Path(path)
-    if not path.is_file():
-        raise FileNotFoundError(f"`path` is not a file: {str(path)!r}.")
-
-    ds = xr.load_dataset(path, engine="netcdf4")
-    if ds.attrs.get("coverage_schema") != COVERAGE_SCHEMA:
-        raise ValueError(
-            f"`path` is not a coverage cube of schema {COVERAGE_SCHEMA}: {str(path)!r}."
-        )
-    names = [v.decode() if isinstance(v, bytes) else str(v) for v in ds["interval"].values]
-    return ds.assign_coords(
-        interval=("interval", np.asarray(names, dtype=object), ds["interval"].attrs)
-    )
+    with cube.load_dataset(store.default_path() if path is None else path) as ds:
+        return coverage_view(ds).load()

@@ -8,8 +8,9 @@
   SVG map per interval and the minimum-n tables beside them, into an existing directory.
 - :func:`write_coverage_sheet`: the section alone as a multi-page PDF.
 
-Every file is written under a temporary name and renamed when complete. The tables come from
-:func:`atlas.coverage_table`.
+Every file is written under a temporary name and renamed when complete. The maps come from the
+coverage variables of the atlas (:func:`atlas.coverage_cube.open_coverage_cube`), the tables
+from :func:`atlas.coverage_table`.
 """
 
 import functools
@@ -68,7 +69,7 @@ NOTES = (
 
 
 def load_coverage_data():
-    """The coverage dataset the pages draw their maps from: the embedded coverage cube.
+    """The coverage dataset the pages draw their maps from: the coverage variables of the embedded atlas (schema 4).
 
     The one place that says where the coverage variables live; the sheet and wiki page call it
     only when no dataset is passed to them.

@@ -15,7 +15,11 @@ The layout (schema version :data:`atlas.store.SCHEMA_VERSION`):
   ``comment`` (the caution), ``n_spec``, ``p_spec``, ``atlas_schema``, ``tail_tolerance``,
   ``error_precision``, ``checksum`` (SHA-256 of the names, coordinates and data, see
   :func:`data_checksum`), ``checksum_variables``, ``checksum_recipe`` and ``attribute_notes``
-  (one line per attribute saying what it means, :data:`ATTRIBUTE_NOTES`).
+  (one line per attribute saying what it means, :data:`ATTRIBUTE_NOTES`);
+- optionally the groups of :data:`atlas.store.GROUPS`, each over dimensions of its own and with
+  global attributes of its own, added by :func:`attach`: the tail relative error and the size
+  of tests (built by :mod:`atlas.decision_cube`) and the coverage of confidence intervals
+  (built by :mod:`atlas.coverage_cube`).
 
 The dimension is ``approximation``, not ``method``: ``method`` is a keyword of xarray's
 ``.sel()``, so ``ds.interval_error.sel(approximation="normal_cc", n=50, p=0.1)`` works as typed.
@@ -146,7 +150,8 @@ ATTRIBUTE_NOTES = {
     ),
     "atlas_schema": (
         "The version of this file layout (dimensions approximation, n and p, the variables and "
-        "these attributes); a reader refuses a version it does not know."
+        "these attributes, and the optional tail, test-size and coverage variables over "
+        "dimensions of their own); a reader refuses a version it does not know."
     ),
     "tail_tolerance": (
         "The bound, checked in every cell, on |F(k) - G(k)| at each k the exact search leaves "
@@ -161,6 +166,35 @@ ATTRIBUTE_NOTES = {
     "checksum": (
         "'sha256:' and the SHA-256 digest of the names and values, computed as checksum_recipe "
         "says; recompute it to detect damaged or altered values."
+    ),
+    "decision_n_spec": (
+        "The n axis (dimension decision_n) of the tail and test-size variables, in the form of "
+        "n_spec; `approx-atlas build --decision-n` with it gives the same axis."
+    ),
+    "decision_p_spec": (
+        "The p axis (dimension decision_p; p0 for the tests) of the tail and test-size "
+        "variables, in the form of p_spec; `approx-atlas build --decision-p` with it gives the "
+        "same axis."
+    ),
+    "decision_note": (
+        "Why the tail and test-size variables have a grid of their own, and how other cells "
+        "and levels are obtained."
+    ),
+    "coverage_n_spec": (
+        "The n axis (dimension coverage_n) of the coverage variables, in the form of n_spec; "
+        "`approx-atlas build --coverage-n` with it gives the same axis."
+    ),
+    "coverage_p_spec": (
+        "The p axis (dimension coverage_p) of the coverage variables, in the form of p_spec; "
+        "`approx-atlas build --coverage-p` with it gives the same axis."
+    ),
+    "coverage_p_cells": (
+        "How the p-cell [p_cell_lo, p_cell_hi] of each coverage_p is cut, over which "
+        "min_coverage is the exact minimum."
+    ),
+    "coverage_note": (
+        "What the coverage variables are, on which grid, and how other cells and levels are "
+        "obtained."
     ),
     "checksum_variables": "The variables whose values enter the checksum, in order, "
     "separated by spaces.",
@@ -244,19 +278,121 @@ def make_dataset(n, p, methods, arrays, *, n_spec, p_spec, history, tail_toleran
         "atlas_schema": store.SCHEMA_VERSION,
         "tail_tolerance": float(tail_tolerance),
         "error_precision": "float64",
-        "checksum": data_checksum(ds),
-        "checksum_variables": " ".join(store.CHECKSUM_VARIABLES),
-        "checksum_recipe": store.CHECKSUM_RECIPE,
-        "attribute_notes": "\n".join(f"{k}: {v}" for k, v in ATTRIBUTE_NOTES.items()),
     }
+    return _seal(ds)
+
+
+#: The attributes that close every atlas's list, in this order, after any group's.
+_CLOSING = ("checksum", "checksum_variables", "checksum_recipe", "attribute_notes")
+
+
+def _seal(ds):
+    """``ds`` with its closing attributes (re)computed: the checksum over the variables of the
+    groups it holds, their list, the recipe and one note per attribute, in the file's order."""
+    attrs = {k: v for k, v in ds.attrs.items() if k not in _CLOSING}
+    attrs["checksum"] = data_checksum(ds)
+    attrs["checksum_variables"] = " ".join(store.checksum_variables(store.groups_in(ds.variables)))
+    attrs["checksum_recipe"] = store.CHECKSUM_RECIPE
+    attrs["attribute_notes"] = ""
+    attrs["attribute_notes"] = "\n".join(
+        f"{k}: {ATTRIBUTE_NOTES[k]}" for k in attrs if k in ATTRIBUTE_NOTES
+    )
+    ds.attrs = attrs
     return ds
+
+
+def attach(ds, part):
+    """The atlas ``ds`` with one group of variables (:data:`atlas.store.GROUPS`) added.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        An atlas Dataset (:func:`make_dataset`), with or without the other group.
+    part : xarray.Dataset
+        The variables of one group with their index coordinates and attributes, over the
+        dimensions of the file (from :func:`atlas.decision_cube.decision_dataset` or
+        :func:`atlas.coverage_cube.coverage_part`). Its global attributes are the group's
+        (``atlas.store.GROUPS[...].attributes``) and optionally ``history`` (appended to the
+        atlas's) and ``references`` (added to the atlas's).
+
+    Returns
+    -------
+    xarray.Dataset
+        A new Dataset: the group's attributes after the atlas's own and before the checksum,
+        ``checksum``, ``checksum_variables`` and ``attribute_notes`` redone.
+
+    Raises
+    ------
+    ValueError
+        If ``part`` is not one whole group, the atlas holds that group already, the group is
+        over other approximations than the atlas's, or an index is out of order.
+    """
+    import xarray as xr
+
+    groups = store.groups_in(part.variables)
+    if len(groups) != 1:
+        raise ValueError(
+            f"`part` must hold the variables of one group of {', '.join(store.GROUPS)}; got "
+            f"{len(groups)}."
+        )
+    (key,) = groups
+    group = store.GROUPS[key]
+    if key in store.groups_in(ds.variables):
+        raise ValueError(f"`ds` holds the {key} variables already.")
+    _check_groups(part, "`part`")
+    if store.APPROXIMATION in part.dims:
+        mine, theirs = list(ds[store.APPROXIMATION].values), list(part[store.APPROXIMATION].values)
+        if [str(m) for m in mine] != [str(m) for m in theirs]:
+            raise ValueError(
+                f"`part` must hold the atlas's approximations ({', '.join(map(str, mine))}); got "
+                f"{', '.join(map(str, theirs))}."
+            )
+    keep = [*group.names(), *(d for d in part.dims if d not in group.names())]
+    body = part[[name for name in group.names() if name in part.data_vars]]
+    body = body.drop_vars([c for c in body.coords if c not in keep])
+    if store.APPROXIMATION in body.coords:
+        body = body.drop_vars(store.APPROXIMATION)
+    merged = xr.merge([ds, body], combine_attrs="drop_conflicts", join="exact")
+    attrs = {k: v for k, v in ds.attrs.items() if k not in _CLOSING}
+    for name in group.attributes:
+        attrs[name] = part.attrs[name]
+    if part.attrs.get("history"):
+        attrs["history"] = f"{attrs.get('history', '')}\n{part.attrs['history']}".strip()
+    if part.attrs.get("references") and part.attrs["references"] not in attrs["references"]:
+        attrs["references"] = f"{attrs['references']}; {part.attrs['references']}"
+    merged.attrs = attrs
+    return _seal(merged)
+
+
+def group_part(ds, key):
+    """The variables of group ``key`` of an atlas Dataset, with their coordinates and the
+    group's global attributes (and the atlas's ``source``, ``history`` and ``references``).
+
+    Raises
+    ------
+    ValueError
+        If ``ds`` does not hold the group.
+    """
+    group = store.GROUPS[key]
+    if key not in store.groups_in(ds.variables):
+        raise ValueError(
+            f"the atlas holds no {key} variables; build it with them "
+            f"({'--decisions' if key == 'decisions' else '--coverage'} of approx-atlas build)."
+        )
+    part = ds[[name for name in group.variables]]
+    part = part.drop_vars([c for c in part.coords if c not in group.names()
+                           and c != store.APPROXIMATION])  # fmt: skip
+    keys = ("source", "history", "references", *group.attributes)
+    part.attrs = {k: ds.attrs[k] for k in keys if k in ds.attrs}
+    return part
 
 
 #: Significant bits kept of each stored accuracy (rounded up): 4, so at most 12.5% above the
 #: bound computed. With shuffle and zlib an accuracy variable then takes about a tenth of the
 #: space of an error variable (measured on the default p axis, 240 n from 1 to 10^8: 0.11 MB
 #: against 0.95 MB); with all 24 bits it would take as much, and the embedded atlas would pass
-#: its 25 MB package-data limit.
+#: its package-data limit (25 MB then; 40 MB since it holds the tail, test-size and coverage
+#: variables too).
 ACCURACY_BITS = 4
 
 
@@ -335,7 +471,8 @@ def data_checksum(ds):
     """SHA-256 over the approximation names, coordinates and data variables of an atlas Dataset.
 
     The digest covers the names (UTF-8, each followed by a line feed), then the raw
-    little-endian bytes of n, p and each data variable in C order (the recipe is the
+    little-endian bytes of n, p and each data variable in C order, then those of each group it
+    holds (indexes first; :func:`atlas.store.checksum_variables`; the recipe is the
     ``checksum_recipe`` attribute, :data:`atlas.store.CHECKSUM_RECIPE`), so it changes with any
     value. It is :func:`atlas.store.checksum` of the Dataset's values, the digest the file
     readers check.
@@ -345,7 +482,24 @@ def data_checksum(ds):
     str
         ``"sha256:<hex digest>"``.
     """
-    return store.checksum(ds[store.APPROXIMATION].values, lambda name: ds[name].values)
+
+    return store.checksum(_reader(ds), store.checksum_variables(store.groups_in(ds.variables)))
+
+
+def _reader(ds):
+    """``read(name)`` for :mod:`atlas.store`: the names of a name index as str, else values."""
+
+    def read(name):
+        values = ds[name].values
+        return [str(v) for v in values] if name in store.NAME_INDEXES else values
+
+    return read
+
+
+def _check_groups(ds, where):
+    """:func:`atlas.store.check_groups` on a Dataset: the groups it holds, checked."""
+    dims = {name: var.dims for name, var in ds.variables.items()}
+    return store.check_groups(dims, _reader(ds), where)
 
 
 def compact(ds, precision="float32"):
@@ -410,8 +564,7 @@ def compact(ds, precision="float32"):
             f"{ds.attrs.get('history', '')}\n{stamp} approx-atlas {__version__} compact: "
             f"interval_error and cdf_error stored as {precision}"
         ).strip()
-    out.attrs["checksum"] = data_checksum(out)
-    return out
+    return _seal(out)
 
 
 def save_atlas(ds, path, *, overwrite=True):
@@ -456,6 +609,7 @@ def save_atlas(ds, path, *, overwrite=True):
         raise ValueError(f"`ds` is not an atlas Dataset: it lacks {', '.join(missing)}.")
     names = [str(m) for m in ds[store.APPROXIMATION].values]
     store.check_axes({store.APPROXIMATION: names, "n": ds["n"].values, "p": ds["p"].values}, "`ds`")
+    groups = _check_groups(ds, "`ds`")
     if path.exists() and not overwrite:
         raise FileExistsError(
             f"`path` exists: {str(path)!r}; pass overwrite (--force) to replace it."
@@ -472,7 +626,17 @@ def save_atlas(ds, path, *, overwrite=True):
         }
         for name in store.DATA_VARIABLES
     }
-    encoding[store.APPROXIMATION] = {"dtype": "S1", "char_dim_name": store.APPROXIMATION_STRLEN}
+    for key in groups:
+        for name in store.GROUPS[key].variables:
+            shape = ds[name].shape
+            # One chunk per grid of cells (the last two dimensions), as for the errors.
+            encoding[name] = dict(encoding[store.DATA_VARIABLES[0]],
+                                  chunksizes=(1,) * (len(shape) - 2) + shape[-2:])  # fmt: skip
+        for name in store.GROUPS[key].indexes:
+            encoding[name] = {"_FillValue": None}
+    for name in store.NAME_INDEXES:
+        if name in ds.variables:
+            encoding[name] = {"dtype": "S1", "char_dim_name": f"{name}_strlen"}
     encoding["n"] = {"_FillValue": None}
     encoding["p"] = {"_FillValue": None}
     with replacing(path) as tmp:
@@ -549,7 +713,11 @@ def verify_checksum(ds, path=None):
     except Exception as err:  # netCDF4 raises RuntimeError (HDF error) for a damaged chunk
         raise store.unreadable(err, path) from None
     return store.verify_digest(
-        ds.attrs.get("checksum"), data_checksum(ds), path, ds.attrs.get("checksum_variables")
+        ds.attrs.get("checksum"),
+        data_checksum(ds),
+        path,
+        ds.attrs.get("checksum_variables"),
+        store.checksum_variables(store.groups_in(ds.variables)),
     )
 
 
@@ -581,6 +749,25 @@ def describe_dataset(ds, path=None, *, width=100):
         lines.append(f"file: {path} ({size / 1e6:.2f} MB, {size} bytes)")
     grid = f"grid: {describe_grid(ds['n'].values, ds['p'].values)}"
     lines.extend(textwrap.wrap(grid, width, subsequent_indent=" " * 4))
+    groups = store.groups_in(ds.variables)
+
+    def listed(name):
+        return ", ".join(str(v) if name in store.NAME_INDEXES else f"{float(v):g}"
+                         for v in ds[name].values)  # fmt: skip
+
+    shown = {  # group: (what, its n and p, its other indexes with their words)
+        "decisions": ("tail and test-size", "decision", (("tail levels", "tail_level"),
+                                                         ("test levels", "test_level"))),
+        "coverage": ("coverage", "coverage", (("intervals", "interval"), ("levels", "level"))),
+    }  # fmt: skip
+    for key in groups:
+        what, prefix, indexes = shown[key]
+        text = (
+            f"{what} grid ({prefix}_n, {prefix}_p): "
+            f"{describe_grid(ds[f'{prefix}_n'].values, ds[f'{prefix}_p'].values)}; "
+            + "; ".join(f"{words} {listed(name)}" for words, name in indexes)
+        )
+        lines.extend(textwrap.wrap(text, width, subsequent_indent=" " * 4))
     names = [str(m) for m in ds[store.APPROXIMATION].values]
     lines.append(
         f"approximations ({len(names)}; the names --method takes; dimension "
@@ -588,7 +775,8 @@ def describe_dataset(ds, path=None, *, width=100):
     )
     lines.extend(f"  {m}: {METHOD_DESCRIPTIONS.get(m, 'not described')}" for m in names)
     lines.append("variables:")
-    for name in store.DATA_VARIABLES:
+    extra = [name for key in groups for name in store.GROUPS[key].variables]
+    for name in (*store.DATA_VARIABLES, *extra):
         var = ds[name]
         text = (
             f"{name}({', '.join(var.dims)}) {var.dtype}, units {var.attrs.get('units', '?')!r}: "

@@ -14,11 +14,15 @@ The grid is coarser than the atlas's (``DECISION_N``: every n to 200, then 121 n
 metrics costs a few milliseconds at large n and the embedded file must stay small; its
 dimensions are ``decision_n`` and ``decision_p`` so that they never clash with the atlas's ``n``
 and ``p``. Any other cell, level or method is computed on demand by :mod:`atlas.tails` and
-:mod:`atlas.sizes`. :func:`attach` merges the variables into an atlas Dataset.
+:mod:`atlas.sizes`.
 
-This module builds the Dataset only; writing it into the atlas file (a schema change) is left
-to :mod:`atlas.cube` and :mod:`atlas.store`.
+This module builds the group's Dataset (the ``decisions`` group of :data:`atlas.store.GROUPS`);
+:func:`attach` adds it to an atlas Dataset (:func:`atlas.cube.attach`), which
+:func:`atlas.build_atlas` does with ``decisions=True``; :func:`open_decision_cube` reads it back
+from an atlas file. Writing and checking the file is :mod:`atlas.cube` and :mod:`atlas.store`.
 """
+
+from datetime import datetime, timezone
 
 import numpy as np
 
@@ -27,7 +31,15 @@ from atlas.grid import parse_n, parse_p
 from atlas.sizes import ALTERNATIVES, cell_all_sizes
 from atlas.tails import cell_tail_errors, error_bound
 
-__all__ = ["DECISION_N", "DECISION_P", "TAIL_LEVELS", "TEST_LEVELS", "attach", "decision_dataset"]
+__all__ = [
+    "DECISION_N",
+    "DECISION_P",
+    "TAIL_LEVELS",
+    "TEST_LEVELS",
+    "attach",
+    "decision_dataset",
+    "open_decision_cube",
+]
 
 DECISION_N = "1:200,log:200:100000000:121"
 DECISION_P = "logit:0.0001:0.9999:41,0.5"
@@ -43,9 +55,10 @@ ATTRIBUTES = {
         "description": (
             "lower: max over 0 <= k <= n with F(k) >= alpha of |G(k)/F(k) - 1|; upper: max over "
             "0 <= k <= n with P(X >= k) >= alpha of |(1 - G(k-1))/P(X >= k) - 1|; alpha = "
-            "tail_level, X ~ Bin(n, p), F its CDF, G the approximation. Every tail probability "
-            "of at least alpha is approximated within it. Exact (every admitted k accounted "
-            "for), accurate to about (1 + value) 1e-12 before storage."
+            "tail_level, X ~ Bin(n, p) with n = decision_n and p = decision_p, F its CDF, G the "
+            "approximation. Every tail probability of at least alpha is approximated within it. "
+            "Exact (every admitted k accounted for), accurate to about (1 + value) 1e-12 before "
+            "storage as float32 (7 significant digits)."
         ),
     },
     "test_size": {
@@ -53,10 +66,11 @@ ATTRIBUTES = {
         "units": "1",
         "description": (
             "P(reject H0 | H0 true) for H0: p = p0 = decision_p at nominal level alpha = "
-            "test_level, X ~ Bin(n, p0), b its pmf: less = sum of b(k) over G(k) <= alpha; "
+            "test_level, X ~ Bin(n, p0) with n = decision_n, b its pmf: less = sum of b(k) over "
+            "G(k) <= alpha; "
             "greater = sum of b(k) over 1 - G(k-1) <= alpha; two-sided = sum of b(k) over "
             "G(k) <= alpha/2 or 1 - G(k-1) <= alpha/2. Exact, accurate to about 1e-12 relative "
-            "before storage."
+            "before storage as float32 (7 significant digits)."
         ),
     },
     "exact_test_size": {
@@ -64,7 +78,7 @@ ATTRIBUTES = {
         "units": "1",
         "description": (
             "the same sums as test_size with F(k) in place of G(k) and P(X >= k) in place of "
-            "1 - G(k-1); at most test_level. The same for every approximation."
+            "1 - G(k-1); at most test_level. The same for every approximation; float64."
         ),
     },
 }
@@ -118,8 +132,15 @@ def decision_dataset(
     >>> round(float(ds.test_size.sel(alternative="greater", test_level=0.05).item()), 4)
     0.0579
     """
+    import time
+
     import xarray as xr
 
+    from atlas import __version__
+
+    started = time.perf_counter()
+    n_spec = n if isinstance(n, str) else ",".join(str(int(v)) for v in parse_n(n))
+    p_spec = p if isinstance(p, str) else ",".join(repr(float(v)) for v in parse_p(p))
     n_axis, p_axis = parse_n(n), parse_p(p)
     methods = tuple(sorted({check_method(m) for m in methods}))
     # Index coordinates strictly increasing, as the atlas file requires of every index.
@@ -139,10 +160,10 @@ def decision_dataset(
     sizes = np.stack([r[1] for r in results]).reshape(shape + (3, len(test_levels)))
     exact = np.stack([r[2] for r in results]).reshape(shape + (3, len(test_levels)))[0]
     coords = {
-        "approximation": list(methods),
-        "tail": list(TAILS),
+        "approximation": np.asarray(methods, dtype=object),
+        "tail": np.asarray(TAILS, dtype=object),
         "tail_level": list(tail_levels),
-        "alternative": list(_ALTERNATIVES),
+        "alternative": np.asarray(_ALTERNATIVES, dtype=object),
         "test_level": list(test_levels),
         "decision_n": n_axis,
         "decision_p": p_axis,
@@ -166,43 +187,98 @@ def decision_dataset(
     )
     for name, attrs in ATTRIBUTES.items():
         ds[name].attrs.update(attrs)
-    ds["tail"].attrs.update(long_name="tail", description="lower: P(X <= k); upper: P(X >= k)")
-    ds["tail_level"].attrs.update(long_name="smallest tail probability admitted (alpha)", units="1")
-    ds["alternative"].attrs.update(
-        long_name="alternative hypothesis", description="as scipy.stats.binomtest names them"
-    )
-    ds["test_level"].attrs.update(long_name="nominal level of the test (alpha)", units="1")
-    ds["decision_n"].attrs.update(long_name="number of trials (grid of the decision metrics)",
-                                  units="1")  # fmt: skip
-    ds["decision_p"].attrs.update(
-        long_name="success probability, p0 for the tests (grid of the decision metrics)",
-        units="1",
-    )
+    for name, attrs in COORDINATE_ATTRIBUTES.items():
+        ds[name].attrs.update(attrs)
+    seconds = time.perf_counter() - started
+    stamp = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
     ds.attrs.update(
-        decision_grid=f"n: {n}; p: {p}" if isinstance(n, str) and isinstance(p, str) else "",
+        decision_n_spec=n_spec,
+        decision_p_spec=p_spec,
         decision_note=(
             "The tail and test-size metrics are stored on their own grid (decision_n, "
-            "decision_p), coarser than the atlas's; any other cell, level or method is computed "
-            "exactly on demand by atlas.tail_error and atlas.test_size."
+            "decision_p), coarser than the atlas's, for every approximation of the atlas, "
+            "tail_error and test_size as float32 (7 significant digits), exact_test_size as "
+            "float64; any other cell, level or method is computed exactly on demand by "
+            "atlas.tail_error and atlas.test_size."
+        ),
+        history=(
+            f"{stamp} approx-atlas {__version__} decisions: {n_axis.size} n x {p_axis.size} p "
+            f"x {len(methods)} methods, {len(tail_levels)} tail and {len(test_levels)} test "
+            f"levels with {workers or 1} worker process(es), {seconds:.1f} s"
         ),
     )
     return ds
+
+
+#: The attributes of the group's index coordinates.
+COORDINATE_ATTRIBUTES = {
+    "tail": {
+        "long_name": "tail of the distribution",
+        "description": "lower: the lower tails P(X <= k), approximated by G(k); upper: the upper "
+        "tails P(X >= k) = 1 - F(k-1), approximated by 1 - G(k-1)",
+    },
+    "tail_level": {
+        "long_name": "smallest tail probability admitted (alpha)",
+        "units": "1",
+        "description": "tail_error counts the tails of probability at least alpha; strictly "
+        "increasing",
+    },
+    "alternative": {
+        "long_name": "alternative hypothesis of the test of H0: p = p0",
+        "description": "less (reject for small X), greater (reject for large X), two-sided; as "
+        "scipy.stats.binomtest names them, in alphabetical order",
+    },
+    "test_level": {
+        "long_name": "nominal level of the test (alpha)",
+        "units": "1",
+        "description": "the test rejects H0 when its p-value is at most alpha (alpha/2 in each "
+        "tail for two-sided); strictly increasing",
+    },
+    "decision_n": {
+        "long_name": "number of trials (grid of the tail and test-size variables)",
+        "units": "1",
+        "description": "n of X ~ Bin(n, p); strictly increasing; see decision_n_spec",
+    },
+    "decision_p": {
+        "long_name": "success probability, p0 for the tests (grid of the tail and test-size "
+        "variables)",
+        "units": "1",
+        "description": "p of X ~ Bin(n, p), 0 < p < 1; strictly increasing; see decision_p_spec",
+    },
+}
 
 
 def attach(atlas_ds, decision_ds):
     """The atlas Dataset with the decision variables, their coordinates and notes added.
 
     The approximations must be the same (the decision variables share the ``approximation``
-    dimension).
+    dimension); see :func:`atlas.cube.attach`.
     """
-    import xarray as xr
+    from atlas.cube import attach as attach_group
 
-    if list(atlas_ds["approximation"].values) != list(decision_ds["approximation"].values):
-        raise ValueError(
-            "`decision_ds` must hold the atlas's approximations; got "
-            f"{list(decision_ds['approximation'].values)}."
-        )
-    merged = xr.merge([atlas_ds, decision_ds], combine_attrs="override")
-    merged.attrs.update(atlas_ds.attrs)
-    merged.attrs.update({k: decision_ds.attrs[k] for k in ("decision_grid", "decision_note")})
-    return merged
+    return attach_group(atlas_ds, decision_ds)
+
+
+def open_decision_cube(path=None):
+    """The tail and test-size variables of an atlas file, read into memory.
+
+    Parameters
+    ----------
+    path : str or os.PathLike, optional
+        An atlas file holding them; default the embedded atlas.
+
+    Returns
+    -------
+    xarray.Dataset
+        ``tail_error``, ``test_size`` and ``exact_test_size`` over their own dimensions
+        (``decision_n``, ``decision_p``, ...), with the group's attributes.
+
+    Raises
+    ------
+    FileNotFoundError, ValueError
+        As :func:`atlas.cube.load_dataset`; ValueError if the file holds no such variables.
+    """
+    from atlas import cube, store
+
+    with cube.load_dataset(store.default_path() if path is None else path) as ds:
+        return cube.group_part(ds, "decisions").load()

@@ -9,9 +9,18 @@ approximation names in code-point (alphabetical) order, n and p numerically, so 
 characters (dimensions ``approximation`` and ``approximation_strlen``); variable-length strings
 are read too, both as Python str.
 
+Beside the error atlas a file may hold two groups of variables, each over dimensions of its own
+(:data:`GROUPS`): ``decisions`` (the tail relative error and the size of tests, over ``tail``,
+``tail_level``, ``alternative``, ``test_level``, ``decision_n`` and ``decision_p``) and
+``coverage`` (the coverage of confidence intervals for p, over ``interval``, ``level``,
+``coverage_n`` and ``coverage_p``). A group is there whole or not at all; its index coordinates
+are strictly increasing too (names in code-point order: ``tail``, ``alternative`` and
+``interval`` are fixed-width characters, as ``approximation``).
+
 Schema "1" called the first dimension ``method``, which is also the keyword of xarray's
-``.sel()``; schema "2" had no accuracy variables (``interval_accuracy``, ``cdf_accuracy``). Files
-of either are refused with the command that rebuilds them (:func:`rebuild_command`).
+``.sel()``; schema "2" had no accuracy variables (``interval_accuracy``, ``cdf_accuracy``);
+schema "3" had no room for the decision and coverage groups. Files of these are refused with the
+command that rebuilds them (:func:`rebuild_command`).
 
 Everything here reads the file with netCDF4 directly and imports neither xarray nor pandas nor
 dask (xarray imports dask while it decodes the name strings whenever dask is installed), so
@@ -42,13 +51,18 @@ __all__ = [
     "CHECKSUM_VARIABLES",
     "DATA_VARIABLES",
     "DIMENSIONS",
+    "GROUPS",
+    "NAME_INDEXES",
     "OLD_SCHEMAS",
     "SCHEMA_VERSION",
     "AtlasFile",
     "approximation_names",
     "check_axes",
+    "check_groups",
     "checksum",
+    "checksum_variables",
     "default_path",
+    "groups_in",
     "open_netcdf",
     "rebuild_command",
     "release",
@@ -59,7 +73,11 @@ __all__ = [
     "verify_file",
 ]
 
-SCHEMA_VERSION = "3"
+SCHEMA_VERSION = "4"
+#: What a file of this schema holds, for the message that refuses an older one.
+SCHEMA_SUMMARY = (
+    "with an accuracy beside every error, and room for the tail, test-size and coverage variables"
+)
 DATA_VARIABLES = (
     "interval_error",
     "cdf_error",
@@ -72,29 +90,99 @@ DATA_VARIABLES = (
 OLD_SCHEMAS = {
     "1": "dimension 'method', no accuracy variables",
     "2": "no interval_accuracy and cdf_accuracy variables",
+    "3": "no room for the tail, test-size and coverage variables",
 }
 #: The dimension (and coordinate) of the approximation names.
 APPROXIMATION = "approximation"
 DIMENSIONS = (APPROXIMATION, "n", "p")
 #: The character dimension of the fixed-width approximation names.
 APPROXIMATION_STRLEN = "approximation_strlen"
-#: The variables whose values enter the checksum, in order (the attribute ``checksum_variables``).
-CHECKSUM_VARIABLES = ("n", "p", *DATA_VARIABLES)
+#: Index coordinates of names (strings), stored as fixed-width characters over ``<name>_strlen``
+#: and ordered by code point; every other index is numeric and strictly increasing.
+NAME_INDEXES = (APPROXIMATION, "tail", "alternative", "interval")
+
+
+class Group:
+    """One optional group of variables of an atlas file: its index coordinates (in the order
+    they enter the checksum), its variables with their dimensions, and its global attributes."""
+
+    def __init__(self, indexes, variables, attributes):
+        self.indexes = tuple(indexes)
+        self.variables = dict(variables)
+        self.attributes = tuple(attributes)
+
+    def names(self):
+        """Every variable of the group, indexes first: the order of the checksum."""
+        return (*self.indexes, *self.variables)
+
+
+_DECISION_CELL = ("decision_n", "decision_p")
+_COVERAGE_CELL = ("interval", "level", "coverage_n", "coverage_p")
+#: The optional groups: ``decisions`` (atlas.decision_cube) and ``coverage`` (atlas.coverage_cube).
+GROUPS = {
+    "decisions": Group(
+        ("tail", "tail_level", "alternative", "test_level", *_DECISION_CELL),
+        {
+            "tail_error": (APPROXIMATION, "tail", "tail_level", *_DECISION_CELL),
+            "test_size": (APPROXIMATION, "alternative", "test_level", *_DECISION_CELL),
+            "exact_test_size": ("alternative", "test_level", *_DECISION_CELL),
+        },
+        ("decision_n_spec", "decision_p_spec", "decision_note"),
+    ),
+    "coverage": Group(
+        _COVERAGE_CELL,
+        {
+            "p_cell_lo": ("coverage_p",),
+            "p_cell_hi": ("coverage_p",),
+            "coverage": _COVERAGE_CELL,
+            "min_coverage": _COVERAGE_CELL,
+            "expected_width": _COVERAGE_CELL,
+        },
+        ("coverage_n_spec", "coverage_p_spec", "coverage_p_cells", "coverage_note"),
+    ),
+}
+#: The variables whose values enter the checksum of an atlas without groups, in order (the
+#: attribute ``checksum_variables``; :func:`checksum_variables` adds those of each group).
+CHECKSUM_VARIABLES = (APPROXIMATION, "n", "p", *DATA_VARIABLES)
 #: How the checksum is computed, in words a reader in any language can follow (the attribute
 #: ``checksum_recipe``; the README states it too).
 CHECKSUM_RECIPE = (
-    "SHA-256 over these bytes, in this order: first the approximation names, in the order of "
-    "the approximation dimension, each encoded in UTF-8 without padding and followed by one "
-    "line feed byte (0x0A); then, for each variable named in checksum_variables, in that "
-    "order, all its values as the raw little-endian bytes of the type stored in this file "
-    "(int64 for n, interval_lo and interval_hi; float64 for p; float64, or float32 where "
-    "error_precision says so, for interval_error and cdf_error; float32 for interval_accuracy "
-    "and cdf_accuracy), in C (row-major) order: the "
-    "variable's last dimension varies fastest (Fortran, R and Julia readers, which list the "
-    "dimensions reversed, take their arrays in native column-major order). Nothing else enters "
-    "the digest: no variable names, separators, shapes or attributes. The checksum attribute "
-    "is 'sha256:' followed by the digest in 64 lower-case hexadecimal digits."
+    "SHA-256 over these bytes, in this order: for each variable named in checksum_variables, "
+    "in that order, its values. A variable of names (characters: approximation, tail, "
+    "alternative, interval) gives each name, in the order of its dimension, encoded in UTF-8 "
+    "without padding and followed by one line feed byte (0x0A). Any other gives all its values "
+    "as the raw little-endian bytes of the type stored in this file (int64 for n, decision_n, "
+    "coverage_n, interval_lo and interval_hi; float64 for p, the levels, decision_p, "
+    "coverage_p, p_cell_lo, p_cell_hi, exact_test_size, coverage, min_coverage and "
+    "expected_width; float64, or float32 where error_precision says so, for interval_error and "
+    "cdf_error; float32 for interval_accuracy, cdf_accuracy, tail_error and test_size), in C "
+    "(row-major) order: the variable's last dimension varies fastest (Fortran, R and Julia "
+    "readers, which list the dimensions reversed, take their arrays in native column-major "
+    "order). Nothing else enters the digest: no variable names, separators, shapes or "
+    "attributes. The checksum attribute is 'sha256:' followed by the digest in 64 lower-case "
+    "hexadecimal digits."
 )
+
+
+def groups_in(names):
+    """The groups (keys of :data:`GROUPS`) of which ``names`` holds any variable, in order."""
+    names = set(names)
+    return tuple(key for key, group in GROUPS.items() if names & set(group.variables))
+
+
+def checksum_variables(groups=()):
+    """The variables of the checksum of an atlas holding ``groups``, in order.
+
+    Examples
+    --------
+    >>> checksum_variables(["coverage"])[-5:]
+    ('p_cell_lo', 'p_cell_hi', 'coverage', 'min_coverage', 'expected_width')
+    """
+    names = list(CHECKSUM_VARIABLES)
+    for key in GROUPS:
+        if key in groups:
+            names.extend(GROUPS[key].names())
+    return tuple(names)
 
 
 def default_path():
@@ -122,8 +210,9 @@ def open_netcdf(path):
     ValueError
         If the file is not readable NetCDF, is of another schema version, lacks a variable, or
         has a data variable over other dimensions than (approximation, n, p), an index
-        coordinate that is not strictly increasing, or is of schema "1" or "2" (the message
-        gives the command that rebuilds it).
+        coordinate that is not strictly increasing, part of a group of :data:`GROUPS` only or a
+        group variable over other dimensions than the schema's, or is of schema "1", "2" or
+        "3" (the message gives the command that rebuilds it).
     """
     path = Path(path)
     if not path.is_file():
@@ -157,8 +246,8 @@ def _check_layout(nc, path):
         raise ValueError(
             f"`path` {str(path)!r} is an atlas of schema version {schema!r} "
             f"({OLD_SCHEMAS[schema]}), which this version of approx-atlas no longer reads (it "
-            f"reads schema {SCHEMA_VERSION!r}, with an accuracy beside every error); rebuild it "
-            f"with: {rebuild_command(nc, path)}"
+            f"reads schema {SCHEMA_VERSION!r}, {SCHEMA_SUMMARY}); rebuild it with: "
+            f"{rebuild_command(nc, path)}"
         )
     if schema != SCHEMA_VERSION:
         raise ValueError(
@@ -182,6 +271,60 @@ def _check_layout(nc, path):
         },
         f"`path` {str(path)!r}",
     )
+    check_groups(
+        {name: var.dimensions for name, var in nc.variables.items()},
+        lambda name: _index_values(nc, name),
+        f"`path` {str(path)!r}",
+    )
+
+
+def _index_values(nc, name):
+    """The values of index ``name`` of an open file: names as a tuple of str, else an array."""
+    return _names(nc, name) if name in NAME_INDEXES else np.asarray(nc.variables[name][:])
+
+
+def check_groups(dims, read, where):
+    """Refuse a group that is not whole, is over other dimensions, or has an unordered index.
+
+    Parameters
+    ----------
+    dims : dict
+        Variable name -> its dimensions (a tuple of str), for every variable present.
+    read : callable
+        ``read(name)`` returns the values of index coordinate ``name``.
+    where : str
+        What holds them, for the message.
+
+    Returns
+    -------
+    tuple of str
+        The groups present (keys of :data:`GROUPS`).
+
+    Raises
+    ------
+    ValueError
+        Naming what is missing, over other dimensions or out of order.
+    """
+    present = groups_in(dims)
+    for key in present:
+        group = GROUPS[key]
+        missing = [name for name in group.names() if name not in dims]
+        if missing:
+            raise ValueError(
+                f"{where} holds part of the {key} variables only: it lacks {', '.join(missing)}."
+            )
+        odd = [
+            f"{name} ({', '.join(want)})"
+            for name, want in group.variables.items()
+            if tuple(dims[name]) != want
+        ]
+        if odd:
+            raise ValueError(
+                f"{where} has {key} variables without the dimensions of the schema: "
+                f"{'; '.join(odd)}."
+            )
+        check_axes({name: read(name) for name in group.indexes}, where)
+    return present
 
 
 def check_axes(axes, where):
@@ -190,8 +333,9 @@ def check_axes(axes, where):
     Parameters
     ----------
     axes : dict
-        ``{"approximation": names, "n": values, "p": values}``; names must be in strictly
-        increasing code-point (alphabetical) order, which also rules out repeats.
+        ``{"approximation": names, "n": values, "p": values}`` (or any other indexes); names
+        (:data:`NAME_INDEXES`) must be in strictly increasing code-point (alphabetical) order,
+        which also rules out repeats; numbers strictly increasing.
     where : str
         What holds them, for the message (such as "`path` 'a.nc'" or "`ds`").
 
@@ -201,7 +345,7 @@ def check_axes(axes, where):
         Naming the first coordinate that is empty or out of order.
     """
     for name, values in axes.items():
-        if name == APPROXIMATION:
+        if name in NAME_INDEXES:
             ordered = all(a < b for a, b in zip(values[:-1], values[1:], strict=True))
             rule = "in strictly increasing (alphabetical) order, without repeats"
         else:
@@ -223,7 +367,10 @@ def rebuild_command(nc, path):
 
     Built from the file's own attributes (``n_spec``, ``p_spec``, ``error_precision``) and
     names; ``-o`` names ``path`` itself with ``--force``, which replaces the old file (atomically,
-    only when the new one is complete).
+    only when the new one is complete). A file holding the decision or coverage group gets the
+    options that rebuild it on its own grids and levels (``--decision-n``, ``--decision-p``,
+    ``--tail-levels``, ``--test-levels``; ``--coverage-n``, ``--coverage-p``, ``--intervals``,
+    ``--coverage-levels``), from its attributes and index coordinates.
     """
 
     def spec(attribute, variable):  # the stored spec, else the values themselves
@@ -242,6 +389,25 @@ def rebuild_command(nc, path):
     ]
     if str(precision).startswith("float32"):
         words.append("--float32")
+    present = groups_in(nc.variables)
+
+    def levels(name):
+        return ",".join(repr(float(v)) for v in np.asarray(nc.variables[name][:]))
+
+    if "decisions" in present:
+        words += [
+            f"--decision-n {_quote(spec('decision_n_spec', 'decision_n'))}",
+            f"--decision-p {_quote(spec('decision_p_spec', 'decision_p'))}",
+            f"--tail-levels {_quote(levels('tail_level'))}",
+            f"--test-levels {_quote(levels('test_level'))}",
+        ]
+    if "coverage" in present:
+        words += [
+            f"--coverage-n {_quote(spec('coverage_n_spec', 'coverage_n'))}",
+            f"--coverage-p {_quote(spec('coverage_p_spec', 'coverage_p'))}",
+            f"--intervals {_quote(','.join(_names(nc, 'interval')))}",
+            f"--coverage-levels {_quote(levels('level'))}",
+        ]
     return " ".join(words)
 
 
@@ -281,39 +447,42 @@ def to_dataset(nc):
 # ---- the checksum ------------------------------------------------------------------------------
 
 
-def checksum(names, read):
-    """SHA-256 over an atlas's approximation names, coordinates and data variables.
+def checksum(read, variables=CHECKSUM_VARIABLES):
+    """SHA-256 over an atlas's names, coordinates and data variables.
 
     Parameters
     ----------
-    names : sequence of str
-        The approximation names, in the order of the approximation axis.
     read : callable
-        ``read(name)`` returns the array of ``name``, for each of ``CHECKSUM_VARIABLES`` in
-        turn (one at a time: only one is held in memory).
+        ``read(name)`` returns the values of ``name``, for each of ``variables`` in turn (one
+        at a time: only one is held in memory): the strings of a variable of names
+        (:data:`NAME_INDEXES`), the array of any other.
+    variables : sequence of str, optional
+        The variables, in order (:func:`checksum_variables`); default an atlas without groups.
 
     Returns
     -------
     str
         ``"sha256:<hex digest>"``, computed as :data:`CHECKSUM_RECIPE` says: each name in UTF-8
-        followed by a line feed, then each variable's values as raw little-endian bytes of
+        followed by a line feed, each other variable's values as raw little-endian bytes of
         their type, in C order. No Python-specific text (dtype strings, printed shapes) enters,
         so a reader in any language can recompute it.
 
     Examples
     --------
     >>> import numpy as np
-    >>> arrays = {"n": np.array([10]), "p": np.array([0.5])}
+    >>> arrays = {"approximation": ["normal_cc"], "n": np.array([10]), "p": np.array([0.5])}
     >>> arrays.update({v: np.zeros((1, 1, 1)) for v in DATA_VARIABLES})
     >>> import hashlib, struct
     >>> raw = b"normal_cc\\n" + struct.pack("<qd", 10, 0.5) + bytes(6 * 8)  # then six 0.0
-    >>> checksum(["normal_cc"], arrays.__getitem__) == "sha256:" + hashlib.sha256(raw).hexdigest()
+    >>> checksum(arrays.__getitem__) == "sha256:" + hashlib.sha256(raw).hexdigest()
     True
     """
     digest = hashlib.sha256()
-    for name in names:
-        digest.update(str(name).encode("utf-8") + b"\n")
-    for name in CHECKSUM_VARIABLES:
+    for name in variables:
+        if name in NAME_INDEXES:
+            for text in read(name):
+                digest.update(str(text).encode("utf-8") + b"\n")
+            continue
         values = np.asarray(read(name))
         # Little-endian whatever the machine: the recipe fixes the byte order.
         values = np.ascontiguousarray(values, dtype=values.dtype.newbyteorder("<"))
@@ -330,14 +499,12 @@ def unreadable(err, path=None):
     return ValueError(f"{_where(path)} is corrupt: its data cannot be read ({err}).")
 
 
-_CHECKSUM_LIST = " ".join(CHECKSUM_VARIABLES)  # the checksum_variables attribute of this schema
-
-
-def verify_digest(stored, actual, path=None, variables=_CHECKSUM_LIST):
+def verify_digest(stored, actual, path=None, variables=None, expected=CHECKSUM_VARIABLES):
     """Return ``actual`` if it equals the ``stored`` checksum, else raise ValueError.
 
     ``variables`` is the file's ``checksum_variables`` attribute: the checksum is verified only
-    over the variables this schema puts in it (a shorter list would leave values unchecked).
+    over the variables this schema puts in it for the groups the file holds, ``expected`` (a
+    shorter list would leave values unchecked).
 
     Raises
     ------
@@ -348,7 +515,7 @@ def verify_digest(stored, actual, path=None, variables=_CHECKSUM_LIST):
     where = _where(path)
     if stored is None:
         raise ValueError(f"{where} has no checksum attribute to verify.")
-    expected = _CHECKSUM_LIST
+    expected = " ".join(expected)
     if variables != expected:
         raise ValueError(
             f"{where} is corrupt: its checksum_variables attribute must be {expected!r}; "
@@ -367,14 +534,17 @@ def verify_file(nc, path=None):
     ``nc`` is a handle from :func:`open_netcdf`; ``path``, the return value and the errors are
     those of :func:`atlas.cube.verify_checksum`, which does the same for a Dataset.
     """
+    expected = checksum_variables(groups_in(nc.variables))
     try:
         # One variable in memory at a time: the digest is fed as each is read.
-        actual = checksum(approximation_names(nc), lambda name: nc.variables[name][:])
+        actual = checksum(lambda name: _index_values(nc, name), expected)
     except Exception as err:  # netCDF4 raises RuntimeError (HDF error) for a damaged chunk
         raise unreadable(err, path) from None
     attrs = {name: nc.getncattr(name) for name in ("checksum", "checksum_variables")
              if name in nc.ncattrs()}  # fmt: skip
-    return verify_digest(attrs.get("checksum"), actual, path, attrs.get("checksum_variables"))
+    return verify_digest(
+        attrs.get("checksum"), actual, path, attrs.get("checksum_variables"), expected
+    )
 
 
 # ---- one open file per process -----------------------------------------------------------------

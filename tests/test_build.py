@@ -112,8 +112,21 @@ def test_history_line(serial):
         ({"chunk_cost": 0}, ValueError, r"`chunk_cost` must be a positive number; got 0\."),
         ({"chunk_cost": float("inf")}, ValueError, r"`chunk_cost` must be a positive number"),
         ({"chunk_cost": "big"}, TypeError, r"`chunk_cost` must be a positive number; got 'big'"),
+        ({"decision_n": "0"}, ValueError, r"^`decision_n` values must be from 1 to "),
+        ({"decision_p": "1.5"}, ValueError, r"^`decision_p` values must be in the open interval"),
+        ({"tail_levels": "0.05,1"}, ValueError,
+         r"^`tail_levels` must hold levels in the open interval \(0, 1\); got '1'\.$"),
+        ({"test_levels": []}, ValueError, r"^`test_levels` must hold at least one level; got "),
+        ({"test_levels": "0.05,0.05"}, ValueError, r"^`test_levels` must not repeat a level"),
+        ({"tail_levels": 5}, TypeError, r"^`tail_levels` must be a comma-separated string or a "),
+        ({"coverage_n": "2000000"}, ValueError, r"^`coverage_n` must be at most 1000000; got "),
+        ({"coverage_p": "0.5"}, ValueError, r"^`coverage_p` must give at least two values; got "),
+        ({"intervals": "wald,bogus"}, ValueError,
+         r"^`intervals` must be one of 'wald', .*; got 'bogus'\.$"),
+        ({"intervals": "wald,wald"}, ValueError, r"^`intervals` must not repeat an interval"),
+        ({"coverage_levels": "0"}, ValueError, r"^`coverage_levels` must hold levels in the "),
     ],
-)
+)  # fmt: skip
 def test_bad_arguments_refused_before_work(monkeypatch, kwargs, error, match):
     _no_work(monkeypatch)
     options = {"n": "1:3", "p": "0.5", "methods": "normal_cc", "progress": False} | kwargs
@@ -370,6 +383,14 @@ def test_cli_float32_and_workers(tmp_path, capsys, serial):
         (["--workers", "two"], "`--workers` must be a positive integer; got 'two'."),
         (["--dask", "bogus"], "`--dask` must be 'local:K' (K local worker processes) or "
          "'tcp://HOST:PORT' (a running scheduler); got 'bogus'."),
+        (["--decision-p", "2"], "`--decision-p` values must be in the open interval (0, 1); got "
+         "item '2' in '2'."),
+        (["--tail-levels", "x"], "`--tail-levels` must hold levels in the open interval (0, 1); "
+         "got 'x'."),
+        (["--coverage-n", "1:3", "--coverage-p", "0.3"], "`--coverage-p` must give at least two "
+         "values; got '0.3'."),
+        (["--intervals", "score"], "`--intervals` must be one of 'wald', 'wald_cc', 'wilson', "
+         "'wilson_cc', 'agresti_coull', 'jeffreys', 'clopper_pearson'; got 'score'."),
     ],
 )  # fmt: skip
 def test_cli_bad_arguments_one_line(tmp_path, capsys, monkeypatch, args, message):

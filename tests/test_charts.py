@@ -69,7 +69,7 @@ def test_error_map_contents(chart_atlas):
     assert "Metric interval: max over 0 ≤ a ≤ b ≤ n" in texts["subtitle"]
     footer = " ".join(texts["footer"].split())
     ds = chart_atlas.dataset
-    assert ds.attrs["source"] in footer and "schema 3" in footer
+    assert ds.attrs["source"] in footer and "schema 4" in footer
     assert f"built {ds.attrs['history'][:10]}" in footer  # the build date of the atlas
     assert f"checksum {ds.attrs['checksum']}" in footer  # whole, never cut with an ellipsis
     assert "…" not in footer

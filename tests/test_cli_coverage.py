@@ -154,8 +154,10 @@ def test_coverage_map_command(capsys, tmp_path):
          "`--variable` must be one of 'min_coverage', 'coverage'; got 'width'."),
         (["coverage-map", "-o", "x.gif"],
          "`-o` must end in one of '.png', '.svg', '.pdf'; got 'x.gif'."),
-        (["coverage-map", "--cube", "missing.nc", "-o", "x.png"],
-         "`--cube` is not a file: 'missing.nc'."),
+        (["coverage-map", "--atlas", "missing.nc", "-o", "x.png"],
+         "`--atlas` names no atlas file: 'missing.nc'."),
+        (["coverage-map", "--cube", "missing.nc", "-o", "x.png"],  # the former name
+         "`--atlas` names no atlas file: 'missing.nc'."),
     ],
 )  # fmt: skip
 def test_table_and_map_errors(capsys, tmp_path, monkeypatch, argv, message):

@@ -7,10 +7,12 @@ against mpmath in tests/test_confidence.py); literal values are "computed, regre
 import json
 import re
 
+import netCDF4
 import numpy as np
 import pytest
 import xarray as xr
 
+import atlas
 from atlas import coverage_charts, coverage_cube, figures
 from atlas.confidence import coverage, expected_width, min_coverage
 from atlas.coverage_questions import coverage_min_n, coverage_table
@@ -59,26 +61,32 @@ def test_cube_attributes(small_cube):
     assert bool((cp >= cp.level - 1e-12).all())
 
 
-def test_cube_round_trip(small_cube, tmp_path):
-    path = coverage_cube.save_coverage_cube(small_cube, tmp_path / "cov.nc")
-    xr.testing.assert_identical(coverage_cube.open_coverage_cube(path), small_cube)
-    with pytest.raises(FileExistsError, match=r"^`path` exists: .*; pass overwrite"):
-        coverage_cube.save_coverage_cube(small_cube, path)
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["cov.nc"]  # no temporary left
+def test_cube_round_trip_through_an_atlas_file(small_cube, tmp_path):
+    # The coverage variables travel in the atlas file (dimensions coverage_n and coverage_p
+    # there, intervals in alphabetical order) and come back as the cube that was built.
+    ds = atlas.build_atlas(n="5,9", p="0.2", methods="normal_cc", progress=False)
+    path = atlas.save_atlas(coverage_cube.attach(ds, small_cube), tmp_path / "a.nc")
+    with netCDF4.Dataset(path) as f:
+        assert f.variables["coverage"].dimensions == ("interval", "level", "coverage_n",
+                                                      "coverage_p")  # fmt: skip
+        assert f.variables["p_cell_lo"].dimensions == ("coverage_p",)
+        assert f.getncattr("coverage_n_spec") == "1:12,40,200"
+    back = coverage_cube.open_coverage_cube(path)
+    assert [str(v) for v in back["interval"].values] == ["wald", "wilson", "clopper_pearson"]
+    xr.testing.assert_identical(back.drop_attrs(), small_cube.drop_attrs())
+    assert {k: back.attrs[k] for k in ("n_spec", "p_spec", "p_cells", "title", "references")} == {
+        k: small_cube.attrs[k] for k in ("n_spec", "p_spec", "p_cells", "title", "references")
+    }
+    assert back.attrs["history"].startswith(ds.attrs["history"])  # the atlas's own history
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["a.nc"]  # no temporary left
 
 
-def test_embedded_cube_matches_the_api():
-    ds = coverage_cube.open_coverage_cube()
-    assert ds.sizes == {"interval": 7, "level": 3, "n": 120, "p": 61}
-    cell = ds.sel(interval="jeffreys", level=0.99, n=501)
-    np.testing.assert_array_equal(
-        cell.coverage.values, coverage(501, ds.p.values, interval="jeffreys", level=0.99)
-    )
-    # The README's line (computed, regression value; p = 0.5 is a grid point).
-    value = ds.min_coverage.sel(interval="wilson", level=0.95, n=501).sel(p=0.5, method="nearest")
-    assert value.item() == 0.945385420780363
-    lo, hi = ds.p_cell_lo.sel(p=0.5).item(), ds.p_cell_hi.sel(p=0.5).item()
-    assert value.item() == min_coverage(501, lo, hi, interval="wilson")
+def test_an_atlas_without_coverage_variables_says_so(tmp_path):
+    ds = atlas.build_atlas(n="5", p="0.2", methods="normal_cc", progress=False)
+    path = atlas.save_atlas(ds, tmp_path / "plain.nc")
+    message = r"^the atlas holds no coverage variables; build it with them \(--coverage of "
+    with pytest.raises(ValueError, match=message + r"approx-atlas build\)\.$"):
+        coverage_cube.open_coverage_cube(path)
 
 
 def test_cube_errors():

@@ -105,7 +105,8 @@ def test_layout(small_atlas):
             "checksum_variables", "checksum_recipe", "attribute_notes"]  # fmt: skip
     assert list(ds.attrs) == keys
     assert ds.attrs["checksum_variables"] == (
-        "n p interval_error cdf_error interval_lo interval_hi interval_accuracy cdf_accuracy"
+        "approximation n p interval_error cdf_error interval_lo interval_hi interval_accuracy "
+        "cdf_accuracy"
     )
     assert ds.attrs["checksum_recipe"] == store.CHECKSUM_RECIPE
     assert ds.attrs["Conventions"].startswith("CF-")
@@ -320,7 +321,7 @@ def test_wrong_schema_version(tmp_path, tiny):
     other.attrs = dict(tiny.attrs, atlas_schema="999")
     path = cube.save_atlas(other, tmp_path / "future.nc")
     with pytest.raises(ValueError, match=r"atlas of schema version '999'; this version of "
-                                         r"approx-atlas reads schema '3'"):  # fmt: skip
+                                         r"approx-atlas reads schema '4'"):  # fmt: skip
         cube.load_dataset(path)
 
 
@@ -553,7 +554,9 @@ def test_every_global_attribute_is_explained(tmp_path, tiny):
         names = f.ncattrs()
         notes = _notes(f.getncattr("attribute_notes"))
     assert list(notes) == names  # one line for each attribute, in the file's order
-    assert notes == cube.ATTRIBUTE_NOTES
+    groups = {"decision_n_spec", "decision_p_spec", "decision_note", "coverage_n_spec",
+              "coverage_p_spec", "coverage_p_cells", "coverage_note"}  # fmt: skip
+    assert notes == {k: v for k, v in cube.ATTRIBUTE_NOTES.items() if k not in groups}
     for name in ("tail_tolerance", "n_spec", "p_spec", "error_precision", "atlas_schema",
                  "checksum", "checksum_variables"):  # fmt: skip
         assert len(notes[name]) > 40 and notes[name].endswith("."), name
@@ -561,6 +564,37 @@ def test_every_global_attribute_is_explained(tmp_path, tiny):
     assert "`approx-atlas build --n`" in notes["n_spec"]
     assert "float32 (7 significant digits)" in notes["error_precision"]
     assert "checksum_recipe" in notes["checksum"]
+
+
+def test_every_attribute_of_the_groups_is_explained(tmp_path):
+    # With both groups: their global attributes sit before the checksum, each explained; every
+    # variable and coordinate of a group has a long_name and a description, numbers units "1".
+    ds = atlas.build_atlas(n="5", p="0.2", methods="normal_cc", progress=False, decisions=True,
+                           decision_n="10", decision_p="0.1,0.5", coverage_n="10",
+                           coverage_p="0.1,0.5")  # fmt: skip
+    path = cube.save_atlas(ds, tmp_path / "g.nc")
+    with netCDF4.Dataset(path) as f:
+        names = f.ncattrs()
+        notes = _notes(f.getncattr("attribute_notes"))
+        assert list(notes) == names and notes == {k: cube.ATTRIBUTE_NOTES[k] for k in names}
+        assert names[-4:] == ["checksum", "checksum_variables", "checksum_recipe",
+                              "attribute_notes"]  # fmt: skip
+        assert names[11:18] == ["decision_n_spec", "decision_p_spec", "decision_note",
+                                "coverage_n_spec", "coverage_p_spec", "coverage_p_cells",
+                                "coverage_note"]  # fmt: skip
+        for group in store.GROUPS.values():
+            for name in group.names():
+                var = f.variables[name]
+                assert var.getncattr("long_name") and var.getncattr("description"), name
+                if var.dtype != "S1":
+                    assert var.getncattr("units") == "1", name
+            for name in group.attributes:
+                assert len(notes[name]) > 40 and notes[name].endswith("."), name
+        assert "Brown, Cai & DasGupta (2001)" in f.getncattr("references")
+        assert (
+            f.getncattr("decision_n_spec") == "10" and f.getncattr("coverage_p_spec") == "0.1,0.5"
+        )
+    assert "decisions:" in ds.attrs["history"] and "coverage:" in ds.attrs["history"]
 
 
 def test_approximation_description_lists_only_the_stored(tmp_path, tiny):
@@ -597,3 +631,19 @@ def test_readme_xarray_lines_run_as_typed(tmp_path):
                           timeout=120, cwd=tmp_path)  # fmt: skip
     assert done.returncode == 0, done.stderr[-2000:]
     assert done.stdout == shown
+
+
+def test_readme_group_lines_run_as_typed(tmp_path):
+    # The README's block on the tail, test-size and coverage variables runs as printed, in a
+    # fresh interpreter, and prints what it shows (xarray and plain netCDF4 agree).
+    blocks = _readme_blocks()
+    at = [i for i, (_, code) in enumerate(blocks) if "ds.tail_error.sel(" in code]
+    assert len(at) == 1
+    (language, code), (_, shown) = blocks[at[0]], blocks[at[0] + 1]
+    assert language == "python" and "netCDF4.Dataset(default_path())" in code
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          timeout=120, cwd=tmp_path)  # fmt: skip
+    assert done.returncode == 0, done.stderr[-2000:]
+    assert done.stdout == shown
+    lines = shown.splitlines()
+    assert lines[0].rsplit(": ", 1)[1] == lines[-1].rsplit(": ", 1)[1]

@@ -146,6 +146,12 @@ def _write_schema_1(path, *, n, p, methods, n_spec, p_spec, float32):
     return path
 
 
+def _refused_by_every_reader(path, message):
+    for opener in (store.open_netcdf, cube.load_dataset, open_atlas):
+        with pytest.raises(ValueError, match="^" + re.escape(message) + "$"):
+            opener(path)
+
+
 def test_schema_1_is_refused_with_the_rebuild_command(tmp_path, capsys):
     path = _write_schema_1(tmp_path / "lot's atlas.nc", n=[1, 2, 3, 10], p=[0.1, 0.5],
                            methods=["poisson", "normal_cc"], n_spec="1:3,10", p_spec="0.1,0.5",
@@ -156,23 +162,22 @@ def test_schema_1_is_refused_with_the_rebuild_command(tmp_path, capsys):
     message = (
         f"`path` {str(path)!r} is an atlas of schema version '1' (dimension 'method', no "
         f"accuracy variables), which this version of approx-atlas no longer reads (it reads "
-        f"schema '3', with an accuracy beside every error); rebuild it with: {command}"
+        f"schema '4', with an accuracy beside every error, and room for the tail, test-size and "
+        f"coverage variables); rebuild it with: {command}"
     )
-    for opener in (store.open_netcdf, cube.load_dataset, open_atlas):
-        with pytest.raises(ValueError, match="^" + re.escape(message) + "$"):
-            opener(path)
+    _refused_by_every_reader(path, message)
     # On the command line: the one-line error, exit status 2.
     assert main(["query", "--atlas", str(path), "--n", "10", "--p", "0.5", "--tol", "0.01"]) == 2
     err = capsys.readouterr().err  # the command line names its option, not the parameter
     assert err == f"approx-atlas: error: {message.replace('`path`', '`--atlas`', 1)}\n"
-    # The command works as printed (the shell's quoting undone by shlex) and makes a schema-3
+    # The command works as printed (the shell's quoting undone by shlex) and makes a schema-4
     # atlas of the same grid, methods and precision in place of the old file.
     argv = shlex.split(command)
     assert argv[0] == "approx-atlas" and argv[argv.index("-o") + 1] == str(path)
     assert main(argv[1:]) == 0
     capsys.readouterr()
     with cube.load_dataset(path, verify=True) as ds:
-        assert ds.attrs["atlas_schema"] == "3"
+        assert ds.attrs["atlas_schema"] == "4"
         assert (ds.attrs["n_spec"], ds.attrs["p_spec"]) == ("1:3,10", "0.1,0.5")
         assert [str(m) for m in ds["approximation"].values] == ["normal_cc", "poisson"]
         assert ds["interval_error"].dtype == np.float32
@@ -180,7 +185,7 @@ def test_schema_1_is_refused_with_the_rebuild_command(tmp_path, capsys):
 
 def test_schema_2_is_refused_with_the_rebuild_command(tmp_path, capsys):
     # A schema-2 file (no accuracy variables): refused with the command that rebuilds it, as
-    # schema 1 is; the command makes a schema-3 atlas with interval_accuracy and cdf_accuracy.
+    # schema 1 is; the command makes a schema-4 atlas with interval_accuracy and cdf_accuracy.
     ds = atlas.build_atlas(n="5,9", p="0.2", methods="normal_cc", progress=False)
     path = cube.save_atlas(cube.compact(ds), tmp_path / "old.nc")
     with netCDF4.Dataset(path, "a") as f:
@@ -190,20 +195,100 @@ def test_schema_2_is_refused_with_the_rebuild_command(tmp_path, capsys):
     message = (
         f"`path` {str(path)!r} is an atlas of schema version '2' (no interval_accuracy and "
         f"cdf_accuracy variables), which this version of approx-atlas no longer reads (it reads "
-        f"schema '3', with an accuracy beside every error); rebuild it with: {command}"
+        f"schema '4', with an accuracy beside every error, and room for the tail, test-size and "
+        f"coverage variables); rebuild it with: {command}"
     )
-    for opener in (store.open_netcdf, cube.load_dataset, open_atlas):
-        with pytest.raises(ValueError, match="^" + re.escape(message) + "$"):
-            opener(path)
+    _refused_by_every_reader(path, message)
     assert main(["compare", "--atlas", str(path), "--n", "5", "--p", "0.2"]) == 2
     err = capsys.readouterr().err
     assert err == f"approx-atlas: error: {message.replace('`path`', '`--atlas`', 1)}\n"
     assert main(shlex.split(command)[1:]) == 0
     capsys.readouterr()
     with cube.load_dataset(path, verify=True) as new:
-        assert new.attrs["atlas_schema"] == "3"
+        assert new.attrs["atlas_schema"] == "4"
         assert new["interval_accuracy"].dtype == np.float32
         assert new["interval_error"].dtype == np.float32
+
+
+def test_schema_3_is_refused_with_the_rebuild_command(tmp_path, capsys):
+    # A schema-3 file (the layout without room for the decision and coverage variables): refused
+    # with the command that rebuilds it, which makes a schema-4 atlas of the same grid.
+    ds = atlas.build_atlas(n="5,9", p="0.2,0.5", methods="poisson", progress=False)
+    path = cube.save_atlas(ds, tmp_path / "three.nc")
+    with netCDF4.Dataset(path, "a") as f:
+        f.setncattr("atlas_schema", "3")
+    command = f"approx-atlas build --n '5,9' --p '0.2,0.5' --methods 'poisson' -o '{path}' --force"
+    message = (
+        f"`path` {str(path)!r} is an atlas of schema version '3' (no room for the tail, "
+        f"test-size and coverage variables), which this version of approx-atlas no longer reads "
+        f"(it reads schema '4', with an accuracy beside every error, and room for the tail, "
+        f"test-size and coverage variables); rebuild it with: {command}"
+    )
+    _refused_by_every_reader(path, message)
+    assert main(shlex.split(command)[1:]) == 0
+    capsys.readouterr()
+    with cube.load_dataset(path, verify=True) as new:
+        assert new.attrs["atlas_schema"] == "4"
+        assert new.attrs["checksum"] == ds.attrs["checksum"]  # the same values, bit for bit
+
+
+def test_rebuild_command_reproduces_the_groups(tmp_path, capsys):
+    # The command for a file holding the decision and coverage variables names their grids and
+    # levels from its attributes and coordinates; run as printed it makes the same values.
+    ds = atlas.build_atlas(n="5,9", p="0.2", methods="normal_cc,poisson", progress=False,
+                           decision_n="10,60", decision_p="logit:0.01:0.99:3",
+                           tail_levels=[0.01, 0.05], test_levels="0.05",
+                           coverage_n="2,30", coverage_p="lin:0.1:0.5:3",
+                           intervals="wilson,jeffreys", coverage_levels="0.95")  # fmt: skip
+    ds = cube.compact(ds)
+    path = cube.save_atlas(ds, tmp_path / "groups.nc")
+    nc = store.open_netcdf(path)
+    try:
+        command = store.rebuild_command(nc, path)
+    finally:
+        nc.close()
+    assert command == (
+        f"approx-atlas build --n '5,9' --p '0.2' --methods 'normal_cc,poisson' -o '{path}' "
+        f"--force --float32 --decision-n '10,60' --decision-p 'logit:0.01:0.99:3' "
+        f"--tail-levels '0.01,0.05' --test-levels '0.05' --coverage-n '2,30' "
+        f"--coverage-p 'lin:0.1:0.5:3' --intervals 'jeffreys,wilson' --coverage-levels '0.95'"
+    )
+    assert main(shlex.split(command)[1:]) == 0
+    assert "tail and test-size variables, coverage variables" in capsys.readouterr().out
+    with cube.load_dataset(path, verify=True) as new:
+        assert new.attrs["checksum"] == ds.attrs["checksum"]
+        assert new.attrs["checksum_variables"] == ds.attrs["checksum_variables"]
+
+
+def test_groups_are_checked_on_opening(tmp_path):
+    # A group is there whole, over its own dimensions, its indexes in order; else refused.
+    ds = atlas.build_atlas(n="5", p="0.2", methods="normal_cc", progress=False,
+                           coverage_n="2,30", coverage_p="0.1,0.5", intervals="wald,wilson",
+                           coverage_levels="0.9,0.95")  # fmt: skip
+    path = cube.save_atlas(ds, tmp_path / "ok.nc")
+    assert store.groups_in(store.open_netcdf(path).variables) == ("coverage",)
+    partial = ds.drop_vars("min_coverage")
+    partial.to_netcdf(tmp_path / "partial.nc", engine="netcdf4")
+    with pytest.raises(ValueError, match=r"^`path` '.*partial\.nc' holds part of the coverage "
+                                         r"variables only: it lacks min_coverage\.$"):  # fmt: skip
+        cube.load_dataset(tmp_path / "partial.nc")
+    backwards = ds.isel(level=[1, 0])
+    backwards.to_netcdf(tmp_path / "backwards.nc", engine="netcdf4")
+    with pytest.raises(ValueError, match=r"its level coordinate must be non-empty and strictly "
+                                         r"increasing\.$"):  # fmt: skip
+        open_atlas(tmp_path / "backwards.nc")
+    with pytest.raises(ValueError, match=r"^`ds` is not an atlas of this schema: its interval "
+                                         r"coordinate must be non-empty and in strictly "
+                                         r"increasing"):  # fmt: skip
+        cube.save_atlas(ds.isel(interval=[1, 0]), tmp_path / "names.nc")
+    moved = ds.assign(coverage=ds["coverage"].transpose("level", ...))
+    moved.to_netcdf(tmp_path / "moved.nc", engine="netcdf4")
+    with pytest.raises(ValueError, match=r"has coverage variables without the dimensions of the "
+                                         r"schema: coverage \(interval, level, coverage_n, "
+                                         r"coverage_p\)\.$"):  # fmt: skip
+        cube.load_dataset(tmp_path / "moved.nc")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["backwards.nc", "moved.nc", "ok.nc",
+                                                          "partial.nc"]  # fmt: skip
 
 
 def test_schema_1_without_specs_and_in_float64(tmp_path):
@@ -233,15 +318,17 @@ import netCDF4, numpy as np
 
 with netCDF4.Dataset(sys.argv[1]) as f:
     f.set_auto_mask(False)
-    names = f.variables["approximation"]
-    names.set_auto_chartostring(False)            # the raw characters
     digest = hashlib.sha256()
-    for row in np.asarray(names[:]):              # one name per row, NUL-padded
-        digest.update(b"".join(row).rstrip(b"\0") + b"\n")
     for name in f.getncattr("checksum_variables").split(" "):
-        values = np.asarray(f.variables[name][:])  # the type stored in the file
-        little = values.astype(values.dtype.newbyteorder("<"))
-        digest.update(little.tobytes(order="C"))
+        var = f.variables[name]
+        var.set_auto_chartostring(False)          # names: the raw characters
+        values = np.asarray(var[:])               # the type stored in the file
+        if values.dtype.kind == "S":              # one name per row, NUL-padded
+            for row in values:
+                digest.update(b"".join(row).rstrip(b"\0") + b"\n")
+        else:
+            little = values.astype(values.dtype.newbyteorder("<"))
+            digest.update(little.tobytes(order="C"))
     stored = f.getncattr("checksum")
     kinds = {name: f.variables[name].dtype.str[1:] for name in ("n", "p", "cdf_error")}
 atlas_imported = any(m == "atlas" or m.startswith("atlas.") for m in sys.modules)
@@ -281,31 +368,75 @@ def test_independent_reader_detects_one_flipped_byte(tmp_path, small_atlas):
         cube.load_dataset(path, verify=True)
 
 
+@pytest.fixture(scope="module")
+def groups_file(tmp_path_factory):
+    """A small float32 atlas holding the decision and coverage variables."""
+    ds = atlas.build_atlas(n="5,9", p="0.2,0.5", methods="normal_cc,poisson", progress=False,
+                           decision_n="10,60", decision_p="0.1,0.5", tail_levels="0.01",
+                           test_levels="0.05", coverage_n="2,30", coverage_p="0.1,0.5",
+                           intervals="wald,wilson", coverage_levels="0.95")  # fmt: skip
+    return cube.save_atlas(cube.compact(ds), tmp_path_factory.mktemp("groups") / "groups.nc")
+
+
+@pytest.mark.parametrize("variable", ["tail_error", "exact_test_size", "coverage", "p_cell_hi"])
+def test_independent_reader_covers_the_groups(tmp_path, groups_file, variable):
+    # The recipe's reader, which knows no variable by name, recomputes the checksum of a file
+    # with both groups, and one changed value of any group variable changes it.
+    out = _independent_checksum(groups_file, tmp_path)
+    assert out["computed"] == out["stored"]
+    path = tmp_path / "altered.nc"
+    path.write_bytes(groups_file.read_bytes())
+    with netCDF4.Dataset(path, "a") as f:
+        var = f.variables[variable]
+        index = (0,) * var.ndim
+        var[index] = np.nextafter(var[index], np.inf, dtype=var.dtype)
+    out = _independent_checksum(path, tmp_path)
+    assert out["computed"] != out["stored"]
+    with pytest.raises(ValueError, match=r"is corrupt: its checksum does not match"):
+        cube.load_dataset(path, verify=True)
+    with pytest.raises(ValueError, match=r"is corrupt: its checksum does not match"):
+        open_atlas(path, verify=True)
+
+
+def test_group_names_enter_the_checksum(groups_file):
+    # Names are read as text: relabelling the intervals changes the digest.
+    with cube.load_dataset(groups_file) as ds:
+        ds = ds.load()
+    assert cube.data_checksum(ds) == ds.attrs["checksum"]
+    relabelled = ds.assign_coords(interval=["wald", "wilson_cc"])
+    assert cube.data_checksum(relabelled) != ds.attrs["checksum"]
+
+
 def test_checksum_variables_must_be_the_schemas(tmp_path, small_atlas):
     # A shortened list would leave values unchecked: refused, not trusted.
     path = tmp_path / "short.nc"
     path.write_bytes(small_atlas["float64"].read_bytes())
     with netCDF4.Dataset(path, "a") as f:
         f.setncattr("checksum_variables", "n p")
-    message = (r"is corrupt: its checksum_variables attribute must be 'n p interval_error "
-               r"cdf_error interval_lo interval_hi interval_accuracy cdf_accuracy'; got "
-               r"'n p'\.$")  # fmt: skip
+    message = (r"is corrupt: its checksum_variables attribute must be 'approximation n p "
+               r"interval_error cdf_error interval_lo interval_hi interval_accuracy "
+               r"cdf_accuracy'; got 'n p'\.$")  # fmt: skip
     with pytest.raises(ValueError, match=message):
         cube.load_dataset(path, verify=True)
     with pytest.raises(ValueError, match=message):
         open_atlas(path, verify=True)
 
 
-def test_readme_checksum_reader(tmp_path, small_atlas):
-    # The README's reader (netCDF4, numpy and hashlib only) prints True for an intact file and
-    # False once one value has changed.
+@pytest.mark.parametrize("kind", ["without groups", "with groups"])
+def test_readme_checksum_reader(tmp_path, request, kind):
+    # The README's reader (netCDF4, numpy and hashlib only) prints True for an intact file, with
+    # or without the decision and coverage variables, and False once one value has changed.
+    if kind == "with groups":
+        source = request.getfixturevalue("groups_file")
+    else:
+        source = request.getfixturevalue("small_atlas")["float32"]
     text = (ROOT / "README.md").read_text()
     (code,) = [b for b in re.findall(r"```python\n(.*?)```", text, flags=re.S)
                if "checksum_variables" in b]  # fmt: skip
     script = tmp_path / "reader.py"
     script.write_text(code)
     path = tmp_path / "atlas.nc"
-    path.write_bytes(small_atlas["float32"].read_bytes())
+    path.write_bytes(source.read_bytes())
 
     def run():
         argv = [sys.executable, "-I", str(script), str(path)]
