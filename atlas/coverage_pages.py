@@ -2,7 +2,7 @@
 
 - :func:`section`: the content (:class:`atlas.sections.Section`), which the main sheet and wiki
   page (:mod:`atlas.sheets`) compose with the others; its maps come from a dataset passed in,
-  or from :func:`load_coverage_data` (the embedded coverage cube: the one line to change when
+  or from :func:`load_coverage_data` (the coverage variables of the embedded atlas: the one line to change when
   the coverage variables move).
 - :func:`write_coverage_page`: the section alone, ``coverage.html`` and ``coverage.md`` with an
   SVG map per interval and the minimum-n tables beside them, into an existing directory.
@@ -69,7 +69,7 @@ NOTES = (
 
 
 def load_coverage_data():
-    """The coverage dataset the pages draw their maps from: the coverage variables of the embedded atlas (schema 4).
+    """The coverage dataset the pages draw their maps from: the embedded atlas's coverage group.
 
     The one place that says where the coverage variables live; the sheet and wiki page call it
     only when no dataset is passed to them.
