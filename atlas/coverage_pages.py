@@ -2,8 +2,8 @@
 
 - :func:`section`: the content (:class:`atlas.sections.Section`), which the main sheet and wiki
   page (:mod:`atlas.sheets`) compose with the others; its maps come from a dataset passed in,
-  or from :func:`load_coverage_data` (the coverage variables of the embedded atlas: the one line to change when
-  the coverage variables move).
+  or from :func:`load_coverage_data` (the coverage variables of the embedded atlas: the one
+  line to change if they move).
 - :func:`write_coverage_page`: the section alone, ``coverage.html`` and ``coverage.md`` with an
   SVG map per interval and the minimum-n tables beside them, into an existing directory.
 - :func:`write_coverage_sheet`: the section alone as a multi-page PDF.
