@@ -131,7 +131,7 @@ def decision_rule_constants(metric, alpha, limit=None, *, method="normal_cc", ta
     n_check, p_check = np.concatenate(n_check), np.concatenate(p_check)
     values = np.array([[value(int(a), float(b)) for b in p_axis] for a in n_axis])
     within = values <= limit
-    exact = sum(a.exact_for_integers or a.n is None for a in answers)
+    exact = len(answers)  # every minimum n is exact for every integer (atlas.decision_search)
     checked = (
         f"thresholds at the {p_axis.size} p of the audit grid ({describe_grid(n_axis, p_axis)}): "
         f"every integer n to {dense_to:,}, then n about 5% apart to {n_max:,} "
@@ -161,9 +161,9 @@ def decision_rule_constants(metric, alpha, limit=None, *, method="normal_cc", ta
 
 def _ladder_points(dense_to, n_max):
     """The n checked by :func:`atlas.decisions.min_ns`: every integer to dense_to, a ladder."""
-    from atlas.decisions import _ladder
+    from atlas.decision_search import ladder
 
-    return np.array(_ladder(int(dense_to), int(n_max)), dtype=np.int64)
+    return np.array(ladder(int(dense_to), int(n_max)), dtype=np.int64)
 
 
 def render_decision_constants(rows, fmt, *, metric, alpha, limit, method):
