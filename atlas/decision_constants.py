@@ -131,12 +131,11 @@ def decision_rule_constants(metric, alpha, limit=None, *, method="normal_cc", ta
     n_check, p_check = np.concatenate(n_check), np.concatenate(p_check)
     values = np.array([[value(int(a), float(b)) for b in p_axis] for a in n_axis])
     within = values <= limit
-    exact = len(answers)  # every minimum n is exact for every integer (atlas.decision_search)
     checked = (
         f"thresholds at the {p_axis.size} p of the audit grid ({describe_grid(n_axis, p_axis)}): "
-        f"every integer n to {dense_to:,}, then n about 5% apart to {n_max:,} "
-        f"({exact} of {p_axis.size} thresholds at or below {dense_to:,}, exact for every "
-        "integer there); the p between them and the integers between ladder n are not checked"
+        f"each threshold exact for every integer n (atlas.decision_search); the rule checked at "
+        f"every integer n to {dense_to:,}, then n about 5% apart to {n_max:,}; the p between "
+        "them and the integers between ladder n are not checked"
     )
     rows = []
     for family in parsed:
