@@ -15,11 +15,33 @@ How the extremes are found, and why it is exact
    cannot matter: for k < lo, |D(k)| <= F(lo - 1) + |G(lo - 1)|, and for k > hi,
    |D(k)| <= (1 - F(hi)) + |1 - G(hi)|, because F is monotone and every G is monotone in its far
    tails (each is a normal or Poisson CDF there, or a Hermite polynomial times phi beyond its last
-   turning point, which lies below |z| = 3). Both bounds are computed for every cell and must be
-   below ``TAIL_TOL`` = 1e-17; so the omitted k change neither metric by more than 1e-17.
+   turning point, which lies below |z| = 3 for skewness above 1/3; at smaller skewness the
+   Edgeworth terms beyond |z| = 9, the least the window reaches, are below 5e-18 for
+   ``edgeworth_cc`` and 1e-16 for ``edgeworth2_cc``, whose He_5 term is the largest: within
+   the margin of ``G_ROUNDING`` = 1e-15 over the 7.8e-16 measured, which every accuracy
+   counts). Both bounds are computed for every cell and must be below ``TAIL_TOL`` = 1e-17; so
+   the omitted k change neither metric by more than 1e-17 (beyond that margin).
 2. *Narrow windows* (at most ``FULL_LIMIT`` integers, so sigma below about 113) are evaluated at
    every integer, many p at once: F from Boost's incomplete beta at lo - 1 (``scipy.stats.binom``)
-   and the binomial pmf summed upward from there.
+   and the binomial pmf summed upward from there. G is computed first on the core
+   [lo_c, hi_c] = mu -/+ (6 sigma + 2) (sigma >= 1) for the methods whose G is bounded outside
+   it, and the core's extremes are those of the whole window when every value D can take
+   outside the core lies strictly between them (else the row is computed over the whole
+   window). With F summed upward (so monotone as computed) and G computed to ``G_ROUNDING``:
+   below the core -U - s <= D(k) <= F(lo_c) + U + s, above it
+   F(hi_c) - 1 - V - s <= D(k) <= F(hi) - 1 + V + s, where U bounds |G| below lo_c, V bounds
+   |1 - G| above hi_c and s = 4 ``G_ROUNDING`` covers the rounding of G and of the difference.
+   For the normal and Poisson CDFs (``normal_cc``, ``normal``, ``poisson``) U and V are |G| and
+   |1 - G| at the core's ends, plus ``G_ROUNDING``. For the Edgeworth curves,
+   G = Phi(z) + phi(z) sum_j c_j He_j(z) with j <= 5, and |He_j(z)| phi(z) falls as |z| grows
+   beyond the largest root of He_{j+1} (its derivative is -He_{j+1}(z) phi(z); 3.3243 for
+   He_6), so beyond the core's ends (|z| >= 6) U = Phi(z) + sum |c_j He_j(z)| phi(z) at lo_c
+   and V the same with 1 - Phi(z) at hi_c. ``camp_paulson`` and ``peizer_pratt`` (no such bound
+   derived) are computed over the whole window. The values, and the first k of each extreme,
+   are therefore those of every integer of the window; ``tests/test_search.py`` checks it bit
+   for bit (a core of half a sigma forces the fallback) and checks U and V at every integer.
+   Over the default p axis the core holds 40 to 55 per cent of the windows' integers
+   (n = 100 to 2000).
 3. *Wide windows* (larger sigma) use a nested search on D computed from the lattice Edgeworth
    expansion of F (:mod:`atlas.asymptotic`), not from Boost, whose absolute error grows like
    sqrt(n) (table below) and reaches the size of the errors measured. D is sampled every
@@ -368,22 +390,128 @@ def _extremes(shape):
     return [np.empty(shape), np.empty(shape, np.int64), np.empty(shape), np.empty(shape, np.int64)]
 
 
+# Narrow windows: G is computed at mu -/+ (6 sigma + 2) first (module notes, "Narrow windows").
+_NARROW_CORE_SIGMAS = 6.0
+_NARROW_CORE_MARGIN = 2.0
+_HERMITE_MONOTONE = 3.33  # above the largest root of He_6 (3.3243): |He_j phi| falls beyond, j <= 5
+# Methods whose G is bounded outside the core: monotone CDFs, and the Edgeworth curves by the
+# Hermite terms of G = Phi(z) + phi(z) sum_j c_j He_j(z), as (c_j, He_j) for sigma, p, q.
+_EDGEWORTH_TERMS = {
+    "edgeworth_cc": lambda s, p, q: [((q - p) / (6.0 * s), lambda z: z * z - 1.0)],
+    "edgeworth2_cc": lambda s, p, q: [
+        ((q - p) / (6.0 * s), lambda z: z * z - 1.0),
+        ((1.0 - 6.0 * p * q) / (24.0 * s * s), lambda z: z * (z * z - 3.0)),
+        (((q - p) / s) ** 2 / 72.0, lambda z: z * (z * z * (z * z - 10.0) + 15.0)),
+        (1.0 / (24.0 * s * s), lambda z: z),
+    ],
+}
+_TAIL_BOUNDED_METHODS = frozenset({"normal_cc", "normal", "poisson", *_EDGEWORTH_TERMS})
+_TAIL_BOUNDED = _TAIL_BOUNDED_METHODS  # the methods computed on a core (tests may empty it)
+
+
+def _core(n, p, lo, hi):
+    """Each row's core [lo_c, hi_c] within its window: mu -/+ (``_NARROW_CORE_SIGMAS`` sigma +
+    ``_NARROW_CORE_MARGIN``), or the whole window where sigma < 1."""
+    mu = n * p
+    sigma = np.sqrt(mu * (1.0 - p))
+    reach = _NARROW_CORE_SIGMAS * sigma + _NARROW_CORE_MARGIN
+    core_lo = np.maximum(lo, np.floor(mu - reach).astype(np.int64))
+    core_hi = np.minimum(hi, np.ceil(mu + reach).astype(np.int64))
+    small = sigma < 1.0
+    return np.where(small, lo, core_lo), np.where(small, hi, core_hi)
+
+
+def _tail_envelopes(n, p, k_lo, k_hi, method):
+    """Bounds U on |G(k)| for every k < k_lo and V on |1 - G(k)| for every k > k_hi.
+
+    For the monotone G (normal and Poisson CDFs) they are |G| and |1 - G| at the core's ends,
+    each plus the rounding of G. For the Edgeworth curves G = Phi(z) + phi(z) sum_j c_j He_j(z),
+    and each |He_j(z)| phi(z) falls as |z| grows beyond the largest root of He_{j+1} (its
+    derivative is -He_{j+1} phi; 3.33 for j = 5): beyond the core's ends (|z| >= 6),
+    U = Phi(z) + sum |c_j He_j(z)| phi(z) at k_lo, and V the same with 1 - Phi(z) at k_hi.
+    Rows where an end is not that far out get inf (no bound, so no core).
+    """
+    if method not in _EDGEWORTH_TERMS:
+        g = approximate_cdf(np.stack([k_lo, k_hi]), n, p, method)
+        return np.abs(g[0]) + G_ROUNDING, np.abs(1.0 - g[1]) + G_ROUNDING
+    q = 1.0 - p
+    sigma = np.sqrt(n * p * q)
+    bounds = []
+    for k, sign in ((k_lo, -1.0), (k_hi, 1.0)):
+        z = offset(k + 0.5, np.float64(n), p, q) / sigma
+        zc = np.clip(z, -40.0, 40.0)
+        terms = sum(np.abs(c * he(zc)) for c, he in _EDGEWORTH_TERMS[method](sigma, p, q))
+        envelope = special.ndtr(-sign * z) + terms * np.exp(-0.5 * zc * zc) / _SQRT_2PI
+        far = sign * z >= _HERMITE_MONOTONE
+        bounds.append(np.where(far, envelope * (1.0 + 1e-12) + G_ROUNDING, np.inf))
+    return bounds[0], bounds[1]
+
+
+def _row_extremes(d, valid, k):
+    """Max D, its k, min D, its k of each row, over the valid points (first k of a tie)."""
+    rows = np.arange(d.shape[0])
+    imax = np.argmax(np.where(valid, d, -np.inf), axis=1)
+    imin = np.argmin(np.where(valid, d, np.inf), axis=1)
+    return d[rows, imax], k[rows, imax], d[rows, imin], k[rows, imin]
+
+
 def _every_integer(n, p, lo, hi, methods):
     """Extremes of D over [lo, hi] evaluated at every integer, for rows of p at one n.
 
+    G is computed at the core's integers (:func:`_core`) for the methods with a tail bound
+    (:data:`_TAIL_BOUNDED`); a row's extremes there are those of the whole window when every
+    value D could take outside the core lies strictly between them, by the bounds of the module
+    notes ("Narrow windows"); any other row is computed over its whole window. Either way the
+    values, and the first k of each extreme, are those of evaluating every integer.
+
     Returns arrays (len(methods), rows) of max D, its k, min D, its k.
     """
-    shape = (len(methods), p.size)
-    out = _extremes(shape)
+    out = _extremes((len(methods), p.size))
+    core_lo, core_hi = _core(n, p, lo, hi)
+    outside = (core_lo > lo) | (core_hi < hi)
+    envelopes = {}
+    if outside.any():
+        for method in _TAIL_BOUNDED.intersection(methods):
+            envelopes[method] = _tail_envelopes(n, p, core_lo, core_hi, method)
     for group in _width_groups(hi - lo + 1):
-        k, valid, cdf = _cdf_rows(n, p[group], lo[group], hi[group])
+        g_lo, g_hi, c_lo, c_hi = lo[group], hi[group], core_lo[group], core_hi[group]
+        pg = p[group, None]
+        k, valid, cdf = _cdf_rows(n, p[group], g_lo, g_hi)
         rows = np.arange(group.size)
+        # The core as its own rectangle, F read from the window's (so the same values).
+        last = (c_hi - g_lo)[:, None]
+        cols = (c_lo - g_lo)[:, None] + np.arange(int((c_hi - c_lo).max()) + 1)
+        core_valid = cols <= last
+        cols = np.minimum(cols, last)
+        core_k, core_f = k[rows[:, None], cols], cdf[rows[:, None], cols]
+        has_low, has_high = c_lo > g_lo, c_hi < g_hi
+        # F outside the core, from F summed upward (monotone as computed): below the core at
+        # most F(lo_c); above it between F(hi_c) and F(hi).
+        f_lo, f_core_hi = core_f[:, 0], cdf[rows, c_hi - g_lo]
+        f_hi = cdf[rows, g_hi - g_lo]
         for i, method in enumerate(methods):
-            d = cdf - approximate_cdf(k, n, p[group, None], method)
-            imax = np.argmax(np.where(valid, d, -np.inf), axis=1)
-            imin = np.argmin(np.where(valid, d, np.inf), axis=1)
-            out[0][i, group], out[1][i, group] = d[rows, imax], k[rows, imax]
-            out[2][i, group], out[3][i, group] = d[rows, imin], k[rows, imin]
+            if method not in envelopes or not outside[group].any():
+                d = cdf - approximate_cdf(k, n, pg, method)
+                found = _row_extremes(d, valid, k)
+                for j, values in enumerate(found):
+                    out[j][i, group] = values
+                continue
+            d = core_f - approximate_cdf(core_k, n, pg, method)
+            found = _row_extremes(d, core_valid, core_k)
+            u, v = envelopes[method][0][group], envelopes[method][1][group]
+            slack = 4.0 * G_ROUNDING
+            upper = np.maximum(np.where(has_low, f_lo + u, -np.inf),
+                               np.where(has_high, f_hi - 1.0 + v, -np.inf)) + slack  # fmt: skip
+            lower = np.minimum(np.where(has_low, -u, np.inf),
+                               np.where(has_high, f_core_hi - 1.0 - v, np.inf)) - slack  # fmt: skip
+            redo = np.flatnonzero((found[0] <= upper) | (found[2] >= lower))
+            if redo.size:
+                d = cdf[redo] - approximate_cdf(k[redo], n, pg[redo], method)
+                again = _row_extremes(d, valid[redo], k[redo])
+                for whole, part in zip(found, again, strict=True):
+                    whole[redo] = part
+            for j, values in enumerate(found):
+                out[j][i, group] = values
     return out
 
 

@@ -167,3 +167,45 @@ def test_width_groups_change_no_value(monkeypatch):
         monkeypatch.undo()
         for name in ("interval", "cdf", "lo", "hi", "interval_accuracy", "cdf_accuracy"):
             assert_array_equal(getattr(grouped, name), getattr(single, name), err_msg=name)
+
+
+NARROW_P = np.array([1e-6, 2e-3, 0.011, 0.04, 0.13, 0.3, 0.5, 0.77, 0.96, 0.9993])
+
+
+def _all_fields(ev):
+    return {f: getattr(ev, f) for f in ("interval", "cdf", "lo", "hi", "interval_accuracy",
+                                        "cdf_accuracy")}  # fmt: skip
+
+
+@pytest.mark.parametrize("core_sigmas", [0.5, 2.0, 6.0])
+def test_narrow_core_changes_no_value(monkeypatch, core_sigmas):
+    # Narrow windows compute G on a core around the mean and keep it only when the bounds
+    # outside the core prove the extremes lie inside. Every integer of the window (no core)
+    # must give the same bits; a core of half a sigma forces the whole-window fallback often.
+    monkeypatch.setattr(engine, "_NARROW_CORE_SIGMAS", core_sigmas)
+    monkeypatch.setattr(engine, "_NARROW_CORE_MARGIN", 0.0)
+    for n in (9, 150, 1200, 20_000):
+        with_core = _all_fields(engine.evaluate(n, NARROW_P))
+        monkeypatch.setattr(engine, "_TAIL_BOUNDED", frozenset())
+        without = _all_fields(engine.evaluate(n, NARROW_P))
+        monkeypatch.setattr(engine, "_TAIL_BOUNDED", engine._TAIL_BOUNDED_METHODS)
+        for name, values in with_core.items():
+            assert_array_equal(values, without[name], err_msg=f"{name} at n={n}")
+
+
+@pytest.mark.parametrize("method", sorted(engine._TAIL_BOUNDED_METHODS))
+@pytest.mark.parametrize("n", [40, 900, 1999])
+def test_tail_envelopes_bound_g_outside_the_core(method, n):
+    # U bounds |G(k)| below the core and V bounds |1 - G(k)| above it: checked at every
+    # integer of the window outside the core (G computed directly).
+    p = NARROW_P
+    lo, hi, _ = engine._windows(n, p, (method,))
+    core_lo, core_hi = engine._core(n, p, lo, hi)
+    u, v = engine._tail_envelopes(n, p, core_lo, core_hi, method)
+    for j in range(p.size):
+        below = np.arange(lo[j], core_lo[j])
+        above = np.arange(core_hi[j] + 1, hi[j] + 1)
+        if below.size:
+            assert np.abs(approximate_cdf(below, n, p[j], method)).max() <= u[j]
+        if above.size:
+            assert np.abs(1.0 - approximate_cdf(above, n, p[j], method)).max() <= v[j]
