@@ -307,13 +307,24 @@ class RuleWorst:
                      "of engine evaluations spent)")  # fmt: skip
         return text + "; p between those checked are not computed"
 
+    def open_runs(self):
+        """The open gaps with adjacent gaps at one p merged: ``[p, a, b]`` runs, in order."""
+        runs = []
+        for p, a, b in self.open_gaps:
+            if runs and runs[-1][0] == p and runs[-1][2] == a:
+                runs[-1][2] = b
+            else:
+                runs.append([p, a, b])
+        return runs
+
     def as_dict(self):
+        """What was checked, for JSON (open gaps merged into runs, :meth:`open_runs`)."""
         return {
             "p_checked": self.p_checked,
             "p_refined": self.p_refined,
             "grid_p_bounded": self.grid_p_bounded,
             "grid_p_open": self.grid_p_open,
-            "open_gaps": [[p, a, b] for p, a, b in self.open_gaps],
+            "open_gaps": self.open_runs(),
             "engine_evaluations": self.evaluations,
             "step_bound": self.bounded,
         }

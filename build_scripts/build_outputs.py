@@ -83,8 +83,18 @@ def main(argv=None):
 
     # The sections on tests and on coverage, once for the page and the sheet.
     extra = sheets.default_sections(HEADLINE[0])
-    # The wiki page first: index.html, index.md and its SVG charts.
-    written += sheets.write_wiki(atlas, out, sections=extra)
+    # The wiki page first: index.html, index.md and its SVG charts. It replaces the directory
+    # as a whole, which holds only a page's files; the subdirectories written by other scripts
+    # (exports/, by build_exports.py) are moved beside it meanwhile and back after.
+    kept = [d for d in sorted(out.iterdir()) if d.is_dir()]
+    aside = [out.parent / f".{out.name}.{d.name}.kept" for d in kept]
+    for d, a in zip(kept, aside, strict=True):
+        d.rename(a)
+    try:
+        written += sheets.write_wiki(atlas, out, sections=extra)
+    finally:
+        for d, a in zip(kept, aside, strict=True):
+            a.rename(d)
     for stem, make in _charts(atlas):
         fig = make()
         written.append(figures.save_figure(fig, out / f"{stem}.png"))

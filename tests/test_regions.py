@@ -6,7 +6,7 @@ import pytest
 import atlas
 from atlas import build_atlas
 from atlas.query import Atlas
-from atlas.regions import admitted_runs, cell_edges, gap_certified
+from atlas.regions import RuleWorst, admitted_runs, cell_edges, gap_certified
 from atlas.rules import parse_rule
 from atlas.tables import rule_audit
 
@@ -22,6 +22,16 @@ def test_admitted_runs_scan_gaps():
     # n*p >= 5 at p = 0.3 first holds at n = 17 (5 / 0.3 = 16.7), inside the gap 10..100.
     assert admitted_runs(rule, np.array([1, 10, 100]), 0.3) == [(17, 100)]
     assert admitted_runs(parse_rule("n < 0"), np.array([1, 10]), 0.3) == []
+
+
+def test_open_gaps_merge_into_runs_at_one_p():
+    # Adjacent open gaps at one p are one run in the JSON; a gap after a hole, or at another p,
+    # starts a new one.
+    worst = RuleWorst("normal_cc", "interval")
+    worst.open_gaps = [(0.1, 10, 20), (0.1, 20, 30), (0.1, 40, 50), (0.2, 50, 60)]
+    assert worst.open_runs() == [[0.1, 10, 30], [0.1, 40, 50], [0.2, 50, 60]]
+    assert worst.as_dict()["open_gaps"] == worst.open_runs()
+    assert "4 gap(s) between n = 10 and 60" in worst.checked()
 
 
 def test_cell_edges_are_log_odds_midpoints():
