@@ -36,8 +36,9 @@ How the extremes are found, and why it is exact
    G = Phi(z) + phi(z) sum_j c_j He_j(z) with j <= 5, and |He_j(z)| phi(z) falls as |z| grows
    beyond the largest root of He_{j+1} (its derivative is -He_{j+1}(z) phi(z); 3.3243 for
    He_6), so beyond the core's ends (|z| >= 6) U = Phi(z) + sum |c_j He_j(z)| phi(z) at lo_c
-   and V the same with 1 - Phi(z) at hi_c. ``camp_paulson`` and ``peizer_pratt`` (no such bound
-   derived) are computed over the whole window. The values, and the first k of each extreme,
+   and V the same with 1 - Phi(z) at hi_c. ``camp_paulson`` (its score falls with k near
+   k = n at small p, so G is not monotone there) and ``peizer_pratt`` (no bound derived) are
+   computed over the whole window. The values, and the first k of each extreme,
    are therefore those of every integer of the window; ``tests/test_search.py`` checks it bit
    for bit (a core of half a sigma forces the fallback) and checks U and V at every integer.
    Over the default p axis the core holds 40 to 55 per cent of the windows' integers
