@@ -169,19 +169,41 @@ def coefficients(sigma, p, first, last):
     w = p * q
     d = q - p
     eps = 1.0 / sigma
-    tables = _tables(last)
+    orders, index, matrix = _stacked(first, last)
     gamma = np.zeros((*p.shape, 3 * last))
-    for e in range(first, last + 1):
-        if e not in tables:
-            continue
-        index, matrix = tables[e]
-        # Horner in w, elementwise (a matrix product could round differently with the batch).
-        values = np.broadcast_to(matrix[:, -1], (*w.shape, len(index)))
-        for column in range(matrix.shape[1] - 2, -1, -1):
-            values = values * w[..., None] + matrix[:, column]
+    # Horner in w, elementwise (a matrix product could round differently with the batch), for
+    # every order at once: the rows of the shorter polynomials are padded with leading zeros,
+    # and 0 w + 0 = 0 exactly until their first coefficient, so each row's value is the same
+    # as from its own Horner.
+    values = np.broadcast_to(matrix[:, -1], (*w.shape, matrix.shape[0]))
+    for column in range(matrix.shape[1] - 2, -1, -1):
+        values = values * w[..., None] + matrix[:, column]
+    start = 0
+    for e, count in orders:
         scale = eps**e * (d if e % 2 else 1.0)
-        gamma[..., index] += values * scale[..., None]
+        rows = slice(start, start + count)
+        gamma[..., index[rows]] += values[..., rows] * scale[..., None]
+        start += count
     return gamma
+
+
+@cache
+def _stacked(first, last):
+    """The tables of orders first..last stacked: ((e, rows), ...), j indices, one matrix."""
+    tables = _tables(last)
+    present = [e for e in range(first, last + 1) if e in tables]
+    width = max(tables[e][1].shape[1] for e in present)
+    matrix = np.zeros((sum(len(tables[e][0]) for e in present), width))
+    row = 0
+    for e in present:
+        m = tables[e][1]
+        matrix[row : row + m.shape[0], : m.shape[1]] = m
+        row += m.shape[0]
+    index = np.concatenate([tables[e][0] for e in present])
+    orders = tuple((e, len(tables[e][0])) for e in present)
+    for array in (matrix, index):
+        array.flags.writeable = False
+    return orders, index, matrix
 
 
 def hermite_sum(z, gamma):
