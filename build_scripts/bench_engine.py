@@ -13,7 +13,8 @@ Prints, each as a ratio with its target (the targets of issue 14):
    its ratio to the naive evaluation of one method; and the per-cell cost of a batch of p;
 5. with ``--build``: the default atlas (all methods, interval and CDF errors) on a sub-grid of
    every k-th default n and every p, with 2 worker processes, and the full build estimated from
-   it by the count of n (target: at most 60 s on two cores).
+   it by the count of n (target: at most 60 s on two cores); with ``--against DIR``, the same
+   sub-grid with the engine of another checkout too, in fresh processes, interleaved.
 
 Timings are the best of repeated runs, measured in this one process, so the ratios do not
 depend on the machine's speed (they do depend on its load, printed before and after: run it on a
@@ -21,13 +22,17 @@ quiet machine). Run with ``PYTHONPATH`` set to another checkout to measure that 
 with the same script.
 
 Usage: python build_scripts/bench_engine.py [--repeat R] [--build] [--n-step K]
+       [--against OTHER_CHECKOUT --rounds R]
 """
 
 import argparse
 import gc
 import os
 import statistics
+import subprocess
+import sys
 import time
+from pathlib import Path
 
 import numpy as np
 from scipy import special, stats
@@ -75,6 +80,10 @@ def main(argv=None):
     parser.add_argument("--repeat", type=int, default=50, help="timed runs per figure")
     parser.add_argument("--build", action="store_true", help="also time a default sub-grid")
     parser.add_argument("--n-step", type=int, default=10, help="every k-th default n (10)")
+    parser.add_argument("--against", metavar="CHECKOUT",
+                        help="with --build: time the same sub-grid with another checkout's "
+                             "engine too, interleaved, and print the ratio")  # fmt: skip
+    parser.add_argument("--rounds", type=int, default=2, help="interleaved build rounds (2)")
     args = parser.parse_args(argv)
     r = args.repeat
     print(f"engine: {atlas.__file__}; load average before: {_load()}")
@@ -122,7 +131,9 @@ def main(argv=None):
         f"{every / 0.5e-3:.1f}x the target); naive one method / all seven = {full / every:.0f}x; "
         f"200 p at once: {batch / ps.size * 1e3:.3f} ms per cell (7 methods)"
     )
-    if args.build:
+    if args.build and args.against:
+        build_against(args.n_step, args.against, args.rounds)
+    elif args.build:
         build(args.n_step)
     print(f"load average after: {_load()}")
 
@@ -146,6 +157,42 @@ def build(n_step):
         f"[5] default atlas, every {n_step}th n ({n.size} n x {p.size} p x {len(METHODS)} "
         f"methods), 2 workers: {wall:.1f} s; full build estimated {estimate:.0f} s "
         f"({estimate / 60:.2f}x the 60 s target)"
+    )
+
+
+_BUILD = (
+    "import sys, time; from atlas import METHODS, grid; from atlas.build import build_atlas; "
+    "n = grid.default_n()[::{step}]; t = time.perf_counter(); "
+    "build_atlas(n, grid.default_p(), METHODS, workers=2, progress=False); "
+    "print(time.perf_counter() - t)"
+)
+
+
+def _build_in(checkout, n_step):
+    """Wall time of the sub-grid build in a fresh process importing ``checkout``'s atlas."""
+    env = dict(os.environ, PYTHONPATH=str(checkout))
+    code = _BUILD.format(step=n_step)
+    done = subprocess.run([sys.executable, "-c", code], env=env, check=True,
+                          capture_output=True, text=True, cwd=checkout)  # fmt: skip
+    return float(done.stdout.split()[-1])
+
+
+def build_against(n_step, other, rounds):
+    """The sub-grid build with this checkout and with ``other``, interleaved, best of rounds."""
+    here = Path(atlas.__file__).resolve().parent.parent
+    ours, theirs = [], []
+    for _ in range(rounds):
+        theirs.append(_build_in(Path(other).resolve(), n_step))
+        ours.append(_build_in(here, n_step))
+    from atlas import grid
+
+    count, size = grid.default_n().size, grid.default_n()[::n_step].size
+    best, other_best = min(ours), min(theirs)
+    print(
+        f"[5] default atlas, every {n_step}th n ({size} n), 2 workers, best of {rounds} "
+        f"interleaved rounds: {best:.1f} s against {other_best:.1f} s for {other} "
+        f"({other_best / best:.2f}x); full build estimated {best * count / size:.0f} s "
+        f"against {other_best * count / size:.0f} s (target 60 s)"
     )
 
 
