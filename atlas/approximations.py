@@ -517,6 +517,12 @@ def peizer_pratt_score(k, n, p):
 
     Also used for the upper tail 1 - G(k) = Phi(-z') (:mod:`atlas.complements`).
     """
+    s, t, n, p, q, d = _pp_terms(k, n, p)
+    return d * np.sqrt(_pp_spread(s, t, n, p, q))
+
+
+def _pp_terms(k, n, p):
+    """S, T, n, p, q and d of :func:`peizer_pratt_score` at k clipped to [0, n - 1]."""
     k, n, p, q, mu, sigma = _moments(k, n, p)
     kk = np.clip(k, 0.0, n - 1.0)
     s = kk + 0.5
@@ -524,7 +530,24 @@ def peizer_pratt_score(k, n, p):
     # k + 2/3 - (n + 1/3) p = (k - n p) + 2/3 - p/3, with k - n p taken exactly (see offset).
     centre = offset(kk, n, p, q) + (2.0 / 3.0 - p / 3.0)
     d = centre + 0.02 * (q / (kk + 1.0) - p / (n - kk) + (q - 0.5) / (n + 1.0))
-    return d * np.sqrt(_pp_spread(s, t, n, p, q))
+    return s, t, n, p, q, d
+
+
+def peizer_pratt_parts(k, n, p):
+    """The parts of :func:`peizer_pratt_score` at k in [0, n - 1]: d, g(S/(n p)), g(T/(n q)).
+
+    z' = d sqrt((1 + q g(S/(n p)) + p g(T/(n q))) / ((n + 1/6) p q)). d rises with k (its
+    derivative is at least 1 - 0.04), S/(n p) rises and T/(n q) falls, and g falls: with
+    g = N/D, N = 1 - t^2 + 2 t ln t, D = (1 - t)^2, g' = 2 (1 - t) h(t) / D^2 with
+    h = 2 (1 - t) + (1 + t) ln t, h(1) = 0 and h' = ln t + 1/t - 1 >= 0, so (1 - t) h(t) < 0
+    for t != 1. Bounds on z' over a range of k follow from the parts at its ends
+    (:mod:`atlas.engine`, narrow windows).
+    """
+    s, t, n, p, q, d = _pp_terms(k, n, p)
+    with np.errstate(divide="ignore", over="ignore"):
+        g1 = _pp_g(s / (n * p), n * p / s, np.log(s) - np.log(n) - np.log(p))
+        g2 = _pp_g(t / (n * q), n * q / t, np.log(t) - np.log(n) - np.log(q))
+    return d, g1, g2
 
 
 _FUNCTIONS = {

@@ -31,16 +31,22 @@ How the extremes are found, and why it is exact
    below the core -U - s <= D(k) <= F(lo_c) + U + s, above it
    F(hi_c) - 1 - V - s <= D(k) <= F(hi) - 1 + V + s, where U bounds |G| below lo_c, V bounds
    |1 - G| above hi_c and s = 4 ``G_ROUNDING`` covers the rounding of G and of the difference.
-   For the normal and Poisson CDFs (``normal_cc``, ``normal``, ``poisson``) U and V are |G| and
-   |1 - G| at the core's ends, plus ``G_ROUNDING``. For the Edgeworth curves,
+   For the normal and Poisson CDFs (``normal_cc``, ``poisson``) U and V are |G| and |1 - G|
+   at the core's ends, plus ``G_ROUNDING``. For the Edgeworth curves,
    G = Phi(z) + phi(z) sum_j c_j He_j(z) with j <= 5, and |He_j(z)| phi(z) falls as |z| grows
    beyond the largest root of He_{j+1} (its derivative is -He_{j+1}(z) phi(z); 3.3243 for
    He_6), so beyond the core's ends (|z| >= 6) U = Phi(z) + sum |c_j He_j(z)| phi(z) at lo_c
-   and V the same with 1 - Phi(z) at hi_c. ``camp_paulson`` (its score falls with k near
-   k = n at small p, so G is not monotone there) and ``peizer_pratt`` (no bound derived) are
-   computed over the whole window. The values, and the first k of each extreme,
-   are therefore those of every integer of the window; ``tests/test_search.py`` checks it bit
-   for bit (a core of half a sigma forces the fallback) and checks U and V at every integer.
+   and V the same with 1 - Phi(z) at hi_c. For ``peizer_pratt``, G = Phi(z') with
+   z' = d sqrt(spread), whose parts are monotone in k (proof in
+   :func:`atlas.approximations.peizer_pratt_parts`): U and V come from d at the core's ends
+   and the spread's smallest value over the tail (:func:`_peizer_pratt_envelopes`).
+   ``camp_paulson`` (its score falls with k near k = n at small p, so G is not monotone there)
+   and ``normal`` (its D is positive nearly everywhere, so its minimum lies in the tails) are
+   computed over the whole window. The values, and the first k of each extreme, are therefore
+   those of every integer of the window; ``tests/test_search.py`` checks it bit for bit (a
+   core of half a sigma forces the fallback) and checks U and V at every integer outside the
+   core. The tail values of D also set the accuracy's ``TAIL_TOL`` term, which reads max D and
+   min D: those are the window's own, as said.
    Over the default p axis the core holds 40 to 55 per cent of the windows' integers
    (n = 100 to 2000).
 3. *Wide windows* (larger sigma) use a nested search on D computed from the lattice Edgeworth
@@ -125,7 +131,13 @@ import numpy as np
 from scipy import special
 
 from atlas import asymptotic
-from atlas.approximations import METHODS, approximate_cdf, check_method, offset
+from atlas.approximations import (
+    METHODS,
+    approximate_cdf,
+    check_method,
+    offset,
+    peizer_pratt_parts,
+)
 
 try:
     # The ufuncs behind scipy.stats.binom (Boost's incomplete beta), called directly to skip the
@@ -394,6 +406,7 @@ def _extremes(shape):
 # Narrow windows: G is computed at mu -/+ (6 sigma + 2) first (module notes, "Narrow windows").
 _NARROW_CORE_SIGMAS = 6.0
 _NARROW_CORE_MARGIN = 2.0
+_CORE_SHARE = 0.75
 _HERMITE_MONOTONE = 3.33  # above the largest root of He_6 (3.3243): |He_j phi| falls beyond, j <= 5
 # Methods whose G is bounded outside the core: monotone CDFs, and the Edgeworth curves by the
 # Hermite terms of G = Phi(z) + phi(z) sum_j c_j He_j(z), as (c_j, He_j) for sigma, p, q.
@@ -406,7 +419,9 @@ _EDGEWORTH_TERMS = {
         (1.0 / (24.0 * s * s), lambda z: z),
     ],
 }
-_TAIL_BOUNDED_METHODS = frozenset({"normal_cc", "normal", "poisson", *_EDGEWORTH_TERMS})
+# (Not ``normal``: its D = F(k) - Phi((k - mu)/sigma) is positive nearly everywhere, so its
+# minimum lies in the tails and the core would be computed for nothing.)
+_TAIL_BOUNDED_METHODS = frozenset({"normal_cc", "poisson", "peizer_pratt", *_EDGEWORTH_TERMS})
 _TAIL_BOUNDED = _TAIL_BOUNDED_METHODS  # the methods computed on a core (tests may empty it)
 
 
@@ -422,7 +437,7 @@ def _core(n, p, lo, hi):
     return np.where(small, lo, core_lo), np.where(small, hi, core_hi)
 
 
-def _tail_envelopes(n, p, k_lo, k_hi, method):
+def _tail_envelopes(n, p, lo, hi, k_lo, k_hi, method):
     """Bounds U on |G(k)| for every k < k_lo and V on |1 - G(k)| for every k > k_hi.
 
     For the monotone G (normal and Poisson CDFs) they are |G| and |1 - G| at the core's ends,
@@ -432,6 +447,8 @@ def _tail_envelopes(n, p, k_lo, k_hi, method):
     U = Phi(z) + sum |c_j He_j(z)| phi(z) at k_lo, and V the same with 1 - Phi(z) at k_hi.
     Rows where an end is not that far out get inf (no bound, so no core).
     """
+    if method == "peizer_pratt":
+        return _peizer_pratt_envelopes(n, p, lo, hi, k_lo, k_hi)
     if method not in _EDGEWORTH_TERMS:
         g = approximate_cdf(np.stack([k_lo, k_hi]), n, p, method)
         return np.abs(g[0]) + G_ROUNDING, np.abs(1.0 - g[1]) + G_ROUNDING
@@ -456,6 +473,34 @@ def _row_extremes(d, valid, k):
     return d[rows, imax], k[rows, imax], d[rows, imin], k[rows, imin]
 
 
+def _peizer_pratt_envelopes(n, p, lo, hi, k_lo, k_hi):
+    """U and V of :func:`_tail_envelopes` for ``peizer_pratt``, G = Phi(z').
+
+    Below the core (lo <= k < k_lo): d(k) <= d(k_lo - 1), g(S/(n p)) >= its value at k_lo - 1
+    and g(T/(n q)) >= its value at lo (:func:`atlas.approximations.peizer_pratt_parts`), so
+    z'(k) <= d(k_lo - 1) sqrt(spread) with the spread from those g (when d < 0 there and the
+    spread > 0), and U = Phi of that. Above the core the same with the ends exchanged (k = n,
+    where G = 1, needs nothing). Each g is lowered by 1e-12 and the bound on |z'| by 1e-9 of
+    itself for the rounding of the parts.
+    """
+    q = 1.0 - p
+    scale = (n + 1.0 / 6.0) * p * q
+    last = np.minimum(hi, n - 1)
+    d_lo, g1_lo, _ = peizer_pratt_parts(k_lo - 1, n, p)
+    _, _, g2_lo = peizer_pratt_parts(lo, n, p)
+    d_hi, _, g2_hi = peizer_pratt_parts(k_hi + 1, n, p)
+    _, g1_hi, _ = peizer_pratt_parts(last, n, p)
+    bounds = []
+    for d, g1, g2, sign in ((d_lo, g1_lo, g2_lo, -1.0), (d_hi, g1_hi, g2_hi, 1.0)):
+        spread = (1.0 + q * (g1 - 1e-12) + p * (g2 - 1e-12)) / scale
+        with np.errstate(invalid="ignore"):
+            reach = sign * d * np.sqrt(spread) * (1.0 - 1e-9)  # a lower bound on |z'|
+        ok = (sign * d > 0) & (spread > 0) & np.isfinite(reach)
+        bounds.append(np.where(ok, special.ndtr(-np.where(ok, reach, 0.0)) * (1.0 + 1e-9), np.inf))
+    upper_empty = k_hi + 1 > last  # at most k = n above the core, where 1 - G = 0
+    return bounds[0] + G_ROUNDING, np.where(upper_empty, 0.0, bounds[1]) + G_ROUNDING
+
+
 def _every_integer(n, p, lo, hi, methods):
     """Extremes of D over [lo, hi] evaluated at every integer, for rows of p at one n.
 
@@ -469,12 +514,25 @@ def _every_integer(n, p, lo, hi, methods):
     """
     out = _extremes((len(methods), p.size))
     core_lo, core_hi = _core(n, p, lo, hi)
-    outside = (core_lo > lo) | (core_hi < hi)
+    groups = _width_groups(hi - lo + 1)
+    # A group takes the core where its rectangle is at most _CORE_SHARE of the window's (else
+    # the bounds and the second rectangle cost more than they save).
+    cored = [
+        (core_hi[g] - core_lo[g]).max() + 1 <= _CORE_SHARE * ((hi[g] - lo[g]).max() + 1)
+        for g in groups
+    ]
     envelopes = {}
-    if outside.any():
+    need = np.zeros(p.size, dtype=bool)
+    for group, use in zip(groups, cored, strict=True):
+        need[group] = use
+    need = np.flatnonzero(need)
+    if need.size:
         for method in _TAIL_BOUNDED.intersection(methods):
-            envelopes[method] = _tail_envelopes(n, p, core_lo, core_hi, method)
-    for group in _width_groups(hi - lo + 1):
+            u, v = np.full(p.size, np.inf), np.full(p.size, np.inf)
+            u[need], v[need] = _tail_envelopes(n, p[need], lo[need], hi[need], core_lo[need],
+                                               core_hi[need], method)  # fmt: skip
+            envelopes[method] = u, v
+    for group, use in zip(groups, cored, strict=True):
         g_lo, g_hi, c_lo, c_hi = lo[group], hi[group], core_lo[group], core_hi[group]
         pg = p[group, None]
         k, valid, cdf = _cdf_rows(n, p[group], g_lo, g_hi)
@@ -491,7 +549,7 @@ def _every_integer(n, p, lo, hi, methods):
         f_lo, f_core_hi = core_f[:, 0], cdf[rows, c_hi - g_lo]
         f_hi = cdf[rows, g_hi - g_lo]
         for i, method in enumerate(methods):
-            if method not in envelopes or not outside[group].any():
+            if method not in envelopes or not use:
                 d = cdf - approximate_cdf(k, n, pg, method)
                 found = _row_extremes(d, valid, k)
                 for j, values in enumerate(found):

@@ -201,7 +201,7 @@ def test_tail_envelopes_bound_g_outside_the_core(method, n):
     p = NARROW_P
     lo, hi, _ = engine._windows(n, p, (method,))
     core_lo, core_hi = engine._core(n, p, lo, hi)
-    u, v = engine._tail_envelopes(n, p, core_lo, core_hi, method)
+    u, v = engine._tail_envelopes(n, p, lo, hi, core_lo, core_hi, method)
     for j in range(p.size):
         below = np.arange(lo[j], core_lo[j])
         above = np.arange(core_hi[j] + 1, hi[j] + 1)
