@@ -242,3 +242,19 @@ def test_worked_examples_printed_figures():
     assert round(table_phi(z) - table_phi(-z), 4) == 0.1272
     z = (150.5 - 135) / math.sqrt(94.5)  # (150.5 - 450 * 0.3) / sqrt(450 * 0.3 * 0.7)
     assert round(1 - table_phi(z), 4) == 0.0559
+
+
+@pytest.mark.parametrize("n, p", [(50, 0.3), (2000, 0.01), (2000, 0.97), (10**6, 1e-4)])
+def test_peizer_pratt_parts_are_monotone_in_k(n, p):
+    # The engine bounds peizer_pratt's G outside a core from the parts at a range's ends: d
+    # rises with k, g(S/(n p)) and g(T/(n q)) fall (g falls: the proof in peizer_pratt_parts).
+    # Checked at every k to n - 1 (to 5000 at n = 10^6), and the parts give the score.
+    from atlas.approximations import peizer_pratt_parts, peizer_pratt_score
+
+    k = np.arange(0, min(n, 5000))
+    d, g1, g2 = peizer_pratt_parts(k, n, p)
+    assert (np.diff(d) > 0).all()
+    assert (np.diff(g1) < 0).all() and (np.diff(g2) > 0).all()  # T/(n q) falls as k rises
+    q = 1.0 - p
+    spread = (1.0 + q * g1 + p * g2) / ((n + 1.0 / 6.0) * p * q)
+    assert_allclose(d * np.sqrt(spread), peizer_pratt_score(k, n, p), rtol=1e-9, atol=1e-12)
