@@ -376,6 +376,18 @@ def camp_paulson_score(k, n, p):
     Also used for the upper tail 1 - G(k) = Phi(-w) (:mod:`atlas.complements`), so that the
     tail is not formed as a difference from 1.
     """
+    numerator, b, r3, a = camp_paulson_parts(k, n, p)
+    return numerator / np.sqrt(b * r3 * r3 + a)
+
+
+def camp_paulson_parts(k, n, p):
+    """The parts of :func:`camp_paulson_score` at k in [0, n - 1]: numerator, b, r^(1/3), a.
+
+    w = (r^(1/3) - 1 - b r^(1/3) + a) / sqrt(b r^(2/3) + a). The numerator (1 - b) r^(1/3) -
+    (1 - a) rises with k (r and a rise, b falls, 1 - b > 0), as do r^(1/3) and a, while b
+    falls; the denominator need not be monotone (w itself falls near k = n at small p). Bounds
+    on w over a range of k follow from the parts at its ends (:mod:`atlas.engine`).
+    """
     k, n, p, q, mu, sigma = _moments(k, n, p)
     kk = np.clip(k, 0.0, n - 1.0)
     rest = n - kk
@@ -391,7 +403,7 @@ def camp_paulson_score(k, n, p):
     r3 = 1.0 + r3m1
     a = 1.0 / (9.0 * rest)
     b = 1.0 / (9.0 * (kk + 1.0))
-    return (r3m1 - b * r3 + a) / np.sqrt(b * r3 * r3 + a)
+    return r3m1 - b * r3 + a, b, r3, a
 
 
 _PP_TERMS = 24

@@ -36,19 +36,19 @@ How the extremes are found, and why it is exact
    G = Phi(z) + phi(z) sum_j c_j He_j(z) with j <= 5, and |He_j(z)| phi(z) falls as |z| grows
    beyond the largest root of He_{j+1} (its derivative is -He_{j+1}(z) phi(z); 3.3243 for
    He_6), so beyond the core's ends (|z| >= 6) U = Phi(z) + sum |c_j He_j(z)| phi(z) at lo_c
-   and V the same with 1 - Phi(z) at hi_c. For ``peizer_pratt``, G = Phi(z') with
-   z' = d sqrt(spread), whose parts are monotone in k (proof in
-   :func:`atlas.approximations.peizer_pratt_parts`): U and V come from d at the core's ends
-   and the spread's smallest value over the tail (:func:`_peizer_pratt_envelopes`).
-   ``camp_paulson`` (its score falls with k near k = n at small p, so G is not monotone there)
-   and ``normal`` (its D is positive nearly everywhere, so its minimum lies in the tails) are
-   computed over the whole window. The values, and the first k of each extreme, are therefore
-   those of every integer of the window; ``tests/test_search.py`` checks it bit for bit (a
-   core of half a sigma forces the fallback) and checks U and V at every integer outside the
-   core. The tail values of D also set the accuracy's ``TAIL_TOL`` term, which reads max D and
-   min D: those are the window's own, as said.
-   Over the default p axis the core holds 40 to 55 per cent of the windows' integers
-   (n = 100 to 2000).
+   and V the same with 1 - Phi(z) at hi_c. For ``peizer_pratt`` and ``camp_paulson``,
+   G = Phi(w) with w built from parts monotone in k (proofs in
+   :func:`atlas.approximations.peizer_pratt_parts` and ``camp_paulson_parts``): U and V come
+   from each part's least favourable end of the tail (:func:`_peizer_pratt_envelopes`,
+   :func:`_camp_paulson_envelopes`; camp_paulson's w itself is not monotone near k = n at
+   small p, its parts are). ``normal`` (its D is positive nearly everywhere, so its minimum
+   lies in the tails) is computed over the whole window, and so is a group of rows whose core
+   would hold more than ``_CORE_SHARE`` of its window. The values, and the first k of each
+   extreme, are therefore those of every integer of the window; ``tests/test_search.py``
+   checks it bit for bit (a core of half a sigma forces the fallback) and checks U and V at
+   every integer outside the core. The accuracy's ``TAIL_TOL`` term reads max D and min D:
+   those are the window's own, as said. Over the default p axis the core holds 40 to 55 per
+   cent of the windows' integers (n = 100 to 2000).
 3. *Wide windows* (larger sigma) use a nested search on D computed from the lattice Edgeworth
    expansion of F (:mod:`atlas.asymptotic`), not from Boost, whose absolute error grows like
    sqrt(n) (table below) and reaches the size of the errors measured. D is sampled every
@@ -134,6 +134,7 @@ from atlas import asymptotic
 from atlas.approximations import (
     METHODS,
     approximate_cdf,
+    camp_paulson_parts,
     check_method,
     offset,
     peizer_pratt_parts,
@@ -421,7 +422,9 @@ _EDGEWORTH_TERMS = {
 }
 # (Not ``normal``: its D = F(k) - Phi((k - mu)/sigma) is positive nearly everywhere, so its
 # minimum lies in the tails and the core would be computed for nothing.)
-_TAIL_BOUNDED_METHODS = frozenset({"normal_cc", "poisson", "peizer_pratt", *_EDGEWORTH_TERMS})
+_TAIL_BOUNDED_METHODS = frozenset(
+    {"normal_cc", "poisson", "peizer_pratt", "camp_paulson", *_EDGEWORTH_TERMS}
+)
 _TAIL_BOUNDED = _TAIL_BOUNDED_METHODS  # the methods computed on a core (tests may empty it)
 
 
@@ -447,8 +450,8 @@ def _tail_envelopes(n, p, lo, hi, k_lo, k_hi, method):
     U = Phi(z) + sum |c_j He_j(z)| phi(z) at k_lo, and V the same with 1 - Phi(z) at k_hi.
     Rows where an end is not that far out get inf (no bound, so no core).
     """
-    if method == "peizer_pratt":
-        return _peizer_pratt_envelopes(n, p, lo, hi, k_lo, k_hi)
+    if method in _SCORE_ENVELOPES:
+        return _SCORE_ENVELOPES[method](n, p, lo, hi, k_lo, k_hi)
     if method not in _EDGEWORTH_TERMS:
         g = approximate_cdf(np.stack([k_lo, k_hi]), n, p, method)
         return np.abs(g[0]) + G_ROUNDING, np.abs(1.0 - g[1]) + G_ROUNDING
@@ -473,32 +476,63 @@ def _row_extremes(d, valid, k):
     return d[rows, imax], k[rows, imax], d[rows, imin], k[rows, imin]
 
 
+def _score_envelopes(n, hi, k_hi, below, above):
+    """U and V for G = Phi(w) from bounds on w: w <= ``below`` under the core (needs below < 0)
+    and w >= ``above`` over it (needs above > 0); inf where those fail. Each bound is moved
+    towards 0 by 1e-9 of itself for the rounding of its parts; k = n, where G = 1, needs
+    nothing."""
+    bounds = []
+    for reach in (-below * (1.0 - 1e-9), above * (1.0 - 1e-9)):  # lower bounds on |w|
+        ok = np.isfinite(reach) & (reach > 0)
+        bounds.append(np.where(ok, special.ndtr(-np.where(ok, reach, 0.0)) * (1.0 + 1e-9), np.inf))
+    upper_empty = k_hi + 1 > np.minimum(hi, n - 1)
+    return bounds[0] + G_ROUNDING, np.where(upper_empty, 0.0, bounds[1]) + G_ROUNDING
+
+
 def _peizer_pratt_envelopes(n, p, lo, hi, k_lo, k_hi):
     """U and V of :func:`_tail_envelopes` for ``peizer_pratt``, G = Phi(z').
 
     Below the core (lo <= k < k_lo): d(k) <= d(k_lo - 1), g(S/(n p)) >= its value at k_lo - 1
     and g(T/(n q)) >= its value at lo (:func:`atlas.approximations.peizer_pratt_parts`), so
     z'(k) <= d(k_lo - 1) sqrt(spread) with the spread from those g (when d < 0 there and the
-    spread > 0), and U = Phi of that. Above the core the same with the ends exchanged (k = n,
-    where G = 1, needs nothing). Each g is lowered by 1e-12 and the bound on |z'| by 1e-9 of
-    itself for the rounding of the parts.
+    spread > 0). Above the core the same with the ends exchanged. Each g is lowered by 1e-12
+    for its rounding.
     """
     q = 1.0 - p
     scale = (n + 1.0 / 6.0) * p * q
-    last = np.minimum(hi, n - 1)
     d_lo, g1_lo, _ = peizer_pratt_parts(k_lo - 1, n, p)
     _, _, g2_lo = peizer_pratt_parts(lo, n, p)
     d_hi, _, g2_hi = peizer_pratt_parts(k_hi + 1, n, p)
-    _, g1_hi, _ = peizer_pratt_parts(last, n, p)
-    bounds = []
-    for d, g1, g2, sign in ((d_lo, g1_lo, g2_lo, -1.0), (d_hi, g1_hi, g2_hi, 1.0)):
-        spread = (1.0 + q * (g1 - 1e-12) + p * (g2 - 1e-12)) / scale
-        with np.errstate(invalid="ignore"):
-            reach = sign * d * np.sqrt(spread) * (1.0 - 1e-9)  # a lower bound on |z'|
-        ok = (sign * d > 0) & (spread > 0) & np.isfinite(reach)
-        bounds.append(np.where(ok, special.ndtr(-np.where(ok, reach, 0.0)) * (1.0 + 1e-9), np.inf))
-    upper_empty = k_hi + 1 > last  # at most k = n above the core, where 1 - G = 0
-    return bounds[0] + G_ROUNDING, np.where(upper_empty, 0.0, bounds[1]) + G_ROUNDING
+    _, g1_hi, _ = peizer_pratt_parts(np.minimum(hi, n - 1), n, p)
+    with np.errstate(invalid="ignore"):
+        root_lo = np.sqrt((1.0 + q * (g1_lo - 1e-12) + p * (g2_lo - 1e-12)) / scale)
+        root_hi = np.sqrt((1.0 + q * (g1_hi - 1e-12) + p * (g2_hi - 1e-12)) / scale)
+    return _score_envelopes(n, hi, k_hi, d_lo * root_lo, d_hi * root_hi)
+
+
+def _camp_paulson_envelopes(n, p, lo, hi, k_lo, k_hi):
+    """U and V of :func:`_tail_envelopes` for ``camp_paulson``, G = Phi(N / sqrt(b r^(2/3) + a)).
+
+    The numerator N rises with k, as do r and a, and b falls
+    (:func:`atlas.approximations.camp_paulson_parts`). Below the core: N(k) <= N(k_lo - 1) and
+    b r^(2/3) + a <= b(lo) r(k_lo - 1)^(2/3) + a(k_lo - 1), so w(k) <= N(k_lo - 1) over the
+    root of that (when N < 0 there); above it, w(k) >= N(k_hi + 1) over the root of
+    b(k_hi + 1) r(last)^(2/3) + a(last), last = min(hi, n - 1). The root is raised by 1e-12 of
+    itself for its rounding.
+    """
+    num_lo, _, r3_lo, a_lo = camp_paulson_parts(k_lo - 1, n, p)
+    _, b_lo, _, _ = camp_paulson_parts(lo, n, p)
+    num_hi, b_hi, _, _ = camp_paulson_parts(k_hi + 1, n, p)
+    _, _, r3_last, a_last = camp_paulson_parts(np.minimum(hi, n - 1), n, p)
+    root_lo = np.sqrt(b_lo * r3_lo * r3_lo + a_lo) * (1.0 + 1e-12)
+    root_hi = np.sqrt(b_hi * r3_last * r3_last + a_last) * (1.0 + 1e-12)
+    return _score_envelopes(n, hi, k_hi, num_lo / root_lo, num_hi / root_hi)
+
+
+_SCORE_ENVELOPES = {
+    "peizer_pratt": _peizer_pratt_envelopes,
+    "camp_paulson": _camp_paulson_envelopes,
+}
 
 
 def _every_integer(n, p, lo, hi, methods):

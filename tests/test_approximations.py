@@ -258,3 +258,19 @@ def test_peizer_pratt_parts_are_monotone_in_k(n, p):
     q = 1.0 - p
     spread = (1.0 + q * g1 + p * g2) / ((n + 1.0 / 6.0) * p * q)
     assert_allclose(d * np.sqrt(spread), peizer_pratt_score(k, n, p), rtol=1e-9, atol=1e-12)
+
+
+@pytest.mark.parametrize("n, p", [(50, 0.3), (2000, 0.01), (2000, 0.97), (1680, 2.6e-4)])
+def test_camp_paulson_parts_are_monotone_in_k(n, p):
+    # The engine's bounds outside a core rest on these: the numerator, r^(1/3) and a rise with k,
+    # b falls; the score they give need not be monotone (n = 1680, p = 2.6e-4 falls near k = n:
+    # computed, found by a random search over n and p).
+    from atlas.approximations import camp_paulson_parts, camp_paulson_score
+
+    k = np.arange(0, n)
+    numerator, b, r3, a = camp_paulson_parts(k, n, p)
+    assert (np.diff(numerator) > 0).all() and (np.diff(r3) > 0).all()
+    assert (np.diff(a) > 0).all() and (np.diff(b) < 0).all()
+    assert_array_equal(numerator / np.sqrt(b * r3 * r3 + a), camp_paulson_score(k, n, p))
+    if p < 1e-3:
+        assert (np.diff(camp_paulson_score(k, n, p)) < 0).any()
