@@ -14,7 +14,10 @@ full group (320 n x 41 p, one worker): each path's time per (n, p) at the sample
 interpolated in log n over the group's n axis and summed over its 41 p. The values of the two
 paths are compared too (identical bit for bit, or the script says so).
 
-Usage: python build_scripts/bench_decisions.py [--repeat R] [--base COMMIT]
+With ``--every-p`` each sampled n runs the group's 41 p (the engine's bound is asked once per
+n and method for every p, so 12 p understate the new path's gain).
+
+Usage: python build_scripts/bench_decisions.py [--repeat R] [--base COMMIT] [--every] [--every-p]
 """
 
 import argparse
@@ -134,11 +137,16 @@ def main():
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeat", type=int, default=1, help="runs of each path per n (best)")
     parser.add_argument("--every", action="store_true", help="print every sampled n too")
+    parser.add_argument(
+        "--every-p", action="store_true", help="the group's 41 p at each n (default: 12 p)"
+    )
     parser.add_argument("--base", help="commit of the old code (default: the regression file's)")
     args = parser.parse_args()
     methods = tuple(sorted(METHODS))
     with np.load(DATA) as stored:
         n_sample, p_sample, base = stored["n"], stored["p"], args.base or str(stored["commit"])
+    if args.every_p:
+        p_sample = parse_p(DECISION_P)
     times = np.empty((2, n_sample.size))
     identical = True
     with tempfile.TemporaryDirectory() as directory:
