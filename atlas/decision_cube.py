@@ -28,8 +28,15 @@ import numpy as np
 
 from atlas.approximations import METHODS, check_method
 from atlas.grid import parse_n, parse_p
-from atlas.sizes import ALTERNATIVES, cell_all_sizes
-from atlas.tails import cell_tail_errors, error_bound
+from atlas.sizes import ALTERNATIVES, cell_all_sizes, rejected_mass
+from atlas.tails import (
+    DIRECT_MAX,
+    Counts,
+    cell_tail_errors,
+    error_bounds,
+    profile_tail_errors,
+    share,
+)
 
 __all__ = [
     "DECISION_N",
@@ -84,15 +91,44 @@ ATTRIBUTES = {
 }
 
 
-def _cell(args):
-    """Every metric of one (n, p) and method: tails (2, levels), sizes (3, levels) x 2."""
-    n, p, method, tail_levels, test_levels = args
-    bound = error_bound(n, p, method) if n > 2048 else None
-    lower, upper = cell_tail_errors(n, p, method, tail_levels, bound=bound)
-    sizes = cell_all_sizes(n, p, method, test_levels, bound=bound)
-    size = np.array([sizes[a][0] for a in _ALTERNATIVES])
-    exact = np.array([sizes[a][1] for a in _ALTERNATIVES])
-    return np.array([lower, upper]), size, exact
+def _row(args):
+    """Every metric of one n at every p and method.
+
+    Returns tails (methods, p, 2, levels), sizes and exact sizes (methods, p, 3, levels); the
+    exact sizes are the same for every method (computed once, repeated).
+
+    The work that does not depend on the method is done once: up to n = ``DIRECT_MAX`` the
+    exact part of every count at every p (:class:`atlas.tails.Counts`) and each method's G at
+    every p in one call; above it, one :func:`atlas.tails.share` per p for the seven methods.
+    Each value is the one the per-cell functions give (:func:`atlas.tails.cell_tail_errors`,
+    :func:`atlas.sizes.cell_all_sizes`), bit for bit: the same operations on the same numbers,
+    row by row (tests/test_decision_regression.py).
+    """
+    n, p_axis, methods, tail_levels, test_levels = args
+    alphas, levels = np.asarray(tail_levels), np.asarray(test_levels)
+    tails = np.empty((len(methods), p_axis.size, 2, alphas.size))
+    sizes = np.empty((len(methods), p_axis.size, 3, levels.size))
+    exact = np.empty_like(sizes)
+    if n <= DIRECT_MAX:
+        counts = Counts(n, p_axis)
+        exact[:] = np.stack([rejected_mass(counts.mass, counts.lower, counts.upper, levels, a)
+                             for a in _ALTERNATIVES], axis=1)  # fmt: skip
+        for i, method in enumerate(methods):
+            g, gu = counts.approx(method)
+            tails[i] = np.stack(profile_tail_errors(counts.lower, counts.upper, g, gu, alphas), 1)
+            sizes[i] = np.stack([rejected_mass(counts.mass, g, gu, levels, a)
+                                 for a in _ALTERNATIVES], axis=1)  # fmt: skip
+        return tails, sizes, exact
+    bounds = [error_bounds(n, p_axis, method) for method in methods]
+    for j, p in enumerate(p_axis.tolist()):
+        shared = share(n, p)
+        for i, method in enumerate(methods):
+            bound = bounds[i][j]
+            tails[i, j] = cell_tail_errors(n, p, method, alphas, bound=bound, shared=shared)
+            got = cell_all_sizes(n, p, method, levels, bound=bound, shared=shared)
+            sizes[i, j] = [got[a][0] for a in _ALTERNATIVES]
+            exact[i, j] = [got[a][1] for a in _ALTERNATIVES]
+    return tails, sizes, exact
 
 
 def decision_dataset(
@@ -146,19 +182,20 @@ def decision_dataset(
     # Index coordinates strictly increasing, as the atlas file requires of every index.
     tail_levels = tuple(sorted({float(a) for a in tail_levels}))
     test_levels = tuple(sorted({float(a) for a in test_levels}))
-    tasks = [(int(cn), float(cp), m, tail_levels, test_levels)
-             for m in methods for cn in n_axis for cp in p_axis]  # fmt: skip
+    # One task per n, every p and method (the method-free work shared: _row); the largest n
+    # first, so that workers finish together.
+    tasks = [(int(cn), p_axis, methods, tail_levels, test_levels) for cn in n_axis[::-1]]
     if workers and workers > 1:
         from concurrent.futures import ProcessPoolExecutor
 
         with ProcessPoolExecutor(workers) as pool:
-            results = list(pool.map(_cell, tasks, chunksize=64))
+            results = list(pool.map(_row, tasks))[::-1]
     else:
-        results = [_cell(t) for t in tasks]
-    shape = (len(methods), n_axis.size, p_axis.size)
-    tails = np.stack([r[0] for r in results]).reshape(shape + (2, len(tail_levels)))
-    sizes = np.stack([r[1] for r in results]).reshape(shape + (3, len(test_levels)))
-    exact = np.stack([r[2] for r in results]).reshape(shape + (3, len(test_levels)))[0]
+        results = [_row(t) for t in tasks][::-1]
+    # (methods, n, p, 2 or 3, levels); the exact sizes of the first method stand for all.
+    tails = np.stack([r[0] for r in results], axis=1)
+    sizes = np.stack([r[1] for r in results], axis=1)
+    exact = np.stack([r[2] for r in results], axis=1)[0]
     coords = {
         "approximation": np.asarray(methods, dtype=object),
         "tail": np.asarray(TAILS, dtype=object),

@@ -55,6 +55,8 @@ __all__ = ["ALTERNATIVES", "TestSize", "check_alternative", "test_size"]
 ALTERNATIVES = ("two-sided", "less", "greater")
 
 _BLOCK = 1 << 16
+#: The monotone methods' halving reads A from one call where the counts in question are fewer.
+_AHEAD = 2048
 #: Methods whose G(k) increases with k at every k (a normal CDF of an increasing score, or the
 #: Poisson CDF): their rejection regions are runs, found by halving.
 MONOTONE = ("normal_cc", "normal", "poisson")
@@ -97,22 +99,55 @@ class TestSize:
     method: str
 
 
-def _far_reject(side, level):
+def _far_reject(side, level, first=None):
     """The last j of the same-side far tail where every A(j') (j' <= j) is <= ``level``, or -1.
 
-    Starts 9 sigma + 10 from the mean and doubles the distance until |A| <= level there.
+    Starts 9 sigma + 10 from the mean (:func:`_far_index`) and doubles the distance until
+    |A| <= level there; ``first`` is A at the first j, if known.
     """
-    mu = side.n * side.p
-    sigma = np.sqrt(mu * (1.0 - side.p))
-    reach = _FAR_SIGMAS * sigma + _FAR_MARGIN
+    reach = _far_reach(side)
     while True:
-        k = np.ceil(mu + reach) if side.upper else np.floor(mu - reach)
-        j = int(side.n - k) if side.upper else int(k)
+        j = _far_index(side, reach)
         if j < 0:
             return -1
-        if abs(float(side.approx(j))) <= level:
+        a = float(side.approx(j)) if first is None else float(first)
+        if abs(a) <= level:
             return j
+        first = None
         reach *= 2.0
+
+
+def _far_reach(side):
+    """9 sigma + 10: the first distance from the mean :func:`_far_reject` tries."""
+    mu = side.n * side.p
+    return _FAR_SIGMAS * np.sqrt(mu * (1.0 - side.p)) + _FAR_MARGIN
+
+
+def _far_index(side, reach):
+    """The index j of the count ``reach`` from the mean on the side's own far end (may be < 0)."""
+    mu = side.n * side.p
+    k = np.ceil(mu + reach) if side.upper else np.floor(mu - reach)
+    return int(side.n - k) if side.upper else int(k)
+
+
+class _Ahead:
+    """A(j) of one side on the counts first..last and at one more count, in one call.
+
+    Read back by index where every count asked for is among them, else computed; a method's G
+    costs nearly as much for one count as for a thousand, and each value is the one a call for
+    it alone gives (every G is elementwise).
+    """
+
+    def __init__(self, side, first, last, extra):
+        self.side, self.first = side, first
+        got = side.approx(np.append(np.arange(first, last + 1, dtype=np.int64), extra))
+        self.values, self.extra = got[:-1], got[-1]
+
+    def __call__(self, j):
+        j = np.asarray(j, dtype=np.int64)
+        if ((j >= self.first) & (j < self.first + self.values.size)).all():
+            return self.values[j - self.first]
+        return self.side.approx(j)
 
 
 def _rejected(side, levels, bound):
@@ -124,7 +159,16 @@ def _rejected(side, levels, bound):
     found = side.last_at_most(np.concatenate([levels, levels - bound, levels + bound]))
     j_exact, low, high = found[:m], found[m : 2 * m], found[2 * m :]
     exact_size = np.where(j_exact >= 0, side.exact(np.maximum(j_exact, 0)), 0.0)
-    j1 = np.maximum(np.where(levels - bound > 0, low, -1), _far_reject(side, levels.min()))
+    near = np.where(levels - bound > 0, low, -1)
+    # A on the counts in question as they are when the far tail's first point is rejected (the
+    # usual case), with that point, in one call (_Ahead); any other count is computed.
+    j_far = _far_index(side, _far_reach(side))
+    start = np.maximum(near, j_far)
+    first, last = int(start.min()) + 1, int(np.maximum(high, start).max())
+    if last - first >= (_AHEAD if side.method in MONOTONE else _BLOCK):
+        last = first - 1  # too many: the far point only
+    approx = _Ahead(side, first, last, max(j_far, 0))
+    j1 = np.maximum(near, _far_reject(side, levels.min(), approx.extra if j_far >= 0 else None))
     j2 = np.maximum(high, j1)
     if side.method in MONOTONE:
         # A increases with j: the rejected counts are the run j <= j*, j* the last j of
@@ -133,7 +177,7 @@ def _rejected(side, levels, bound):
         idx = np.flatnonzero(hi - lo > 1)
         while idx.size:
             mid = (lo[idx] + hi[idx]) // 2
-            hit = side.approx(mid) <= levels[idx]
+            hit = approx(mid) <= levels[idx]
             lo[idx[hit]] = mid[hit]
             hi[idx[~hit]] = mid[~hit]
             idx = idx[hi[idx] - lo[idx] > 1]
@@ -145,7 +189,7 @@ def _rejected(side, levels, bound):
         # One pass over the union of the counts in question, every level at once.
         j = np.arange(first, last + 1, dtype=np.int64)
         between = (j[None, :] > j1[:, None]) & (j[None, :] <= j2[:, None])
-        hit = between & (side.approx(j)[None, :] <= levels[:, None])
+        hit = between & (approx(j)[None, :] <= levels[:, None])
         approx_size = approx_size + np.where(hit, side.mass(j)[None, :], 0.0).sum(axis=1)
     else:
         for i, level in enumerate(levels):
@@ -172,23 +216,36 @@ def _overlap(n, p, method, level, lower_end, upper_end):
 
 def _profile_sizes(profile, alphas, alternative):
     """Both sizes from every count of a small cell (:class:`atlas.tails.Profile`)."""
+    mass = profile.mass
+    size = rejected_mass(mass, profile.g, profile.gu, alphas, alternative)
+    return size, rejected_mass(mass, profile.lower, profile.upper, alphas, alternative)
+
+
+def rejected_mass(mass, lower, upper, alphas, alternative):
+    """The mass of the counts a test rejects, from every count of small cells.
+
+    ``mass`` is b(k) and ``lower``, ``upper`` the lower tail and the upper tail P(X >= k) the
+    test takes its p-values from (G and 1 - G(k - 1) for the approximate test, F and U for the
+    exact one), each of shape (..., n + 1) (broadcast together); returns shape (..., levels),
+    every row summed as one.
+    """
     level = alphas[:, None] if alternative != "two-sided" else alphas[:, None] / 2.0
+    lower, upper = lower[..., None, :], upper[..., None, :]
     if alternative == "less":
-        hit, exact = profile.g <= level, profile.lower <= level
+        hit = lower <= level
     elif alternative == "greater":
-        hit, exact = profile.gu <= level, profile.upper <= level
+        hit = upper <= level
     else:
-        hit = (profile.g <= level) | (profile.gu <= level)
-        exact = (profile.lower <= level) | (profile.upper <= level)
-    mass = profile.mass[None, :]
-    return np.where(hit, mass, 0.0).sum(axis=1), np.where(exact, mass, 0.0).sum(axis=1)
+        hit = (lower <= level) | (upper <= level)
+    return np.where(hit, mass[..., None, :], 0.0).sum(axis=-1)
 
 
-def cell_all_sizes(n, p, method, alphas, *, bound=None):
+def cell_all_sizes(n, p, method, alphas, *, bound=None, shared=None):
     """Both sizes of every alternative at one (n, p0): {alternative: (size, exact_size)}.
 
     The one-sided tests at alpha and the two-sided test's sides at alpha/2 share one pass per
-    side.
+    side; ``shared`` (:func:`atlas.tails.share`) keeps the method-free work for the other
+    methods of the cell.
     """
     alphas = np.atleast_1d(np.asarray(alphas, dtype=np.float64))
     if n <= DIRECT_MAX:
@@ -198,8 +255,8 @@ def cell_all_sizes(n, p, method, alphas, *, bound=None):
         bound = error_bound(n, p, method)
     m = alphas.size
     levels = np.concatenate([alphas, alphas / 2.0])
-    lower = _rejected(Side(n, p, method, False), levels, bound)
-    upper = _rejected(Side(n, p, method, True), levels, bound)
+    lower = _rejected(Side(n, p, method, False, shared=shared), levels, bound)
+    upper = _rejected(Side(n, p, method, True, shared=shared), levels, bound)
     out = {"less": (lower[0][:m], lower[1][:m]), "greater": (upper[0][:m], upper[1][:m])}
     size = lower[0][m:] + upper[0][m:]
     for i, level in enumerate(levels[m:]):

@@ -41,6 +41,14 @@ tests compare the two. Up to n =
 ``DIRECT_MAX`` (2048) every count is evaluated in one vectorised pass (:class:`Profile`, tails
 summed from the pmf), which costs less than the bound.
 
+Work shared by the methods
+--------------------------
+T, its blocks and the answers of the bisection do not depend on the method: :func:`share`
+keeps them for every method of one (n, p), and :class:`Counts` holds the exact part of every
+count of a small n at many p; :func:`error_bounds` asks the engine for every p of one n at once
+(its result at a p does not depend on the other p). Each value is then the one computed alone,
+bit for bit (tests/test_decision_regression.py); :mod:`atlas.decision_cube` builds on them.
+
 Accuracy
 --------
 T comes from Boost's incomplete beta behind ``scipy.stats.binom`` (``_binom_cdf`` for L(k) =
@@ -57,6 +65,7 @@ question of whether that tail is admitted.
 import warnings
 
 import numpy as np
+from scipy.special import ndtri
 
 from atlas.approximations import approximate_cdf, check_method
 from atlas.complements import approximate_upper
@@ -84,6 +93,7 @@ _FAR_SIGMAS = 9.0
 _FAR_MARGIN = 10.0
 _FIRST_BLOCK = 64
 _MAX_BLOCK = 1 << 16
+_AHEAD_MAX = 1024
 
 
 def _show(value):
@@ -138,8 +148,38 @@ class Side:
     upper : bool
     """
 
-    def __init__(self, n, p, method, upper):
+    def __init__(self, n, p, method, upper, *, shared=None):
         self.n, self.p, self.method, self.upper = n, p, method, upper
+        # The exact side's results that do not depend on the method (:func:`share`), kept for
+        # the other methods of the same (n, p); None keeps nothing.
+        self._known = None
+        if shared is not None:
+            if shared["cell"] != (n, p):
+                raise ValueError(f"`shared` is for (n, p) = {shared['cell']}; got {(n, p)}.")
+            self._known = shared[bool(upper)]
+
+    def exact_at(self, j):
+        """T(j) at one index j, as a float (kept for the other methods when shared)."""
+        if self._known is None:
+            return float(self.exact(j))
+        known = self._known.setdefault("exact", {})
+        if j not in known:
+            known[j] = float(self.exact(j))
+        return known[j]
+
+    def block(self, j0, j1):
+        """T on j0 <= j < j1: T(j0) and the masses summed from it (kept when shared).
+
+        Positive terms: a relative error below (j1 - j0) ulps.
+        """
+        known = None if self._known is None else self._known.setdefault("block", {})
+        if known is not None and (j0, j1) in known:
+            return known[j0, j1]
+        j = np.arange(j0 + 1, j1, dtype=np.int64)
+        t = float(self.exact(j0)) + np.concatenate([[0.0], np.cumsum(self.mass(j))])
+        if known is not None:
+            known[j0, j1] = t
+        return t
 
     def k(self, j):
         """The count k of index j."""
@@ -176,20 +216,70 @@ class Side:
     def last_at_most(self, x, *, strict=False):
         """For each x, the largest j in -1..n with T(j) <= x (T(j) < x if ``strict``).
 
-        Boost's quantile gives a first guess; a bracket [lo, hi] with T(lo) <= x < T(hi) is
-        then grown from it by doubling steps and halved to width one, every comparison made on
-        the exact tail itself (T(-1) counts as 0 and T(n + 1) as above any x < 1), so the
-        answer does not depend on the guess.
+        Boost's quantile gives a first guess (a cheaper normal one when the side is shared,
+        :func:`share`); a bracket [lo, hi] with T(lo) <= x < T(hi) is then grown from it by
+        doubling steps and halved to width one, every comparison made on the exact tail itself
+        (T(-1) counts as 0 and T(n + 1) as above any x < 1), so the answer does not depend on
+        the guess. A shared side also keeps each answer with its bracket for the other methods.
         """
         x = np.atleast_1d(np.asarray(x, dtype=np.float64))
-        n = self.n
+        if self._known is None:
+            return self._last_at_most(x, strict)
+        # Answers found for another method of the cell are kept with the bracket that proves
+        # them, T(j) <= x < T(j + 1) (T(j) < x <= T(j + 1) if strict, T(-1) = -inf and
+        # T(n + 1) = inf): T increases, so any x in a kept bracket has that answer, the one the
+        # search below finds from any guess. The others are searched for, and their brackets kept.
+        lows, highs, answers = self._known.setdefault(("last", strict), ([], [], []))
+        out = np.empty(x.size, dtype=np.int64)
+        todo = np.ones(x.size, dtype=bool)
+        if answers:
+            low, high = np.array(lows), np.array(highs)
+            col = x[:, None]
+            inside = ((low < col) & (col <= high)) if strict else ((low <= col) & (col < high))
+            kept = inside.any(axis=1)
+            out[kept] = np.array(answers)[inside[kept].argmax(axis=1)]
+            todo = ~kept
+        if todo.any():
+            found = self._last_at_most(x[todo], strict, quick=True)
+            out[todo] = found
+            n = self.n
+            t = self.exact(np.clip(np.concatenate([found, found + 1]), 0, n))
+            lows += np.where(found >= 0, t[: found.size], -np.inf).tolist()
+            highs += np.where(found < n, t[found.size :], np.inf).tolist()
+            answers += found.tolist()
+        return out
+
+    def _guess(self, x):
+        """Boost's quantile at each x, clipped to -1..n: the first guess of :meth:`last_at_most`."""
         q = 1.0 - self.p if self.upper else self.p  # a guess only: rounding does not matter
         with np.errstate(all="ignore"), warnings.catch_warnings():
             # Boost warns where it gives up on a quantile: the guess is checked anyway.
             warnings.simplefilter("ignore", RuntimeWarning)
-            guess = _binom_ppf(np.clip(x, 1e-300, 1.0), n, q)
-        guess = np.where(np.isfinite(guess), guess, n / 2.0)
-        guess = np.clip(guess, -1, n).astype(np.int64)
+            guess = _binom_ppf(np.clip(x, 1e-300, 1.0), self.n, q)
+        guess = np.where(np.isfinite(guess), guess, self.n / 2.0)
+        return np.clip(guess, -1, self.n).astype(np.int64)
+
+    def _quick_guess(self, x):
+        """A first guess of :meth:`last_at_most` from the normal quantile, skew corrected.
+
+        Cornish-Fisher's first term: the quantile of Bin(n, q) (q = p below, 1 - p above) at x
+        is about mu + sigma (z + (z^2 - 1) (1 - 2 q) / (6 sigma)), z = Phi^-1(x); fifty to a
+        hundred times cheaper than Boost's quantile and within a few counts of it mostly (the
+        search then takes a few more halvings).
+        """
+        q = 1.0 - self.p if self.upper else self.p
+        mu = self.n * q
+        sigma = np.sqrt(mu * (1.0 - q))
+        with np.errstate(all="ignore"):
+            z = ndtri(np.clip(x, 1e-300, 1.0))
+            guess = np.ceil(mu + sigma * z + (z * z - 1.0) * (1.0 - 2.0 * q) / 6.0 - 0.5)
+        guess = np.where(np.isnan(guess), self.n / 2.0, guess)  # clipped below, as infinities
+        return np.clip(guess, -1, self.n).astype(np.int64)
+
+    def _last_at_most(self, x, strict, *, quick=False):
+        """:meth:`last_at_most` on a 1-D float64 array, from Boost's guess or the quick one."""
+        n = self.n
+        guess = self._quick_guess(x) if quick else self._guess(x)
 
         def below(j, xs):
             inside = (j >= 0) & (j <= n)
@@ -234,6 +324,26 @@ class Side:
         return np.minimum(lo, n)
 
 
+def share(n, p):
+    """A store for the work at one (n, p) that every method repeats, for :class:`Side`.
+
+    The exact tails T(j), the blocks of T that :func:`side_errors` sums and the answers of
+    :meth:`Side.last_at_most` do not depend on the method: passed as ``shared`` to
+    :func:`cell_tail_errors` and :func:`atlas.sizes.cell_all_sizes` for each method of one
+    (n, p), they are computed once and reused as they are, so every result is the one computed
+    without it, bit for bit.
+
+    Examples
+    --------
+    >>> shared = share(5000, 0.1)
+    >>> both = [cell_tail_errors(5000, 0.1, m, [0.01], shared=shared)
+    ...         for m in ("normal", "poisson")]
+    >>> bool(np.array_equal(both[1], cell_tail_errors(5000, 0.1, "poisson", [0.01])))
+    True
+    """
+    return {"cell": (n, p), False: {}, True: {}}
+
+
 def error_bound(n, p, method):
     """c: a bound on |T(j) - A(j)| over every j of both sides, from the engine.
 
@@ -241,8 +351,25 @@ def error_bound(n, p, method):
     D(-1) = -G(-1). The margin covers the engine's own rounding (1e-12 absolute at large n).
     """
     ev = _evaluate(n, np.array([p], dtype=np.float64), (method,))
-    g_first = abs(float(approximate_cdf(-1, n, p, method)))
-    c = max(float(ev.cdf[0, 0]), g_first)
+    return _bound(ev.cdf[0, 0], approximate_cdf(-1, n, p, method))
+
+
+def error_bounds(n, p, method):
+    """:func:`error_bound` at one n and each p of a 1-D array, in one call of the engine.
+
+    The engine's result at a p does not depend on the other p computed with it (its module
+    notes: builds are identical however they are split), and G(-1) is elementwise, so each
+    bound is the one :func:`error_bound` gives, bit for bit.
+    """
+    p = np.asarray(p, dtype=np.float64)
+    ev = _evaluate(n, p, (method,))
+    g_first = approximate_cdf(-1, n, p, method)
+    return [_bound(c, g) for c, g in zip(ev.cdf[0], g_first, strict=True)]
+
+
+def _bound(cdf_error, g_first):
+    """c from the engine's CDF error and G(-1), with the margin for their rounding."""
+    c = max(float(cdf_error), abs(float(g_first)))
     return c * (1.0 + _MARGIN_REL) + _MARGIN_ABS
 
 
@@ -271,14 +398,21 @@ def side_errors(side, alphas, bound, *, full=False):
     far = side.far()
     j0 = int(starts.min())
     block = _FIRST_BLOCK
+    ahead = (j0, j0, None, None)  # A on [start, end) and at j = n, evaluated ahead
     # The running maximum of r over [start_a, j) for each level a with start_a < j.
     while j0 <= n:
         j1 = min(n + 1, j0 + block)
-        j = np.arange(j0, j1, dtype=np.int64)
-        # T on the block: one exact value at its start and the masses summed from it (positive
-        # terms: a relative error below (j1 - j0) ulps), re-anchored at every block.
-        t = float(side.exact(j0)) + np.concatenate([[0.0], np.cumsum(side.mass(j[1:]))])
-        a = side.approx(j)
+        # T on the block: one exact value at its start and the masses summed from it,
+        # re-anchored at every block.
+        t = side.block(j0, j1)
+        if j1 > ahead[1]:
+            # A on this block, the next two while they are small (the scan mostly ends within
+            # them) and at j = n, in one call: G costs nearly as much for one count as for a
+            # thousand. Each value is the one a call for its block alone gives (elementwise).
+            end = min(n + 1, j0 + (7 * block if block <= _AHEAD_MAX else block))
+            got = side.approx(np.append(np.arange(j0, end, dtype=np.int64), n))
+            ahead = (j0, end, got[:-1], got[-1])
+        a = ahead[2][j0 - ahead[0] : j1 - ahead[0]]
         r = np.abs(a / t - 1.0)
         # Suffix maxima within the block give each level's maximum over its part of the block.
         suffix = np.maximum.accumulate(r[::-1])[::-1]
@@ -294,7 +428,7 @@ def side_errors(side, alphas, bound, *, full=False):
         started = starts < j0
         if not started.all():
             continue
-        t_next = float(side.exact(j0))
+        t_next = side.exact_at(j0)
         limit = bound / t_next
         if j0 - 1 >= far:
             tail = (1.0 - float(t[-1])) + abs(1.0 - float(a[-1]))
@@ -302,7 +436,7 @@ def side_errors(side, alphas, bound, *, full=False):
         if (limit <= np.maximum(best, FLOOR)).all():
             # The last point j = n is evaluated in every case (its G is set apart by some
             # methods); the rest cannot raise any level's maximum.
-            r_last = abs(float(side.approx(n)) / float(side.exact(n)) - 1.0)
+            r_last = abs(float(ahead[3]) / side.exact_at(n) - 1.0)
             return np.maximum(best, r_last)
     return best
 
@@ -327,21 +461,63 @@ class Profile:
 
     def tail_errors(self, alphas):
         """lower(alpha), upper(alpha) for each level."""
-        with np.errstate(divide="ignore", invalid="ignore"):  # underflowed tails: not admitted
-            r_low = np.abs(self.g / self.lower - 1.0)
-            r_up = np.abs(self.gu / self.upper - 1.0)
-        r_low = np.where(self.lower > 0, r_low, 0.0)
-        r_up = np.where(self.upper > 0, r_up, 0.0)
-        # Lower: admitted k >= the first with L >= alpha; upper: k <= the last with U >= alpha.
-        suffix = np.maximum.accumulate(r_low[::-1])[::-1]
-        prefix = np.maximum.accumulate(r_up)
-        first = np.searchsorted(self.lower, alphas, side="left")
-        last = self.n - np.searchsorted(self.upper[::-1], alphas, side="left")
-        return suffix[np.minimum(first, self.n)], prefix[np.maximum(last, 0)]
+        return profile_tail_errors(self.lower, self.upper, self.g, self.gu, alphas)
 
 
-def cell_tail_errors(n, p, method, alphas, *, bound=None, full=False):
+class Counts:
+    """The exact part of :class:`Profile` at one n and several p, shared by every method.
+
+    ``k``, and ``mass``, ``lower`` and ``upper`` of shape (p, n + 1): each row is the
+    :class:`Profile` of that p, computed by the same operations row by row, so the same values.
+    """
+
+    def __init__(self, n, p):
+        self.n = n
+        self.p = np.atleast_1d(np.asarray(p, dtype=np.float64))
+        self.k = np.arange(n + 1, dtype=np.int64)
+        self.mass = _binom_pmf(self.k, n, self.p[:, None])
+        self.lower = np.cumsum(self.mass, axis=1)
+        self.upper = np.cumsum(self.mass[:, ::-1], axis=1)[:, ::-1]
+        self.lower[:, -1] = self.upper[:, 0] = 1.0  # the whole mass, exactly
+
+    def approx(self, method):
+        """G(k) and 1 - G(k - 1) of one method at every count and p, each of shape (p, n + 1)."""
+        k, p = self.k[None, :], self.p[:, None]
+        return approximate_cdf(k, self.n, p, method), approximate_upper(k, self.n, p, method)
+
+    def tail_errors(self, method, alphas):
+        """lower(alpha), upper(alpha) of one method, each of shape (p, levels)."""
+        return profile_tail_errors(self.lower, self.upper, *self.approx(method), alphas)
+
+
+def profile_tail_errors(lower, upper, g, gu, alphas):
+    """lower(alpha), upper(alpha) from every count: L, U, G and 1 - G(k - 1) of shape (..., n + 1).
+
+    Returns arrays of shape (..., levels), one row per row of the inputs.
+    """
+    with np.errstate(divide="ignore", invalid="ignore"):  # underflowed tails: not admitted
+        r_low = np.abs(g / lower - 1.0)
+        r_up = np.abs(gu / upper - 1.0)
+    r_low = np.where(lower > 0, r_low, 0.0)
+    r_up = np.where(upper > 0, r_up, 0.0)
+    # Lower: admitted k >= the first with L >= alpha; upper: k <= the last with U >= alpha.
+    suffix = np.maximum.accumulate(r_low[..., ::-1], axis=-1)[..., ::-1]
+    prefix = np.maximum.accumulate(r_up, axis=-1)
+    n = lower.shape[-1] - 1
+    first = np.empty(lower.shape[:-1] + alphas.shape, dtype=np.int64)
+    last = np.empty_like(first)
+    for row in np.ndindex(lower.shape[:-1]):
+        first[row] = np.searchsorted(lower[row], alphas, side="left")
+        last[row] = n - np.searchsorted(upper[row][::-1], alphas, side="left")
+    lower_error = np.take_along_axis(suffix, np.minimum(first, n), axis=-1)
+    upper_error = np.take_along_axis(prefix, np.maximum(last, 0), axis=-1)
+    return lower_error, upper_error
+
+
+def cell_tail_errors(n, p, method, alphas, *, bound=None, full=False, shared=None):
     """Lower and upper tail relative errors at one (n, p) for several levels.
+
+    ``shared`` (:func:`share`) keeps the method-free work for the other methods of the cell.
 
     Returns
     -------
@@ -353,8 +529,8 @@ def cell_tail_errors(n, p, method, alphas, *, bound=None, full=False):
         return Profile(n, p, method).tail_errors(alphas)
     if bound is None and not full:
         bound = error_bound(n, p, method)
-    lower = side_errors(Side(n, p, method, False), alphas, bound, full=full)
-    upper = side_errors(Side(n, p, method, True), alphas, bound, full=full)
+    lower = side_errors(Side(n, p, method, False, shared=shared), alphas, bound, full=full)
+    upper = side_errors(Side(n, p, method, True, shared=shared), alphas, bound, full=full)
     return lower, upper
 
 
