@@ -6,17 +6,32 @@ band and at ``INSIDE`` points equally spaced in log-odds inside it, the exact mi
 every integer is found (:func:`atlas.thresholds.minimum_n`: the smallest N such that the error
 is within tol at *every integer* n >= N up to the atlas's end, gaps between grid n certified by
 the one-step bound or evaluated by the engine, and beyond the end where the large-n bound takes
-over). A band's threshold is the largest N of its points. A point whose answer is not exact for
-every integer (:attr:`atlas.thresholds.Threshold.exact`: the search ran out of engine
-evaluations) takes the exact answer at tol/2, tol/4 or tol/8 instead, which is conservative
-(every n from it on is within the smaller tolerance); the band is "never" when a point has no
-answer, or none of these is exact.
+over). A point whose answer is not exact for every integer (:attr:`atlas.thresholds.Threshold.
+exact`: the search ran out of engine evaluations) takes the exact answer at tol/2, tol/4 or
+tol/8 instead, which is conservative (every n from it on is within the smaller tolerance); the
+band is "never" when a point has no answer, or none of these is exact.
+
+**Between the points checked.** The band is then refined by bisection in log-odds
+(:func:`atlas.refinement.refine`): a pair of neighbouring checked p is bisected where their
+minimum n differ by more than ``REFINE_SPREAD`` (2%) of the larger, or the larger comes within
+2% of the band's largest (an interior bump there would decide the band), largest N first, at
+most ``REFINE_BUDGET`` (4) new p per band and ``REFINE_DEPTH`` (3) bisections deep (neighbours
+1/8 of the band's log-odds width apart). A band's threshold is the largest N of all its points
+times ``1 + margin``, rounded up. The margin is, by default, the largest *rise* seen at the
+deepest level of this very refinement (N at a new p over the larger N of its two neighbours,
+minus 1; 0 when no new p exceeds its neighbours there). Over the default atlas, normal_cc and
+edgeworth_cc at tol 0.01, 0.005 and 0.001, no new p exceeded both its neighbours at any depth
+(``build_scripts/rule_constants_table.py`` prints these figures), so the margin there is 0.
+No rigorous bound in p is used: the derivative of F in p, -n b(k; n - 1, p), makes the
+Lipschitz bound of the error over one band about sqrt(n p q / 2 pi) times the band's log-odds
+width, far above any tolerance at the n that matter. So the p between the points checked are
+not computed: the claim there rests on this refinement (which found no bump to cover) and on
+the random off-grid tests of ``tests/test_exports.py`` (100,000 (n, p) against the engine, none
+called safe wrongly). ``budget=0`` gives the bands without refinement.
+
 The guarantee reaches every n from the threshold to the atlas's end, and beyond it when every
 point of the band is covered for all n (the Berry-Esseen bound of :mod:`atlas.bounds`, largest
-at one of the band's ends). The p between the points checked are not computed: the claim
-there rests on the bands being narrow (the grid's log-odds step divided by ``INSIDE + 1``) and
-on the largest N of their points; ``tests/test_exports.py`` draws random off-grid (n, p)
-against it.
+at one of the band's ends).
 
 **Rule constants.** A family is a rule with one free constant ``c``, e.g. ``"n*p*q >= c"``. It
 guarantees the tolerance when, at every point checked of every band, it admits no integer n
@@ -170,7 +185,8 @@ class ThresholdBands:
             text += (
                 f"; at {self.stricter} points the search for tol ran out of engine evaluations "
                 "and the exact answer at tol/2, tol/4 or tol/8 (every n from it on is within "
-                "the smaller tolerance, so within tol) is used instead"
+                "the smaller tolerance, so within tol) is used instead; the pairs next to these "
+                "points are not bisected (each search costs thousands of engine evaluations)"
             )
         if self.inexact:
             text += f"; {self.inexact} points not exact for every integer: their bands are never"
@@ -226,6 +242,7 @@ def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval", depth=
     logit = _logit(grid_p)
     answers = {}  # log-odds -> Threshold
     counts = {"stricter": 0}
+    fixed = set()  # log-odds answered at a smaller tolerance: their pairs are not bisected
 
     def solve(xs, ps=None):
         """The exact minimum n at each log-odds (p given for grid p: their stored values)."""
@@ -243,6 +260,7 @@ def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval", depth=
                     if other.exact and other.n is not None:
                         answer = other
                         counts["stricter"] += 1
+                        fixed.add(x)
                         break
             answers[x] = answer
             out.append(answer.n if answer.exact else None)
@@ -260,7 +278,7 @@ def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval", depth=
     for j in range(bands_count):
         xs = [float(lo[j]), *inside[j * INSIDE : (j + 1) * INSIDE].tolist(), float(hi[j])]
         start.append({x: (answers[x].n if answers[x].exact else None) for x in xs})
-    refined = refine(lo, hi, start, solve, depth=depth, budget=budget, spread=spread)
+    refined = refine(lo, hi, start, solve, depth=depth, budget=budget, spread=spread, fixed=fixed)
     if margin is None:
         margin = max(0.0, refined.largest_rise(refined.deepest()) or 0.0)
     n_min = np.zeros(bands_count, dtype=np.int64)

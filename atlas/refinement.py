@@ -15,7 +15,8 @@ Pairs are taken largest N first, at most ``per_round`` per band in a round, and 
 of a round are solved together (one call of ``solve``). A band stops when no pair qualifies,
 when its pairs are ``depth`` bisections deep (log-odds width 2^-depth of the band's), or when
 ``budget`` new p have been added to it (:attr:`Refinement.exhausted` counts the bands that
-stopped on the budget with a pair still qualifying).
+stopped on the budget with a pair still qualifying). A pair with an end in ``fixed`` is never
+bisected.
 
 Every bisection records its **rise**: N at the new p over the larger N of its two neighbours,
 minus 1; positive only where the minimum n between two checked p exceeds both. The largest rise
@@ -92,7 +93,7 @@ def _depth(width, gap):
 
 
 def refine(lo, hi, points, solve, *, depth=REFINE_DEPTH, budget=REFINE_BUDGET,
-           spread=REFINE_SPREAD, per_round=REFINE_PER_ROUND):  # fmt: skip
+           spread=REFINE_SPREAD, per_round=REFINE_PER_ROUND, fixed=()):  # fmt: skip
     """Bisect the bands [lo[j], hi[j]] (log-odds) where a p between checked ones could decide.
 
     Parameters
@@ -114,6 +115,9 @@ def refine(lo, hi, points, solve, *, depth=REFINE_DEPTH, budget=REFINE_BUDGET,
         The share of N that makes a pair steep, or near the band's top (module notes).
     per_round : int, optional
         Pairs bisected per band in a round.
+    fixed : collection of float, optional
+        Log-odds whose pairs are not bisected (:func:`atlas.guarantees.threshold_bands`: points
+        answered at a smaller tolerance). Read at every round, so ``solve`` may add to a set.
 
     Returns
     -------
@@ -158,7 +162,7 @@ def refine(lo, hi, points, solve, *, depth=REFINE_DEPTH, budget=REFINE_BUDGET,
             pairs = []
             for xa, xb in zip(xs[:-1], xs[1:], strict=True):
                 level = _depth(widths[j], xb - xa) + 1
-                if level > depth:
+                if level > depth or xa in fixed or xb in fixed:
                     continue
                 na, nb = values[xa], values[xb]
                 larger = max(na, nb)

@@ -86,6 +86,21 @@ def test_a_band_with_no_answer_is_not_refined():
     assert r.added.tolist() == [0] and calls == [] and r.largest_rise() is None
 
 
+def test_pairs_next_to_fixed_points_are_not_bisected():
+    # A steep pair whose end is fixed is left alone; a point solve() fixes stops its pairs.
+    solve, _ = _solver(lambda x: 100 if x < 0.4 else 300)
+    r = refine([0.0], [1.0], [{0.0: 100, 0.5: 300, 1.0: 300}], solve, fixed={0.5}, budget=10)
+    assert r.added.tolist() == [0]
+    fixed = set()
+
+    def fixing(x):
+        fixed.update(x.tolist())  # every new p is answered "at a smaller tolerance"
+        return [300] * len(x)
+
+    r = refine([0.0], [1.0], [{0.0: 100, 0.5: 300, 1.0: 300}], fixing, fixed=fixed, budget=10)
+    assert r.added.tolist() == [2] and r.rounds == 1
+
+
 def test_bad_arguments():
     with pytest.raises(ValueError, match="`depth`, `budget`, `per_round` and `spread` must be"):
         refine([0.0], [1.0], [{0.0: 1, 1.0: 1}], lambda x: [], budget=-1)
