@@ -79,7 +79,7 @@ def add_commands(commands):
 
     rules = commands.add_parser(
         "rule-constants",
-        help="the constant each family of rules needs to guarantee a tolerance (a minute or two)",
+        help="the constant each family of rules needs to guarantee a tolerance (minutes)",
     )
     question(rules)
     rules.add_argument("--family", action="append", metavar="EXPR",

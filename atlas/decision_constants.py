@@ -1,13 +1,16 @@
 """The constant each family of rules needs for the metrics of tail p-values and tests.
 
 The question of :func:`atlas.guarantees.rule_constants`, asked of the tail relative error
-(:func:`atlas.tails.tail_error`) and the size of a test (:func:`atlas.sizes.test_size`). These
-metrics have no bound on their growth from one n to the next (the size of a test is a sawtooth
-in n), so there is no answer for every integer: at each p of an audit grid, the minimum n of
-:mod:`atlas.decisions` (every integer n up to ``dense_to``, then n on a ladder about 5 % apart
-up to ``n_max``) is the threshold, and the constant is the smallest c (the largest for a family
-that admits more as c grows) whose rule admits no n checked below it, at every p of the grid.
-The answer says so; nothing between the grid's p is claimed.
+(:func:`atlas.tails.tail_error`) and the size of a test (:func:`atlas.sizes.test_size`). At each
+p of an audit grid the threshold is the minimum n of :mod:`atlas.decision_search` (through
+:func:`atlas.decisions.tail_min_n` and :func:`atlas.decisions.size_min_n`): the smallest N such
+that *every integer* n from N to ``n_max`` is within the limit, each integer evaluated or
+covered by a proven bound (a ladder of n about 5% apart only says where to look). The constant
+is the smallest c (the largest for a family that admits more as c grows) whose rule admits no
+integer n below the threshold, every integer from 1 to N - 1 checked (to ``n_max`` where no N
+exists), at every p of the grid: nothing here rests on a ladder. Not claimed: the p between
+the grid's p (these metrics have no bound on their change in p), and n beyond ``n_max``.
+The share a rule gives away is counted on the audit grid's cells.
 """
 
 from dataclasses import dataclass
@@ -16,7 +19,8 @@ import numpy as np
 
 from atlas.approximations import check_method
 from atlas.decision_rules import AUDIT_N, AUDIT_P
-from atlas.decisions import DENSE_TO, N_MAX, size_min_n, tail_min_n
+from atlas.decision_search import DENSE_TO, N_MAX
+from atlas.decisions import size_min_n, tail_min_n
 from atlas.grid import describe_grid, parse_n, parse_p
 from atlas.guarantees import constant_direction, parse_families, solve_constant
 from atlas.sizes import check_alternative, test_size
@@ -38,7 +42,8 @@ class DecisionConstant:
         Rounded outward to :data:`atlas.guarantees.DIGITS` digits; None when no c works.
     stricter : {"larger", "smaller"}
     worst : float or None
-        The largest value of the metric at the first admitted n checked at each p.
+        The largest value of the metric at the first three integers n the rule admits at each
+        p of the grid (at most the limit: no n below the exact threshold is admitted).
     refused : float or None
         The share of the audit grid's cells within the limit that the rule refuses.
     checked : str
@@ -74,7 +79,8 @@ def decision_rule_constants(metric, alpha, limit=None, *, method="normal_cc", ta
         The audit grid (as :mod:`atlas.decision_rules`): the shares are counted on it, and
         the thresholds found at its p.
     n_max, dense_to : int, optional
-        As for :func:`atlas.decisions.tail_min_n`.
+        As for :func:`atlas.decisions.tail_min_n`: the thresholds hold to ``n_max``, and every
+        integer to ``dense_to`` is evaluated (above it, evaluated or covered by a bound).
 
     Returns
     -------
@@ -122,20 +128,23 @@ def decision_rule_constants(metric, alpha, limit=None, *, method="normal_cc", ta
     parsed = parse_families(families)
     n_axis, p_axis = parse_n(n), parse_p(p)
     answers = [min_n(float(x)) for x in p_axis]
-    ladder = _ladder_points(dense_to, n_max)
     n_check, p_check = [], []
     for x, answer in zip(p_axis.tolist(), answers, strict=True):
-        below = ladder[ladder < (n_max + 1 if answer.n is None else answer.n)]
+        # Every integer below the exact threshold (every integer to n_max where there is none).
+        below = np.arange(1, n_max + 1 if answer.n is None else answer.n, dtype=np.int64)
         n_check.append(below)
         p_check.append(np.full(below.size, x))
     n_check, p_check = np.concatenate(n_check), np.concatenate(p_check)
     values = np.array([[value(int(a), float(b)) for b in p_axis] for a in n_axis])
     within = values <= limit
+    never = sum(answer.n is None for answer in answers)
     checked = (
-        f"thresholds at the {p_axis.size} p of the audit grid ({describe_grid(n_axis, p_axis)}): "
-        f"each threshold exact for every integer n (atlas.decision_search); the rule checked at "
-        f"every integer n to {dense_to:,}, then n about 5% apart to {n_max:,}; the p between "
-        "them and the integers between ladder n are not checked"
+        f"thresholds at the {p_axis.size} p of the audit grid ({describe_grid(n_axis, p_axis)}), "
+        f"each exact for every integer n to {n_max:,} (atlas.decision_search: every integer to "
+        f"{dense_to:,} evaluated, above it each evaluated or covered by a proven bound"
+        + (f"; at {never} p no n up to {n_max:,} passes" if never else "")
+        + "); the rule checked at every integer n below each threshold; the p between the "
+        f"grid's p and n beyond {n_max:,} are not checked; the shares are counted on the grid"
     )
     rows = []
     for family in parsed:
@@ -150,19 +159,13 @@ def decision_rule_constants(metric, alpha, limit=None, *, method="normal_cc", ta
             else:
                 share = float((within & ~admitted).sum() / max(int(within.sum()), 1))
                 firsts = []
+                every = np.arange(1, n_max + 1, dtype=np.int64)
                 for x in p_axis.tolist():
-                    hit = ladder[rule(ladder, x)][:3]
+                    hit = every[rule(every, x)][:3]
                     firsts += [value(int(a), x) for a in hit.tolist()]
                 worst = max(firsts) if firsts else None
         rows.append(DecisionConstant(family, c, stricter, worst, share, checked))
     return rows
-
-
-def _ladder_points(dense_to, n_max):
-    """The n checked by :func:`atlas.decisions.min_ns`: every integer to dense_to, a ladder."""
-    from atlas.decision_search import ladder
-
-    return np.array(ladder(int(dense_to), int(n_max)), dtype=np.int64)
 
 
 def render_decision_constants(rows, fmt, *, metric, alpha, limit, method):
@@ -201,7 +204,7 @@ def render_decision_constants(rows, fmt, *, metric, alpha, limit, method):
         share = "—" if r.refused is None else f"{r.refused:.1%}"
         lines.append(f"| {r.family.name} | {const} | {worst} | {share} |")
     lines += ["", f"- Checked: {checked}.",
-              "- worst at the boundary: the largest value at the first three admitted n checked "
-              "at each p; gives away: the share of the audit grid's cells within the limit "
+              "- worst at the boundary: the largest value at the first three integers n the rule "
+              "admits at each p; gives away: the share of the audit grid's cells within the limit "
               "that the rule refuses.", f"- Caution: {CAUTION}"]  # fmt: skip
     return "\n".join(lines) + "\n"

@@ -6,17 +6,34 @@ band and at ``INSIDE`` points equally spaced in log-odds inside it, the exact mi
 every integer is found (:func:`atlas.thresholds.minimum_n`: the smallest N such that the error
 is within tol at *every integer* n >= N up to the atlas's end, gaps between grid n certified by
 the one-step bound or evaluated by the engine, and beyond the end where the large-n bound takes
-over). A band's threshold is the largest N of its points. A point whose answer is not exact for
-every integer (:attr:`atlas.thresholds.Threshold.exact`: the search ran out of engine
-evaluations) takes the exact answer at tol/2, tol/4 or tol/8 instead, which is conservative
-(every n from it on is within the smaller tolerance); the band is "never" when a point has no
-answer, or none of these is exact.
+over). A point whose answer is not exact for every integer (:attr:`atlas.thresholds.Threshold.
+exact`: the search ran out of engine evaluations) takes the exact answer at tol/2, tol/4 or
+tol/8 instead, which is conservative (every n from it on is within the smaller tolerance); the
+band is "never" when a point has no answer, or none of these is exact.
+
+**Between the points checked.** The band is then refined by bisection in log-odds
+(:func:`atlas.refinement.refine`): a pair of neighbouring checked p is bisected where their
+minimum n differ by more than ``REFINE_SPREAD`` (2%) of the larger, or the larger comes within
+2% of the band's largest (an interior bump there would decide the band), largest N first, at
+most ``REFINE_BUDGET`` (4) new p per band and ``REFINE_DEPTH`` (3) bisections deep (neighbours
+1/8 of the band's log-odds width apart). A band's threshold is the largest N of all its points
+times ``1 + margin``, rounded up. The margin is, by default, the largest *rise* seen at the
+deepest level of this very refinement (N at a new p over the larger N of its two neighbours,
+minus 1; 0 when no new p exceeds its neighbours there). On the default atlas (normal_cc at
+tol 0.01: 766 p added, none above both its neighbours at any depth; the figures of the other
+questions are printed by ``build_scripts/rule_constants_table.py``) the margin is 0.
+Pairs next to a point answered at a smaller tolerance are not bisected (each such search costs
+thousands of engine evaluations).
+No rigorous bound in p is used: the derivative of F in p, -n b(k; n - 1, p), makes the
+Lipschitz bound of the error over one band about sqrt(n p q / 2 pi) times the band's log-odds
+width, far above any tolerance at the n that matter. So the p between the points checked are
+not computed: the claim there rests on this refinement (which found no bump to cover) and on
+the random off-grid tests of ``tests/test_exports.py`` (100,000 (n, p) against the engine, none
+called safe wrongly). ``budget=0`` gives the bands without refinement.
+
 The guarantee reaches every n from the threshold to the atlas's end, and beyond it when every
 point of the band is covered for all n (the Berry-Esseen bound of :mod:`atlas.bounds`, largest
-at one of the band's ends). The p between the points checked are not computed: the claim
-there rests on the bands being narrow (the grid's log-odds step divided by ``INSIDE + 1``) and
-on the largest N of their points; ``tests/test_exports.py`` draws random off-grid (n, p)
-against it.
+at one of the band's ends).
 
 **Rule constants.** A family is a rule with one free constant ``c``, e.g. ``"n*p*q >= c"``. It
 guarantees the tolerance when, at every point checked of every band, it admits no integer n
@@ -41,6 +58,7 @@ import numpy as np
 from atlas.approximations import check_method
 from atlas.engine import check_metric
 from atlas.notation import bound_up, format_p
+from atlas.refinement import REFINE_BUDGET, REFINE_DEPTH, REFINE_SPREAD, refine
 from atlas.rules import parse_rule
 from atlas.thresholds import minimum_n
 
@@ -48,7 +66,7 @@ __all__ = ["DIGITS", "FAMILIES", "INSIDE", "Family", "RuleConstant", "RuleConsta
            "ThresholdBands", "constant_direction", "parse_families", "parse_family",
            "rule_constants", "solve_constant", "threshold_bands"]  # fmt: skip
 
-INSIDE = 1  # points checked inside each band, equally spaced in log-odds
+INSIDE = 1  # points checked inside each band before refinement, equally spaced in log-odds
 DIGITS = 3  # significant digits of a constant, rounded outward (towards the stricter rule)
 _BISECTIONS = 60
 
@@ -117,6 +135,8 @@ class ThresholdBands:
     atlas_path: str = ""
     inexact: int = 0
     stricter: int = 0
+    refinement: object = None
+    margin: float = 0.0
 
     def within(self, n, p):
         """Whether the bands guarantee the tolerance at broadcast integer n and float p.
@@ -134,26 +154,49 @@ class ThresholdBands:
     def checked(self):
         """What the bands rest on, in words."""
         grid = self.edges.size
+        r = self.refinement
+        added = 0 if r is None else int(r.added.sum())
         text = (
-            f"{len(self.points)} p checked ({grid} grid p and {INSIDE} between each pair, equally "
-            "spaced in log-odds), each with the exact minimum n for every integer up to the "
-            f"atlas's end n = {self.grid_end:,} (grid values, the one-step bound between grid n, "
-            "the engine where it does not certify; beyond the end the large-n bound where it "
-            "holds); a band's threshold is the largest of its points; the p between the points "
-            "checked are not computed"
+            f"{len(self.points)} p checked ({grid} grid p, {INSIDE} between each pair equally "
+            f"spaced in log-odds, and {added} added by bisection in log-odds"
+        )
+        if r is not None:
+            deepest = r.deepest()
+            rise = r.largest_rise(deepest) if deepest else None
+            text += (
+                f" where neighbours' minimum n differ by more than {r.spread:.0%} or come within "
+                f"{r.spread:.0%} of the band's largest, at most {r.budget} per band and "
+                f"{r.depth} bisections deep ({r.exhausted} bands stopped on the budget); new p "
+                f"exceeding both neighbours: {sum(x > 0 for _, x in r.rises)} of {len(r.rises)}"
+            )
+            if rise is not None:
+                text += f", largest rise at the deepest level ({deepest}) {max(rise, 0.0):.2%}"
+        text += (
+            "), each with the exact minimum n for every integer up to the atlas's end "
+            f"n = {self.grid_end:,} (grid values, the one-step bound between grid n, the engine "
+            "where it does not certify; beyond the end the large-n bound where it holds); a "
+            "band's threshold is the largest of its points"
+        )
+        if self.margin:
+            text += f" times {1 + self.margin:.4g} (the safety margin), rounded up"
+        text += (
+            "; the p between the points checked are not computed: there the claim rests on "
+            "this refinement and on random off-grid tests (tests/test_exports.py)"
         )
         if self.stricter:
             text += (
                 f"; at {self.stricter} points the search for tol ran out of engine evaluations "
                 "and the exact answer at tol/2, tol/4 or tol/8 (every n from it on is within "
-                "the smaller tolerance, so within tol) is used instead"
+                "the smaller tolerance, so within tol) is used instead; the pairs next to these "
+                "points are not bisected (each search costs thousands of engine evaluations)"
             )
         if self.inexact:
             text += f"; {self.inexact} points not exact for every integer: their bands are never"
         return text
 
 
-def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval"):
+def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval", depth=REFINE_DEPTH,
+                    budget=REFINE_BUDGET, spread=REFINE_SPREAD, margin=None):  # fmt: skip
     """The conservative threshold n*(p) in bands of p: see the module notes.
 
     Parameters
@@ -162,6 +205,15 @@ def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval"):
     tol : float
         0 < tol < inf.
     method, metric : str, optional
+    depth, budget, spread : optional
+        The bisection in log-odds between the points checked (:func:`atlas.refinement.refine`):
+        at most ``depth`` bisections deep and ``budget`` new p per band, where neighbours
+        differ by more than ``spread`` of their minimum n or come within it of the band's
+        largest. ``budget=0`` checks only the grid p and ``INSIDE`` points per band.
+    margin : float, optional
+        Each band's threshold is the largest minimum n of its points times ``1 + margin``,
+        rounded up; by default the largest rise seen at the deepest level of the refinement
+        (0 when no new p exceeds its neighbours there: module notes).
 
     Returns
     -------
@@ -170,7 +222,7 @@ def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval"):
     Raises
     ------
     ValueError
-        For a bad tol, method or metric.
+        For a bad tol, method, metric, depth, budget, spread or margin.
 
     Examples
     --------
@@ -179,67 +231,81 @@ def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval"):
     >>> bands = threshold_bands(at, 0.01)
     >>> bands.n_min.tolist(), bands.within([5, 40], [0.5, 0.5]).tolist()
     ([23, 23], [False, True])
+    >>> threshold_bands(at, 0.01, margin=0.05).n_min.tolist()  # 23 * 1.05, rounded up
+    [25, 25]
     """
     from atlas.query import check_tol
 
     tol = float(check_tol(tol))
     method, metric = check_method(method), check_metric(metric)
+    if margin is not None and not (isinstance(margin, (int, float)) and 0 <= margin < 1):
+        raise ValueError(f"`margin` must be None or a number in [0, 1); got {margin!r}.")
     grid_n, grid_p = atlas.n, atlas.p
     logit = _logit(grid_p)
+    answers = {}  # log-odds -> Threshold
+    counts = {"stricter": 0}
+    fixed = set()  # log-odds answered at a smaller tolerance: their pairs are not bisected
+
+    def solve(xs, ps=None):
+        """The exact minimum n at each log-odds (p given for grid p: their stored values)."""
+        ps = _expit(np.asarray(xs)) if ps is None else ps
+        columns = np.asarray(atlas.error(grid_n[:, None], np.asarray(ps)[None, :],
+                                         method=method, metric=metric))  # fmt: skip
+        out = []
+        for i, (x, p) in enumerate(zip(np.asarray(xs).tolist(), np.asarray(ps).tolist(),
+                                       strict=True)):  # fmt: skip
+            answer = minimum_n(grid_n, columns[:, i], p, tol, method=method, metric=metric)
+            if not answer.exact:  # the exact answer at a smaller tolerance serves (module notes)
+                for smaller in (tol / 2, tol / 4, tol / 8):
+                    other = minimum_n(grid_n, columns[:, i], p, smaller, method=method,
+                                      metric=metric)  # fmt: skip
+                    if other.exact and other.n is not None:
+                        answer = other
+                        counts["stricter"] += 1
+                        fixed.add(x)
+                        break
+            answers[x] = answer
+            out.append(answer.n if answer.exact else None)
+        return out
+
     steps = np.arange(1, INSIDE + 1) / (INSIDE + 1)
-    inside = _expit(logit[:-1, None] + np.diff(logit)[:, None] * steps[None, :]).ravel()
-    columns = np.empty((grid_n.size, grid_p.size + inside.size))
-    columns[:, : grid_p.size] = atlas.error(grid_n[:, None], grid_p[None, :], method=method,
-                                            metric=metric)  # fmt: skip
+    inside = (logit[:-1, None] + np.diff(logit)[:, None] * steps[None, :]).ravel()
+    solve(logit, grid_p)
     if inside.size:
-        columns[:, grid_p.size :] = atlas.error(grid_n[:, None], inside[None, :], method=method,
-                                                metric=metric)  # fmt: skip
-    ps = np.concatenate([grid_p, inside])
-    band_of = np.concatenate(
-        [np.arange(grid_p.size), np.repeat(np.arange(grid_p.size - 1), INSIDE)]
-    )
-    order = np.argsort(ps, kind="stable")
-    points = []
-    n_min = np.full(max(grid_p.size - 1, 1), -1, dtype=np.int64)
+        solve(inside)
+    bands_count = max(grid_p.size - 1, 1)
+    lo = logit[:-1] if grid_p.size > 1 else logit[:1]
+    hi = logit[1:] if grid_p.size > 1 else logit[:1]
+    start = []
+    for j in range(bands_count):
+        xs = [float(lo[j]), *inside[j * INSIDE : (j + 1) * INSIDE].tolist(), float(hi[j])]
+        start.append({x: (answers[x].n if answers[x].exact else None) for x in xs})
+    refined = refine(lo, hi, start, solve, depth=depth, budget=budget, spread=spread, fixed=fixed)
+    if margin is None:
+        margin = max(0.0, refined.largest_rise(refined.deepest()) or 0.0)
+    n_min = np.zeros(bands_count, dtype=np.int64)
     n_max = np.zeros_like(n_min)
-    bad = np.zeros(n_min.size, dtype=bool)
-    no_end = np.ones(n_min.size, dtype=bool)
-    inexact = stricter = 0
-    for k in order.tolist():
-        answer = minimum_n(grid_n, columns[:, k], float(ps[k]), tol, method=method,
-                           metric=metric)  # fmt: skip
-        if not answer.exact:  # the exact answer at a smaller tolerance serves (module notes)
-            for smaller in (tol / 2, tol / 4, tol / 8):
-                other = minimum_n(grid_n, columns[:, k], float(ps[k]), smaller, method=method,
-                                  metric=metric)  # fmt: skip
-                if other.exact and other.n is not None:
-                    answer = other
-                    stricter += 1
-                    break
-        points.append(answer)
-        inexact += not answer.exact
-        j = int(band_of[k])
-        # A grid p is an end of the band before it and of the band after it.
-        for b in (j - 1, j) if k < grid_p.size else (j,):
-            if not 0 <= b < n_min.size:
-                continue
-            if answer.n is None or not answer.exact:
-                bad[b] = True
-                continue
-            n_min[b] = max(n_min[b], answer.n)
-            if answer.upto is not None:
-                no_end[b] = False
-                n_max[b] = answer.upto if n_max[b] == 0 else min(n_max[b], answer.upto)
-    n_min[bad] = 0
-    n_max[bad | no_end] = 0
+    for j, values in enumerate(refined.points):
+        ends = [answers[x].upto for x in values]
+        if any(v is None for v in values.values()):
+            continue  # "never": some point has no exact answer
+        n_min[j] = math.ceil(max(values.values()) * (1.0 + margin))
+        finite = [e for e in ends if e is not None]
+        if finite:  # some point is covered only to an end: the band reaches the smallest
+            n_max[j] = min(finite)
+            if n_min[j] > n_max[j]:
+                n_min[j] = n_max[j] = 0
+    points = tuple(answers[x] for x in sorted(answers))
     attrs = atlas.attrs
     edges = grid_p.copy() if grid_p.size > 1 else np.array([grid_p[0], grid_p[0]])
     return ThresholdBands(method=method, metric=metric, tol=tol, edges=edges, n_min=n_min,
-                          n_max=n_max, points=tuple(points), grid_end=int(grid_n[-1]),
+                          n_max=n_max, points=points, grid_end=int(grid_n[-1]),
                           atlas_source=str(attrs.get("source", "")),
                           atlas_checksum=str(attrs.get("checksum", "")),
                           atlas_path="" if atlas.path is None else str(atlas.path),
-                          inexact=inexact, stricter=stricter)  # fmt: skip
+                          inexact=sum(not t.exact for t in points),
+                          stricter=counts["stricter"], refinement=refined,
+                          margin=float(margin))  # fmt: skip
 
 
 # ---- rule families with one free constant ---------------------------------------------------
@@ -591,7 +657,7 @@ def rule_constants(atlas, tol, *, method="normal_cc", metric="interval", familie
     families : sequence of str or Family, optional
         Default :data:`FAMILIES`; a str is parsed by :func:`parse_family`.
     bands : ThresholdBands, optional
-        Computed by :func:`threshold_bands` when not given (the slow part: about a minute on
+        Computed by :func:`threshold_bands` when not given (the slow part: minutes on
         the default atlas); pass them to ask for several families at one tolerance.
 
     Returns

@@ -3,9 +3,10 @@
     python build_scripts/build_exports.py [--tol 0.01] [--method normal_cc] [--metric interval]
 
 Writes ``outputs/exports/within_tolerance_<method>_<metric>_<tol>.{py,c,json,csv}`` from the
-embedded atlas (about a minute: the bands' off-grid columns and exact minimum n), and prints the
-share of the grid's safe cells the bands refuse. ``tests/test_exports.py`` imports the Python
-file and compiles the C file, and checks both against the engine on random off-grid (n, p).
+embedded atlas (minutes: the bands' off-grid columns, exact minimum n and refinement), and
+prints the share of the grid's safe cells the bands refuse. ``tests/test_exports.py`` imports
+the Python file and compiles the C file, and checks both against the engine on random off-grid
+(n, p).
 """
 
 import argparse

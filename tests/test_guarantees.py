@@ -1,6 +1,7 @@
 """Tests for atlas.guarantees: threshold bands over p and the constants of rule families."""
 
 import json
+import math
 
 import numpy as np
 import pytest
@@ -43,13 +44,38 @@ def _limit(bands, p):
 
 
 def test_bands_are_the_largest_exact_minimum_n_of_their_points(small, bands):
-    # Each band's threshold is the largest of Atlas.min_n at its ends and inside points.
-    assert len(bands.points) == 7 + 6 * INSIDE and bands.edges.tolist() == small.p.tolist()
+    # Each band's threshold is the largest of Atlas.min_n at its ends, its inside point and the
+    # p the refinement added, times 1 + margin rounded up.
+    added = bands.refinement.added
+    assert len(bands.points) == 7 + 6 * INSIDE + int(added.sum())
+    assert bands.edges.tolist() == small.p.tolist()
+    assert added.sum() > 0 and (added <= bands.refinement.budget).all()
     for j in range(6):
         inside = [t for t in bands.points if bands.edges[j] <= t.p <= bands.edges[j + 1]]
+        assert len(inside) == 2 + INSIDE + added[j]
         expected = max(small.min_n(t.p, TOL) for t in inside)
-        assert bands.n_min[j] == expected
+        assert bands.n_min[j] == math.ceil(expected * (1 + bands.margin))
     assert bands.n_max.tolist() == [0] * 6  # every band reached beyond the end (Berry-Esseen)
+
+
+def test_refinement_only_raises_thresholds_and_says_so(small, bands):
+    # budget=0 checks the grid p and one midpoint per band (no refinement): the refined bands
+    # check those and more, so no threshold falls; the words state the budget and the depth.
+    plain = threshold_bands(small, TOL, budget=0)
+    assert len(plain.points) == 7 + 6 * INSIDE and plain.refinement.added.sum() == 0
+    assert (bands.n_min >= plain.n_min).all()
+    text = bands.checked()
+    assert f"{int(bands.refinement.added.sum())} added by bisection in log-odds" in text
+    assert "at most 4 per band and 3 bisections deep" in text
+    assert "the p between the points checked are not computed" in text
+    # Planted margin: 5% on every band's largest N, rounded up.
+    wide = threshold_bands(small, TOL, margin=0.05)
+    for j in range(6):
+        inside = [t.n for t in wide.points if wide.edges[j] <= t.p <= wide.edges[j + 1]]
+        assert wide.n_min[j] == math.ceil(max(inside) * 1.05)
+    assert "times 1.05 (the safety margin)" in wide.checked()
+    with pytest.raises(ValueError, match=r"`margin` must be None or a number in \[0, 1\); got -1"):
+        threshold_bands(small, TOL, margin=-1)
 
 
 def test_bands_never_call_an_unsafe_pair_safe(small, bands):
@@ -174,7 +200,37 @@ def test_tail_constant_is_the_closed_form_on_the_audit_grid():
     worst = max((tail_min_n(x, 0.05, 0.1, n_max=60).n - 1) * x * (1 - x) for x in ps)
     assert rows[0].constant == bound_up(worst * (1 + 1e-12), 3)
     assert rows[0].worst <= 0.1 and 0.0 < rows[0].refused < 1.0
-    assert "every integer n to 2,048" in rows[0].checked
+    assert "every integer to 2,048 evaluated" in rows[0].checked
+    assert "the rule checked at every integer n below each threshold" in rows[0].checked
+
+
+@pytest.mark.parametrize("metric", ["tail", "size"])
+def test_decision_constants_against_every_integer(metric):
+    # Thresholds above dense_to (where the old ladder skipped integers): the constants of two
+    # families equal the closed forms from the minimum n found by evaluating every integer n.
+    from atlas.decision_constants import decision_rule_constants
+    from atlas.sizes import test_size
+    from atlas.tails import tail_error
+
+    ps, n_max, alpha = (0.1, 0.3), 400, 0.05
+    limit = 0.1 if metric == "tail" else 0.052
+    rows = decision_rule_constants(metric, alpha, limit, n="1:400", p="0.1,0.3", n_max=n_max,
+                                   dense_to=16, alternative="greater",
+                                   families=["n*p*q >= c", "n*p >= c and n*q >= c"])  # fmt: skip
+    worst_npq = worst_np = 0.0
+    for x in ps:
+        if metric == "tail":
+            values = [tail_error(n, x, alpha) for n in range(1, n_max + 1)]
+        else:
+            values = [test_size(n, x, alpha, alternative="greater").size
+                      for n in range(1, n_max + 1)]  # fmt: skip
+        bad = [n for n, v in enumerate(values, 1) if not v <= limit]
+        assert bad and bad[-1] < n_max and bad[-1] > 16  # a threshold above dense_to
+        worst_npq = max(worst_npq, bad[-1] * x * (1 - x))  # c > (N - 1) p q at every p
+        worst_np = max(worst_np, bad[-1] * min(x, 1 - x))
+    assert rows[0].constant == bound_up(worst_npq * (1 + 1e-12), 3)
+    assert rows[1].constant == bound_up(worst_np * (1 + 1e-12), 3)
+    assert all(r.worst <= limit for r in rows)
 
 
 def test_decision_constant_errors_and_cli(capsys):
