@@ -62,7 +62,8 @@ def test_safe_region_holds_off_the_grid(default):
 
 
 def test_rule_audit_holds_off_the_grid(default):
-    audit = rule_audit(default, methods=["normal_cc"], metrics=["interval"], tols=[0.01], rules=CLASSIC_RULES)
+    audit = rule_audit(default, methods=["normal_cc"], metrics=["interval"], tols=[0.01],
+                       rules=CLASSIC_RULES)  # fmt: skip
     rng = np.random.default_rng(1011)
     n_axis, p_axis = default.n, default.p
     for rule_text, row in zip(CLASSIC_RULES, audit.rows, strict=True):
