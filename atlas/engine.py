@@ -43,12 +43,13 @@ How the extremes are found, and why it is exact
    :func:`_camp_paulson_envelopes`; camp_paulson's w itself is not monotone near k = n at
    small p, its parts are). ``normal`` (its D is positive nearly everywhere, so its minimum
    lies in the tails) is computed over the whole window, and so is a group of rows whose core
-   would hold more than ``_CORE_SHARE`` of its window. The values, and the first k of each
-   extreme, are therefore those of every integer of the window; ``tests/test_search.py``
-   checks it bit for bit (a core of half a sigma forces the fallback) and checks U and V at
-   every integer outside the core. The accuracy's ``TAIL_TOL`` term reads max D and min D:
-   those are the window's own, as said. Over the default p axis the core holds 40 to 55 per
-   cent of the windows' integers (n = 100 to 2000).
+   would hold more than ``_CORE_SHARE`` of its window or whose window rectangle holds fewer
+   than ``_CORE_MIN_POINTS`` integers (a single p never takes the core). The values, and the
+   first k of each extreme, are therefore those of every integer of the window;
+   ``tests/test_search.py`` checks it bit for bit (a core of half a sigma forces the fallback)
+   and checks U and V at every integer outside the core. The accuracy's ``TAIL_TOL`` term
+   reads max D and min D: those are the window's own, as said. Over the default p axis the
+   core holds 40 to 55 per cent of the windows' integers (n = 100 to 2000).
 3. *Wide windows* (larger sigma) use a nested search on D computed from the lattice Edgeworth
    expansion of F (:mod:`atlas.asymptotic`), not from Boost, whose absolute error grows like
    sqrt(n) (table below) and reaches the size of the errors measured. D is sampled every
@@ -408,6 +409,7 @@ def _extremes(shape):
 _NARROW_CORE_SIGMAS = 6.0
 _NARROW_CORE_MARGIN = 2.0
 _CORE_SHARE = 0.75
+_CORE_MIN_POINTS = 8192  # a smaller group costs more in bounds and calls than the core saves
 _HERMITE_MONOTONE = 3.33  # above the largest root of He_6 (3.3243): |He_j phi| falls beyond, j <= 5
 # Methods whose G is bounded outside the core: monotone CDFs, and the Edgeworth curves by the
 # Hermite terms of G = Phi(z) + phi(z) sum_j c_j He_j(z), as (c_j, He_j) for sigma, p, q.
@@ -547,12 +549,22 @@ def _every_integer(n, p, lo, hi, methods):
     Returns arrays (len(methods), rows) of max D, its k, min D, its k.
     """
     out = _extremes((len(methods), p.size))
-    core_lo, core_hi = _core(n, p, lo, hi)
     groups = _width_groups(hi - lo + 1)
-    # A group takes the core where its rectangle is at most _CORE_SHARE of the window's (else
-    # the bounds and the second rectangle cost more than they save).
+    if (hi - lo + 1).sum() < _CORE_MIN_POINTS:  # no group could take the core: skip its set-up
+        for group in groups:
+            k, valid, cdf = _cdf_rows(n, p[group], lo[group], hi[group])
+            for i, method in enumerate(methods):
+                d = cdf - approximate_cdf(k, n, p[group, None], method)
+                for j, values in enumerate(_row_extremes(d, valid, k)):
+                    out[j][i, group] = values
+        return out
+    core_lo, core_hi = _core(n, p, lo, hi)
+    # A group takes the core where its rectangle is at most _CORE_SHARE of the window's and the
+    # window's rectangle holds at least _CORE_MIN_POINTS integers (else the bounds and the second
+    # rectangle cost more than they save: a single p never takes it).
     cored = [
         (core_hi[g] - core_lo[g]).max() + 1 <= _CORE_SHARE * ((hi[g] - lo[g]).max() + 1)
+        and g.size * ((hi[g] - lo[g]).max() + 1) >= _CORE_MIN_POINTS
         for g in groups
     ]
     envelopes = {}

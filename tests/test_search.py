@@ -184,6 +184,7 @@ def test_narrow_core_changes_no_value(monkeypatch, core_sigmas):
     # must give the same bits; a core of half a sigma forces the whole-window fallback often.
     monkeypatch.setattr(engine, "_NARROW_CORE_SIGMAS", core_sigmas)
     monkeypatch.setattr(engine, "_NARROW_CORE_MARGIN", 0.0)
+    monkeypatch.setattr(engine, "_CORE_MIN_POINTS", 0)  # ten p: small groups take the core too
     for n in (9, 150, 1200, 20_000):
         with_core = _all_fields(engine.evaluate(n, NARROW_P))
         monkeypatch.setattr(engine, "_TAIL_BOUNDED", frozenset())
