@@ -550,74 +550,83 @@ def _every_integer(n, p, lo, hi, methods):
     """
     out = _extremes((len(methods), p.size))
     groups = _width_groups(hi - lo + 1)
-    if (hi - lo + 1).sum() < _CORE_MIN_POINTS:  # no group could take the core: skip its set-up
-        for group in groups:
-            k, valid, cdf = _cdf_rows(n, p[group], lo[group], hi[group])
-            for i, method in enumerate(methods):
-                d = cdf - approximate_cdf(k, n, p[group, None], method)
-                for j, values in enumerate(_row_extremes(d, valid, k)):
-                    out[j][i, group] = values
-        return out
-    core_lo, core_hi = _core(n, p, lo, hi)
-    # A group takes the core where its rectangle is at most _CORE_SHARE of the window's and the
-    # window's rectangle holds at least _CORE_MIN_POINTS integers (else the bounds and the second
-    # rectangle cost more than they save: a single p never takes it).
-    cored = [
-        (core_hi[g] - core_lo[g]).max() + 1 <= _CORE_SHARE * ((hi[g] - lo[g]).max() + 1)
-        and g.size * ((hi[g] - lo[g]).max() + 1) >= _CORE_MIN_POINTS
-        for g in groups
-    ]
-    envelopes = {}
-    need = np.zeros(p.size, dtype=bool)
+    cored, envelopes = [False] * len(groups), {}
+    if (hi - lo + 1).sum() >= _CORE_MIN_POINTS:  # else no group could take the core
+        core_lo, core_hi = _core(n, p, lo, hi)
+        # A group takes the core where its rectangle is at most _CORE_SHARE of the window's and
+        # the window's rectangle holds at least _CORE_MIN_POINTS integers (else the bounds and
+        # the second rectangle cost more than they save: a single p never takes it).
+        cored = [
+            (core_hi[g] - core_lo[g]).max() + 1 <= _CORE_SHARE * ((hi[g] - lo[g]).max() + 1)
+            and g.size * ((hi[g] - lo[g]).max() + 1) >= _CORE_MIN_POINTS
+            for g in groups
+        ]
+        need = np.concatenate([g for g, use in zip(groups, cored, strict=True) if use] + [[]])
+        need = np.sort(need.astype(np.int64))
+        if need.size:
+            for method in _TAIL_BOUNDED.intersection(methods):
+                u, v = np.full(p.size, np.inf), np.full(p.size, np.inf)
+                bounds = (n, p[need], lo[need], hi[need], core_lo[need], core_hi[need])
+                u[need], v[need] = _tail_envelopes(*bounds, method)
+                envelopes[method] = u, v
     for group, use in zip(groups, cored, strict=True):
-        need[group] = use
-    need = np.flatnonzero(need)
-    if need.size:
-        for method in _TAIL_BOUNDED.intersection(methods):
-            u, v = np.full(p.size, np.inf), np.full(p.size, np.inf)
-            u[need], v[need] = _tail_envelopes(n, p[need], lo[need], hi[need], core_lo[need],
-                                               core_hi[need], method)  # fmt: skip
-            envelopes[method] = u, v
-    for group, use in zip(groups, cored, strict=True):
-        g_lo, g_hi, c_lo, c_hi = lo[group], hi[group], core_lo[group], core_hi[group]
         pg = p[group, None]
-        k, valid, cdf = _cdf_rows(n, p[group], g_lo, g_hi)
-        rows = np.arange(group.size)
-        # The core as its own rectangle, F read from the window's (so the same values).
-        last = (c_hi - g_lo)[:, None]
-        cols = (c_lo - g_lo)[:, None] + np.arange(int((c_hi - c_lo).max()) + 1)
-        core_valid = cols <= last
-        cols = np.minimum(cols, last)
-        core_k, core_f = k[rows[:, None], cols], cdf[rows[:, None], cols]
-        has_low, has_high = c_lo > g_lo, c_hi < g_hi
-        # F outside the core, from F summed upward (monotone as computed): below the core at
-        # most F(lo_c); above it between F(hi_c) and F(hi).
-        f_lo, f_core_hi = core_f[:, 0], cdf[rows, c_hi - g_lo]
-        f_hi = cdf[rows, g_hi - g_lo]
+        window = _cdf_rows(n, p[group], lo[group], hi[group])
+        if use:
+            core = _CoreRectangle(window, lo[group], hi[group], core_lo[group], core_hi[group])
         for i, method in enumerate(methods):
-            if method not in envelopes or not use:
-                d = cdf - approximate_cdf(k, n, pg, method)
-                found = _row_extremes(d, valid, k)
-                for j, values in enumerate(found):
-                    out[j][i, group] = values
-                continue
-            d = core_f - approximate_cdf(core_k, n, pg, method)
-            found = _row_extremes(d, core_valid, core_k)
-            u, v = envelopes[method][0][group], envelopes[method][1][group]
-            slack = 4.0 * G_ROUNDING
-            upper = np.maximum(np.where(has_low, f_lo + u, -np.inf),
-                               np.where(has_high, f_hi - 1.0 + v, -np.inf)) + slack  # fmt: skip
-            lower = np.minimum(np.where(has_low, -u, np.inf),
-                               np.where(has_high, f_core_hi - 1.0 - v, np.inf)) - slack  # fmt: skip
-            redo = np.flatnonzero((found[0] <= upper) | (found[2] >= lower))
-            if redo.size:
-                d = cdf[redo] - approximate_cdf(k[redo], n, pg[redo], method)
-                again = _row_extremes(d, valid[redo], k[redo])
-                for whole, part in zip(found, again, strict=True):
-                    whole[redo] = part
+            if use and method in envelopes:
+                u, v = envelopes[method][0][group], envelopes[method][1][group]
+                found = core.extremes(n, pg, method, u, v)
+            else:
+                found = _window_extremes(window, n, pg, method)
             for j, values in enumerate(found):
                 out[j][i, group] = values
     return out
+
+
+def _window_extremes(window, n, pg, method, rows=slice(None)):
+    """Max D, its k, min D, its k over every integer of the windows (``rows`` of them)."""
+    k, valid, cdf = window
+    d = cdf[rows] - approximate_cdf(k[rows], n, pg[rows], method)
+    return _row_extremes(d, valid[rows], k[rows])
+
+
+class _CoreRectangle:
+    """The cores of a group's rows as one rectangle, with F read from the windows' F (so the
+    same values), and the extremes of D there proved those of the windows or recomputed."""
+
+    def __init__(self, window, lo, hi, core_lo, core_hi):
+        k, valid, cdf = window
+        self.window = window
+        rows = np.arange(lo.size)
+        last = (core_hi - lo)[:, None]
+        cols = (core_lo - lo)[:, None] + np.arange(int((core_hi - core_lo).max()) + 1)
+        self.valid = cols <= last
+        cols = np.minimum(cols, last)
+        self.k, self.cdf = k[rows[:, None], cols], cdf[rows[:, None], cols]
+        self.has_low, self.has_high = core_lo > lo, core_hi < hi
+        # F outside the core, from F summed upward (monotone as computed): below the core at
+        # most F(lo_c); above it between F(hi_c) and F(hi).
+        self.f_lo, self.f_core_hi = self.cdf[:, 0], cdf[rows, core_hi - lo]
+        self.f_hi = cdf[rows, hi - lo]
+
+    def extremes(self, n, pg, method, u, v):
+        """The extremes over the windows, given U and V of :func:`_tail_envelopes`."""
+        d = self.cdf - approximate_cdf(self.k, n, pg, method)
+        found = _row_extremes(d, self.valid, self.k)
+        slack = 4.0 * G_ROUNDING
+        low, high = self.has_low, self.has_high
+        upper = np.maximum(np.where(low, self.f_lo + u, -np.inf),
+                           np.where(high, self.f_hi - 1.0 + v, -np.inf)) + slack  # fmt: skip
+        lower = np.minimum(np.where(low, -u, np.inf),
+                           np.where(high, self.f_core_hi - 1.0 - v, np.inf)) - slack  # fmt: skip
+        redo = np.flatnonzero((found[0] <= upper) | (found[2] >= lower))
+        if redo.size:
+            again = _window_extremes(self.window, n, pg, method, redo)
+            for whole, part in zip(found, again, strict=True):
+                whole[redo] = part
+        return found
 
 
 _GROUP_RATIO = 1.5
