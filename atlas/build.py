@@ -13,7 +13,7 @@ import re
 import time
 from datetime import datetime, timezone
 
-from atlas import __version__, grid
+from atlas import __version__, floatpath, grid
 from atlas.approximations import METHODS, check_method
 
 # Chunk, cell_cost, compute_chunk and chunk_work lived here before atlas.chunks held them: they
@@ -237,7 +237,8 @@ def build_atlas(
     where = "on a dask cluster" if client is not None else f"with {workers or 1} worker process(es)"
     history = (
         f"{stamp} approx-atlas {__version__} build: {n_axis.size} n x {p_axis.size} p x "
-        f"{len(methods)} methods in {len(chunks)} chunk(s) {where}, {elapsed:.1f} s"
+        f"{len(methods)} methods in {len(chunks)} chunk(s) {where}, {elapsed:.1f} s; "
+        f"numpy float path {floatpath.describe()} (atlas.floatpath)"
     )
     from atlas.cube import make_dataset
 

@@ -24,7 +24,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))  # this checkout's atlas, not an installed copy
 
-from atlas import coverage_pages  # noqa: E402
+from atlas import coverage_pages, floatpath  # noqa: E402
 
 
 def main(argv=None):
@@ -42,4 +42,5 @@ def main(argv=None):
 
 
 if __name__ == "__main__":
+    floatpath.restart_on_reference_path()  # stored bits are the reference path's
     sys.exit(main())

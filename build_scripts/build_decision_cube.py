@@ -22,6 +22,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))  # this checkout's atlas, not an installed copy
 
+from atlas import floatpath  # noqa: E402
 from atlas.decision_cube import DECISION_N, DECISION_P, decision_dataset  # noqa: E402
 
 
@@ -54,4 +55,5 @@ def main():
 
 
 if __name__ == "__main__":
+    floatpath.restart_on_reference_path()  # stored bits are the reference path's
     main()

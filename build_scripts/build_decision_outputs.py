@@ -27,7 +27,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))  # this checkout's atlas, not an installed copy
 
-from atlas import decision_charts, decision_rules, decision_tables, figures, files  # noqa: E402
+from atlas import decision_charts, decision_rules, decision_tables, figures, files, floatpath  # noqa: E402
 from atlas.notation import format_p  # noqa: E402
 
 SIZE_CASES = ((80, 0.025, "greater"), (50, 0.1, "greater"), (50, 0.1, "two-sided"))
@@ -94,4 +94,5 @@ def main(argv=None):
 
 
 if __name__ == "__main__":
+    floatpath.restart_on_reference_path()  # stored bits are the reference path's
     main()

@@ -13,7 +13,7 @@ import argparse
 import time
 from pathlib import Path
 
-from atlas import open_atlas
+from atlas import floatpath, open_atlas
 from atlas.exports import write_export
 from atlas.guarantees import threshold_bands
 
@@ -46,4 +46,5 @@ def main(argv=None):
 
 
 if __name__ == "__main__":
+    floatpath.restart_on_reference_path()  # stored bits are the reference path's
     main()

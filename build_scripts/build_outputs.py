@@ -35,7 +35,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))  # this checkout's atlas, not an installed copy
 sys.path.insert(1, str(Path(__file__).resolve().parent))  # build_decision_outputs beside it
 
-from atlas import charts, coverage_pages, figures, files, sheets, tables  # noqa: E402
+from atlas import charts, coverage_pages, figures, files, floatpath, sheets, tables  # noqa: E402
 from atlas.engine import METRICS  # noqa: E402
 from atlas.query import open_atlas  # noqa: E402
 
@@ -130,4 +130,5 @@ def main(argv=None):
 
 
 if __name__ == "__main__":
+    floatpath.restart_on_reference_path()  # stored bits are the reference path's
     sys.exit(main())

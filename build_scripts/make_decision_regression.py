@@ -27,7 +27,7 @@ sys.path.insert(0, str(ROOT))
 
 import numpy as np  # noqa: E402
 
-from atlas import METHODS  # noqa: E402
+from atlas import METHODS, floatpath  # noqa: E402
 from atlas.decision_cube import DECISION_N, DECISION_P, TAIL_LEVELS, TEST_LEVELS  # noqa: E402
 from atlas.files import replacing  # noqa: E402
 from atlas.grid import parse_n, parse_p  # noqa: E402
@@ -102,4 +102,5 @@ def main():
 
 
 if __name__ == "__main__":
+    floatpath.restart_on_reference_path()  # stored bits are the reference path's
     main()

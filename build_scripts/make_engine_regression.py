@@ -22,7 +22,7 @@ sys.path.insert(0, str(ROOT))
 
 import numpy as np  # noqa: E402
 
-from atlas import METHODS  # noqa: E402
+from atlas import METHODS, floatpath  # noqa: E402
 from atlas.engine import evaluate  # noqa: E402
 from atlas.files import replacing  # noqa: E402
 
@@ -76,4 +76,5 @@ def main():
 
 
 if __name__ == "__main__":
+    floatpath.restart_on_reference_path()  # stored bits are the reference path's
     main()

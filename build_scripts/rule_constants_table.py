@@ -23,7 +23,7 @@ import time
 
 import numpy as np
 
-from atlas import open_atlas
+from atlas import floatpath, open_atlas
 from atlas.guarantees import rule_constants, threshold_bands
 
 
@@ -95,4 +95,5 @@ def main(argv=None):
 
 
 if __name__ == "__main__":
+    floatpath.restart_on_reference_path()  # stored bits are the reference path's
     main()
