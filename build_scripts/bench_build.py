@@ -31,7 +31,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 import numpy as np  # noqa: E402
 
-from atlas import METHODS, grid, store  # noqa: E402
+from atlas import METHODS, floatpath, grid, store  # noqa: E402
 from atlas.build import build_atlas  # noqa: E402
 
 
@@ -72,7 +72,7 @@ def main(argv=None):
     p = grid.default_p()[:: args.p_step]
     cells = len(METHODS) * n.size * p.size
     print(f"sub-grid: {grid.describe_grid(n, p)}; {len(METHODS)} methods; {cells} cells")
-    print(f"load average before: {_load()}")
+    print(f"numpy float path {floatpath.describe()}; load average before: {_load()}")
     base_rss = _rss_mb(resource.RUSAGE_SELF)
 
     runs = {1: [], 2: []}

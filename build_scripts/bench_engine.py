@@ -38,6 +38,7 @@ import numpy as np
 from scipy import special, stats
 
 import atlas
+from atlas import floatpath
 from atlas.engine import evaluate
 
 
@@ -86,7 +87,10 @@ def main(argv=None):
     parser.add_argument("--rounds", type=int, default=2, help="interleaved build rounds (2)")
     args = parser.parse_args(argv)
     r = args.repeat
-    print(f"engine: {atlas.__file__}; load average before: {_load()}")
+    print(
+        f"engine: {atlas.__file__}; numpy float path {floatpath.describe()}; "
+        f"load average before: {_load()}"
+    )
 
     n, p = 10**6, 0.3
     # Interleaved rounds: each round times the naive evaluation once and the engine (best of a
