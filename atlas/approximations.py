@@ -440,8 +440,9 @@ def _pp_g(t, inv_t=None, log_t=None):
     if near.any():
         un = np.broadcast_to(u, out.shape)[near]
         series = np.zeros_like(un)
-        for j in range(_PP_TERMS, 0, -1):
-            series = (series + 2.0 / ((j + 1.0) * (j + 2.0))) * un
+        for j in range(_PP_TERMS, 0, -1):  # (series + c_j) u, in place: the same values
+            np.add(series, 2.0 / ((j + 1.0) * (j + 2.0)), out=series)
+            np.multiply(series, un, out=series)
         out[near] = series
     if far.any():
         out[far] = (

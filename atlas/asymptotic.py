@@ -213,10 +213,16 @@ def hermite_sum(z, gamma):
     sum is b_0.
     """
     top = gamma.shape[-1]
-    b1 = np.zeros(np.broadcast(z, gamma[..., 0]).shape)
-    b2 = np.zeros_like(b1)
+    shape = np.broadcast(z, gamma[..., 0]).shape
+    b1, b2, t = np.zeros(shape), np.zeros(shape), np.empty(shape)
+    # In place, to spare an allocation per operation on the engine's small arrays: the same
+    # operations in the same order as (gamma_j + z b1) - (j + 1) b2, so the same values.
     for j in range(top - 1, -1, -1):
-        b1, b2 = gamma[..., j] + z * b1 - (j + 1) * b2, b1
+        np.multiply(z, b1, out=t)
+        np.add(gamma[..., j], t, out=t)
+        np.multiply(b2, j + 1, out=b2)  # b_{j+2} is not needed again
+        np.subtract(t, b2, out=b2)
+        b1, b2 = b2, b1
     return b1
 
 
