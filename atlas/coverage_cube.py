@@ -21,6 +21,7 @@ the dimensions named n and p again (:func:`coverage_view`). The cube, as built a
 The definitions are those of :mod:`atlas.confidence`.
 """
 
+import math
 from datetime import datetime, timezone
 
 import numpy as np
@@ -94,8 +95,11 @@ def p_cells(p):
     [0.1  0.25 0.75] [0.25 0.75 0.9 ]
     """
     p = np.asarray(p, dtype=np.float64)
-    logit = np.log(p) - np.log1p(-p)
-    mids = 1.0 / (1.0 + np.exp(-(logit[:-1] + logit[1:]) / 2.0))
+    # The C library's log and exp (math), not numpy's loops, which differ by processor
+    # (atlas.floatpath): the same cells on every machine.
+    logit = [math.log(v) - math.log1p(-v) for v in p.tolist()]
+    pairs = zip(logit[:-1], logit[1:], strict=True)
+    mids = np.array([1.0 / (1.0 + math.exp(-(a + b) / 2.0)) for a, b in pairs])
     return np.concatenate([[p[0]], mids]), np.concatenate([mids, [p[-1]]])
 
 

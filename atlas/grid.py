@@ -108,7 +108,32 @@ def _n_item(item, spec):
         if b - a + 1 > MAX_VALUES:  # refused before anything is allocated
             raise _error("n", f"must have at most {MAX_VALUES} values", item, spec)
         return np.arange(a, b + 1, dtype=np.int64)
-    return np.concatenate(([a], np.rint(np.geomspace(a, b, m)[1:-1]).astype(np.int64), [b]))
+    return np.concatenate(([a], np.rint(_geomspace(a, b, m)[1:-1]).astype(np.int64), [b]))
+
+
+# Log and logit spacing with the standard library's exp, log and pow (the C library's), not
+# numpy's: numpy picks its loops by the processor, and its AVX-512 loops round differently, which
+# moved 8 of the 195 default p by an ulp (atlas.floatpath). The operations are numpy's own
+# (np.geomspace, np.logaddexp), so the values are those numpy gives on the reference path.
+def _geomspace(a, b, m):
+    """numpy.geomspace(a, b, m) for 0 < a <= b, the same on every processor."""
+    y = np.linspace(math.log10(a), math.log10(b), m)
+    out = np.array([math.pow(10.0, v) for v in y.tolist()])
+    out[0], out[-1] = a, b
+    return out
+
+
+def _logistic(x):
+    """1 / (1 + e^-x) as exp(-logaddexp(0, -x)), numpy's formula, the same on every processor."""
+
+    def log_add_exp(v):  # logaddexp(0, v), as numpy computes it
+        if v == 0.0:
+            return math.log(2.0)
+        if -v > 0:
+            return math.log1p(math.exp(v))
+        return v + math.log1p(math.exp(-v))
+
+    return np.array([math.exp(-log_add_exp(-v)) for v in x.tolist()])
 
 
 def parse_n(spec):
@@ -156,12 +181,12 @@ def _p_item(item, spec):
     if parts[0] == "lin":
         values = np.linspace(a, b, m)
     elif parts[0] == "log":
-        values = np.geomspace(a, b, m)
+        values = _geomspace(a, b, m)
     else:
         x = np.linspace(math.log(a) - math.log1p(-a), math.log(b) - math.log1p(-b), m)
         if abs((1 - b) - a) <= REL_TOL * a:  # mirrored endpoints: make the log-odds exactly odd
             x = (x - x[::-1]) / 2
-        values = np.exp(-np.logaddexp(0.0, -x))  # 1/(1 + e^-x), accurate in both tails
+        values = _logistic(x)  # 1/(1 + e^-x), accurate in both tails
     values = np.clip(values, a, b)
     values[0], values[-1] = a, b
     return values, np.isin(np.arange(m), (0, m - 1))  # the typed ends count as explicit

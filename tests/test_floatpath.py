@@ -49,3 +49,23 @@ def test_native_path_moves_engine_values_within_their_accuracy():
     native = np.load(io.BytesIO(out.stdout))
     ev = evaluate(100000, np.array([0.001, 0.3, 0.5]), methods=("normal_cc", "poisson"))
     assert np.all(np.abs(native[0] - ev.interval) <= ev.interval_accuracy + native[1])
+
+
+def test_default_grid_is_the_same_off_the_reference_path():
+    # The default axes are spaced with the C library's exp, log and pow, not numpy's loops, so a
+    # process off the reference path builds the embedded atlas's own coordinates.
+    code = (
+        "import sys, numpy as np; from atlas import grid; "
+        "np.save(sys.stdout.buffer, np.concatenate([grid.default_p(), grid.default_n()]))"
+    )
+    env = {k: v for k, v in os.environ.items() if k != floatpath.ENV}
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, check=True)
+    from atlas import grid, store
+
+    native = np.load(io.BytesIO(out.stdout))
+    here = np.concatenate([grid.default_p(), grid.default_n()])
+    assert np.array_equal(native, here)
+    import xarray as xr
+
+    with xr.open_dataset(store.default_path()) as ds:
+        assert np.array_equal(ds["p"].values, grid.default_p())

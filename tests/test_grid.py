@@ -345,3 +345,17 @@ def test_parse_n_matches_values(values):
     spec = ",".join(str(v) for v in values)
     assert_array_equal(parse_n(spec), np.unique(values))
     assert_array_equal(parse_n(values), np.unique(values))
+
+
+def test_spacing_is_numpys_on_the_reference_path():
+    # The tests run on the reference float path (tests/conftest.py), where numpy's exp, log and
+    # pow are the C library's: the standard-library spacing gives numpy's values bit for bit.
+    from atlas.grid import _geomspace, _logistic
+
+    rng = np.random.default_rng(11)
+    for _ in range(200):
+        a, b = sorted(float(v) for v in 10.0 ** rng.uniform(-300, 0, 2))
+        m = int(rng.integers(2, 400))
+        assert np.array_equal(_geomspace(a, b, m), np.geomspace(a, b, m))
+        x = np.linspace(-rng.uniform(0, 700), rng.uniform(0, 700), m)
+        assert np.array_equal(_logistic(x), np.exp(-np.logaddexp(0.0, -x)))
