@@ -12,7 +12,10 @@ off (``NPY_DISABLE_CPU_FEATURES``), where numpy's baseline and AVX2 loops agree 
 (checked on the engine's regression fixture with both turned off and on). That covers the
 embedded atlas and its checksum, the regression fixtures in ``tests/data`` and everything that
 compares against them: the build scripts and the test suite run on it. A user's own build is
-correct on any path; it is the same bit for bit as ours only on the reference path.
+correct on any path; it is the same bit for bit as ours only on the reference path. The grid
+axes do not depend on the path (:mod:`atlas.grid` spaces them with the C library's functions),
+so a build on another path computes the same cells. On an AVX-512 machine, the default atlas's
+errors at equal p differ by at most 6.7e-16, 0.22 of their stated accuracy.
 
 This module imports only the standard library at module level, so that it can be run from a
 file before numpy is imported (``tests/conftest.py`` does so with :func:`runpy.run_path`).
