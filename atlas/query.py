@@ -16,6 +16,8 @@ per process (:func:`atlas.store.share`): the one handle, and the Dataset built o
 by every Atlas of the file and closed when the last of them is closed or garbage collected.
 """
 
+import collections
+import threading
 from dataclasses import dataclass
 from pathlib import Path
 from typing import NamedTuple
@@ -765,13 +767,18 @@ class Atlas:
         tol_value, method = _question(tol, method, metric)
         key = ("threshold", p_value, tol_value, method, metric, bool(runs))
         answer = self._cache.get(key)  # answers are kept: tables, sheets and wiki ask again
+        shared = _file_answers(self._file)
+        if answer is None and shared is not None:
+            answer = shared.get(key)
         if answer is None:
             n_axis, _ = self._axes()
             values, accuracy = self._columns(0, n_axis.size, np.array([p_value]), method, metric,
                                              accuracy=True)  # fmt: skip
             answer = minimum_n(n_axis, values[:, 0], p_value, tol_value, method=method,
                                metric=metric, runs=runs, accuracy=accuracy[:, 0])  # fmt: skip
-            self._cache[key] = answer
+        self._cache[key] = answer
+        if shared is not None:
+            shared[key] = answer
         return answer
 
     def min_n_over(self, p_lo, p_hi, tol, *, method="normal_cc", metric="interval"):
@@ -969,6 +976,29 @@ class Atlas:
                 **extra,
             },
         )
+
+
+# Threshold answers of the last few files, kept beyond the Atlas that asked: a sheet and a wiki
+# page written from one file in one process (and the commands that write them) ask the same
+# questions, each an every-integer search. Keyed by the file's identity (device, inode, size,
+# modification time: a file rewritten or replaced is another file), as store.share opens it.
+_FILE_ANSWERS = collections.OrderedDict()
+_FILE_ANSWERS_KEPT = 4
+_FILE_ANSWERS_LOCK = threading.Lock()
+
+
+def _file_answers(file):
+    """The shared answers of an open :class:`atlas.store.AtlasFile`, or None (no file)."""
+    if file is None or file.identity is None:
+        return None
+    with _FILE_ANSWERS_LOCK:
+        answers = _FILE_ANSWERS.get(file.identity)
+        if answers is None:
+            answers = _FILE_ANSWERS[file.identity] = {}
+        _FILE_ANSWERS.move_to_end(file.identity)
+        while len(_FILE_ANSWERS) > _FILE_ANSWERS_KEPT:
+            _FILE_ANSWERS.popitem(last=False)
+    return answers
 
 
 def open_atlas(path=None, *, verify=False):

@@ -571,6 +571,7 @@ class AtlasFile:
         self.nc = open_netcdf(path)
         self.ds = None
         self.holders = weakref.WeakSet()
+        self.identity = None  # (device, inode, size, modification time), set by share()
         self._handles = {"nc": self.nc}
         self.close = weakref.finalize(self, _close_handles, self._handles)
 
@@ -631,6 +632,7 @@ def share(path, holder):
         entry = _OPEN.get(key)
         if entry is None or not entry.isopen():
             entry = AtlasFile(path)  # raises FileNotFoundError / ValueError
+            entry.identity = key
             _OPEN[key] = entry
         entry.holders.add(holder)
     return entry

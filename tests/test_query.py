@@ -12,6 +12,7 @@ The atlas is the tiny one of tests/conftest.py: n = 1..40 and 8 log-spaced n to 
 """
 
 import dataclasses
+import os
 import pathlib
 import re
 
@@ -751,3 +752,29 @@ def test_verify_checks_the_checksum(tmp_path, small_atlas):
         open_atlas(wrong, verify=True)  # a fresh open: the cube layer checks
     with open_atlas(small_atlas["float32"], verify=True) as good:
         assert set(good.methods) == set(METHODS)
+
+
+def test_threshold_answers_are_shared_by_atlases_of_one_file(small_atlas, tmp_path, monkeypatch):
+    # A sheet and a wiki page written from one file in one process ask the same questions: a
+    # second Atlas of the same file answers from the first's work; a rewritten file does not.
+    import shutil
+
+    path = shutil.copy(small_atlas["float64"], tmp_path / "a.nc")
+    calls = []
+    real = query.minimum_n
+
+    def counted(*args, **kwargs):
+        calls.append(args[2])
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(query, "minimum_n", counted)
+    first = atlas.open_atlas(path)
+    answer = first.threshold(0.3, 0.01)
+    first.close()
+    second = atlas.open_atlas(path)
+    assert second.threshold(0.3, 0.01) == answer and len(calls) == 1
+    second.close()
+    os.utime(path, ns=(1, 1))  # another modification time: another file
+    third = atlas.open_atlas(path)
+    assert third.threshold(0.3, 0.01) == answer and len(calls) == 2
+    third.close()
