@@ -239,6 +239,7 @@ def build_atlas(
         f"{stamp} approx-atlas {__version__} build: {n_axis.size} n x {p_axis.size} p x "
         f"{len(methods)} methods in {len(chunks)} chunk(s) {where}, {elapsed:.1f} s; "
         f"numpy float path {floatpath.describe()} (atlas.floatpath)"
+        + ("" if client is None else " in the client; the workers' is their own")
     )
     from atlas.cube import make_dataset
 
