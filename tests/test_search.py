@@ -155,6 +155,21 @@ def test_methods_searched_together_or_alone_agree_bit_for_bit():
             assert_array_equal(whole[i], part[0])
 
 
+@pytest.mark.parametrize("n", [300_000, 2_000_000, 10**8, 10**12])
+def test_shared_refinement_changes_no_value(monkeypatch, n):
+    # Candidates of several methods are refined with shared z, phi(z) and series when they are
+    # few (_SHARED_POINTS); method by method must give the same bits, one cell or several.
+    p = np.array([1e-5, 0.003, 0.3, 0.5, 0.8, 0.99999])
+    for cells in (p, p[2:3], p[-1:]):
+        monkeypatch.setattr(engine, "_SHARED_POINTS", 10**9)
+        shared = engine.evaluate(n, cells)
+        monkeypatch.setattr(engine, "_SHARED_POINTS", 0)
+        apart = engine.evaluate(n, cells)
+        monkeypatch.undo()
+        for name, value in _all_fields(shared).items():
+            assert_array_equal(value, getattr(apart, name), err_msg=name)
+
+
 def test_width_groups_change_no_value(monkeypatch):
     # Narrow windows are evaluated in groups of similar width; one padded rectangle for all the
     # rows (the grouping switched off) must give the same bits.
