@@ -408,6 +408,17 @@ def camp_paulson_parts(k, n, p):
 
 _PP_TERMS = 24
 _PP_NEAR = 0.25
+_PP_COEFFICIENTS = {j: 2.0 / ((j + 1.0) * (j + 2.0)) for j in range(1, _PP_TERMS + 1)}
+_PP_SCALAR = 16
+
+
+def _pp_series(u):
+    """The series of :func:`_pp_g` at one float u, by the same Horner steps (IEEE double in
+    Python as in numpy, so the same value)."""
+    series = 0.0
+    for j in range(_PP_TERMS, 0, -1):
+        series = (series + _PP_COEFFICIENTS[j]) * u
+    return series
 
 
 def _pp_g(t, inv_t=None, log_t=None):
@@ -439,10 +450,13 @@ def _pp_g(t, inv_t=None, log_t=None):
     out = np.empty(np.broadcast(t, inv_t, log_t).shape)
     if near.any():
         un = np.broadcast_to(u, out.shape)[near]
-        series = np.zeros_like(un)
-        for j in range(_PP_TERMS, 0, -1):  # (series + c_j) u, in place: the same values
-            np.add(series, 2.0 / ((j + 1.0) * (j + 2.0)), out=series)
-            np.multiply(series, un, out=series)
+        if un.size <= _PP_SCALAR:  # a few points: Python floats, without numpy's per-call cost
+            series = np.array([_pp_series(v) for v in un.tolist()])
+        else:
+            series = np.zeros_like(un)
+            for j in range(_PP_TERMS, 0, -1):  # (series + c_j) u, in place: the same values
+                np.add(series, _PP_COEFFICIENTS[j], out=series)
+                np.multiply(series, un, out=series)
         out[near] = series
     if far.any():
         out[far] = (

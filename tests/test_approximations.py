@@ -274,3 +274,16 @@ def test_camp_paulson_parts_are_monotone_in_k(n, p):
     assert_array_equal(numerator / np.sqrt(b * r3 * r3 + a), camp_paulson_score(k, n, p))
     if p < 1e-3:
         assert (np.diff(camp_paulson_score(k, n, p)) < 0).any()
+
+
+def test_peizer_pratt_series_same_in_python_floats_and_numpy():
+    # A few points take the series in Python floats (_PP_SCALAR), more in numpy: the same Horner
+    # steps in IEEE double, so the same bits (1 - t within 1/4 of 0, both signs).
+    from atlas import approximations
+
+    rng = np.random.default_rng(3)
+    t = 1.0 - rng.uniform(-0.25, 0.25, 20_000)
+    whole = approximations._pp_g(t)
+    assert t.size > approximations._PP_SCALAR
+    pieces = np.concatenate([approximations._pp_g(t[i : i + 8]) for i in range(0, t.size, 8)])
+    np.testing.assert_array_equal(pieces, whole)
