@@ -38,6 +38,19 @@ def _moments(k, n, p):
     return k, n, p, q, mu, np.sqrt(mu * q)
 
 
+def _broadcast(*arrays):
+    """numpy.broadcast_arrays, skipped when the shapes already agree (it costs microseconds)."""
+    shape = arrays[0].shape
+    if all(a.shape == shape for a in arrays):
+        return arrays
+    return np.broadcast_arrays(*arrays)
+
+
+def _spread(a, shape):
+    """numpy.broadcast_to(a, shape), skipped when ``a`` has that shape already."""
+    return a if a.shape == shape else np.broadcast_to(a, shape)
+
+
 def _split(v):
     """Veltkamp's split v = hi + lo, each part holding at most 26 significant bits.
 
@@ -240,7 +253,7 @@ def poisson(k, n, p):
     >>> round(float(poisson(2, 50, 0.1)), 6)
     0.124652
     """
-    k, n, p, q, mu, sigma = np.broadcast_arrays(*_moments(k, n, p))
+    k, n, p, q = _broadcast(*_moments(k, n, p)[:4])
     out = np.empty(k.shape)
     low = p <= 0.5
     # The mean n p (or n q) rounded to float64 is off by up to half an ulp, which moves G by
@@ -276,7 +289,7 @@ def poisson_complement(k, n, p):
     >>> round(float(poisson_complement(2, 50, 0.1)), 6)
     0.875348
     """
-    k, n, p, q, mu, sigma = np.broadcast_arrays(*_moments(k, n, p))
+    k, n, p, q = _broadcast(*_moments(k, n, p)[:4])
     out = np.empty(k.shape)
     low = p <= 0.5
     if low.any():
@@ -304,7 +317,7 @@ def _poisson_pmf(j, mu):
     """
     # Each branch is computed on its own points only (the same operations, so the same values
     # as computing both everywhere and choosing).
-    j, mu = np.broadcast_arrays(np.asarray(j, dtype=np.float64), np.asarray(mu, np.float64))
+    j, mu = _broadcast(np.asarray(j, dtype=np.float64), np.asarray(mu, np.float64))
     jj = np.maximum(j, 1.0)
     t = (mu - jj) / jj
     small_t = np.abs(t) < 1e-3
@@ -449,7 +462,7 @@ def _pp_g(t, inv_t=None, log_t=None):
     mid = ~near & ~far
     out = np.empty(np.broadcast(t, inv_t, log_t).shape)
     if near.any():
-        un = np.broadcast_to(u, out.shape)[near]
+        un = _spread(u, out.shape)[near]
         if un.size <= _PP_SCALAR:  # a few points: Python floats, without numpy's per-call cost
             series = np.array([_pp_series(v) for v in un.tolist()])
         else:
@@ -459,13 +472,10 @@ def _pp_g(t, inv_t=None, log_t=None):
                 np.multiply(series, un, out=series)
         out[near] = series
     if far.any():
-        out[far] = (
-            _pp_h(np.broadcast_to(inv_t, out.shape)[far], np.broadcast_to(log_t, out.shape)[far])
-            - 1.0
-        )
+        out[far] = _pp_h(_spread(inv_t, out.shape)[far], _spread(log_t, out.shape)[far]) - 1.0
     if mid.any():
-        tm = np.broadcast_to(t, out.shape)[mid]
-        lm = np.broadcast_to(log_t, out.shape)[mid]
+        tm = _spread(t, out.shape)[mid]
+        lm = _spread(log_t, out.shape)[mid]
         out[mid] = (1.0 - tm * tm + 2.0 * tm * lm) / (1.0 - tm) ** 2
     return out
 
