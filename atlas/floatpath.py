@@ -22,6 +22,7 @@ file before numpy is imported (``tests/conftest.py`` does so with :func:`runpy.r
 """
 
 import os
+import shlex
 import subprocess
 import sys
 
@@ -119,3 +120,17 @@ def restart_on_reference_path():
     sys.stdout.flush()
     sys.stderr.flush()
     os.execve(sys.executable, sys.orig_argv, env)
+
+
+def main():
+    """Print the shell line that puts later commands on the reference path, for
+    ``eval "$(python -m atlas.floatpath)"``; nothing to set prints a comment saying so."""
+    env = reference_environment()
+    if env.get(ENV, "") == os.environ.get(ENV, "") and not _probe_fresh(env):
+        print(f"# numpy here is on the reference path already; nothing to set ({ENV})")
+        return
+    print(f"export {ENV}={shlex.quote(env[ENV])}")
+
+
+if __name__ == "__main__":
+    main()

@@ -69,3 +69,24 @@ def test_default_grid_is_the_same_off_the_reference_path():
 
     with xr.open_dataset(store.default_path()) as ds:
         assert np.array_equal(ds["p"].values, grid.default_p())
+
+
+def test_module_prints_the_shell_line():
+    # `eval "$(python -m atlas.floatpath)"` puts later commands on the reference path; here
+    # (already on it) there is nothing to set, and the line says so as a shell comment.
+    out = subprocess.run(
+        [sys.executable, "-m", "atlas.floatpath"], capture_output=True, text=True, check=True
+    ).stdout
+    assert out.startswith("# numpy here is on the reference path already")
+    env = {k: v for k, v in os.environ.items() if k != floatpath.ENV}
+    line = subprocess.run(
+        [sys.executable, "-m", "atlas.floatpath"],
+        env=env,
+        capture_output=True,
+        text=True,
+        check=True,
+    ).stdout.strip()
+    if floatpath._probe_fresh(env):  # a machine with AVX-512: the export line
+        assert line.startswith(f"export {floatpath.ENV}=")
+    else:
+        assert line.startswith("#")
