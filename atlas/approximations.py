@@ -485,14 +485,11 @@ def _pp_h(inv_t, log_t):
     return 2.0 * (log_t - 1.0 + inv_t) * inv_t / (1.0 - inv_t) ** 2
 
 
-def _pp_spread(s, t, n, p, q):
-    """(1 + q g(S / (n p)) + p g(T / (n q))) / ((n + 1/6) p q), without overflow or cancellation.
+def _pp_gs(s, t, n, p, q):
+    """g(t1) and g(t2) of t1 = S / (n p) and t2 = T / (n q), with (1/t, ln t) of each.
 
-    When S / (n p) >= 2 (far above the mean, or tiny p), 1 + q g(S/(n p)) is nearly cancelled;
-    with g = h - 1 it is h(S/(n p)) - p g(S/(n p)), and h / (n p) = 2 (ln t - 1 + 1/t) /
-    (S (1 - 1/t)^2) needs no division by p. The same holds with S, p and T, q exchanged.
+    ln t and 1/t are formed without forming t (p may be 1e-320).
     """
-    # ln t and 1/t of t1 = S / (n p) and t2 = T / (n q), without forming t (p may be 1e-320).
     with np.errstate(divide="ignore", over="ignore"):
         inv1 = n * p / s
         inv2 = n * q / t
@@ -500,8 +497,17 @@ def _pp_spread(s, t, n, p, q):
         log2 = np.log(t) - np.log(n) - np.log(q)
         t1 = s / (n * p)
         t2 = t / (n * q)
-    g1 = _pp_g(t1, inv1, log1)
-    g2 = _pp_g(t2, inv2, log2)
+    return _pp_g(t1, inv1, log1), _pp_g(t2, inv2, log2), (inv1, log1), (inv2, log2)
+
+
+def _pp_spread(s, t, n, p, q):
+    """(1 + q g(S / (n p)) + p g(T / (n q))) / ((n + 1/6) p q), without overflow or cancellation.
+
+    When S / (n p) >= 2 (far above the mean, or tiny p), 1 + q g(S/(n p)) is nearly cancelled;
+    with g = h - 1 it is h(S/(n p)) - p g(S/(n p)), and h / (n p) = 2 (ln t - 1 + 1/t) /
+    (S (1 - 1/t)^2) needs no division by p. The same holds with S, p and T, q exchanged.
+    """
+    g1, g2, (inv1, log1), (inv2, log2) = _pp_gs(s, t, n, p, q)
     scale = n + 1.0 / 6.0
     out = (1.0 + q * g1 + p * g2) / (scale * p * q)
     # The far forms are computed on every point and kept where they apply; elsewhere they may
@@ -581,9 +587,7 @@ def peizer_pratt_parts(k, n, p):
     (:mod:`atlas.engine`, narrow windows).
     """
     s, t, n, p, q, d = _pp_terms(k, n, p)
-    with np.errstate(divide="ignore", over="ignore"):
-        g1 = _pp_g(s / (n * p), n * p / s, np.log(s) - np.log(n) - np.log(p))
-        g2 = _pp_g(t / (n * q), n * q / t, np.log(t) - np.log(n) - np.log(q))
+    g1, g2, _, _ = _pp_gs(s, t, n, p, q)
     return d, g1, g2
 
 

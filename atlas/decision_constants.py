@@ -146,6 +146,7 @@ def decision_rule_constants(metric, alpha, limit=None, *, method="normal_cc", ta
         + "); the rule checked at every integer n below each threshold; the p between the "
         f"grid's p and n beyond {n_max:,} are not checked; the shares are counted on the grid"
     )
+    every = np.arange(1, n_max + 1, dtype=np.int64)  # where a rule first admits n, at each p
     rows = []
     for family in parsed:
         stricter = constant_direction(family, n_axis, p_axis)
@@ -159,7 +160,6 @@ def decision_rule_constants(metric, alpha, limit=None, *, method="normal_cc", ta
             else:
                 share = float((within & ~admitted).sum() / max(int(within.sum()), 1))
                 firsts = []
-                every = np.arange(1, n_max + 1, dtype=np.int64)
                 for x in p_axis.tolist():
                     hit = every[rule(every, x)][:3]
                     firsts += [value(int(a), x) for a in hit.tolist()]

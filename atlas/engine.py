@@ -359,13 +359,25 @@ def _deviation(k, n, p, method, gamma):
     series, computed directly: -phi(z) sum_{e = first}^{order} sigma^-e P_e(z), relative to its
     own size. For the other methods D = (Phi(z) - G) - phi(z) sum_{e=1}^{order} sigma^-e P_e(z).
     """
+    z, density = _scores(k, n, p)
+    return _with_g(density * asymptotic.hermite_sum(z, gamma), z, k, n, p, method)
+
+
+def _scores(k, n, p):
+    """z = (k + 1/2 - n p) / sigma (the exact offset) and -phi(z) at points k, p broadcast."""
     q = 1.0 - p
     sigma = np.sqrt(n * p * q)
     z = offset(k.astype(np.float64) + 0.5, np.float64(n), p, q) / sigma
-    tail = -np.exp(-0.5 * z * z) / _SQRT_2PI * asymptotic.hermite_sum(z, gamma)
+    return z, -np.exp(-0.5 * z * z) / _SQRT_2PI
+
+
+def _with_g(tail, z, k, n, p, method, big_phi=None):
+    """D from the series part ``tail`` = -phi(z) sum sigma^-e P_e(z): the tail itself for the
+    normal family, (Phi(z) - G) + tail for the other methods (``big_phi``: Phi(z) if known)."""
     if method in _NORMAL_FAMILY:
         return tail
-    return (special.ndtr(z) - approximate_cdf(k, n, p, method)) + tail
+    big_phi = special.ndtr(z) if big_phi is None else big_phi
+    return (big_phi - approximate_cdf(k, n, p, method)) + tail
 
 
 def _orders(sigma):
@@ -750,10 +762,7 @@ class _SharedPoints:
 
     def __init__(self, k, n, p, gammas):
         self.k, self.n, self.p = k, n, p
-        q = 1.0 - p
-        sigma = np.sqrt(n * p * q)
-        self.z = offset(k.astype(np.float64) + 0.5, np.float64(n), p, q) / sigma
-        self.density = -np.exp(-0.5 * self.z * self.z) / _SQRT_2PI
+        self.z, self.density = _scores(k, n, p)
         self.gammas = gammas
         self.tails = {}
         self.big_phi = None
@@ -762,12 +771,9 @@ class _SharedPoints:
         first = _NORMAL_FAMILY.get(method, 1)
         if first not in self.tails:
             self.tails[first] = self.density * asymptotic.hermite_sum(self.z, self.gammas[first])
-        tail = self.tails[first]
-        if method in _NORMAL_FAMILY:
-            return tail
-        if self.big_phi is None:
+        if method not in _NORMAL_FAMILY and self.big_phi is None:
             self.big_phi = special.ndtr(self.z)
-        return (self.big_phi - approximate_cdf(self.k, self.n, self.p, method)) + tail
+        return _with_g(self.tails[first], self.z, self.k, self.n, self.p, method, self.big_phi)
 
 
 def _refine(n, p, pidx, coarse, sd, sign, mrow, methods, gammas):
@@ -812,18 +818,18 @@ def _refine(n, p, pidx, coarse, sd, sign, mrow, methods, gammas):
         one candidate per point (1-D); each candidate with its own p and method."""
         if len(methods) > 1 and k.size <= _SHARED_POINTS:
             out = _shared_deviation(k, n, prow, prow_idx, which, mcand, methods, gammas)
-            return sign[row_idx[which]].reshape(which.shape + (1,) * (k.ndim - 1)) * out
-        out = np.empty(k.shape)
-        split = len(methods) > 1  # one method: no masks
-        for i in np.unique(mcand[which]).tolist() if split else [0]:
-            method = methods[i]
-            at = mcand[which] == i if split else slice(None)
-            sub = which[at]
-            gamma = gammas[_NORMAL_FAMILY.get(method, 1)][prow_idx[sub]]
-            if k.ndim == 1:  # p and the coefficients per point
-                out[at] = _deviation(k[at], n, prow[sub], method, gamma[:, 0])
-            else:
-                out[at] = _deviation(k[at], n, prow[sub][:, None], method, gamma)
+        else:
+            out = np.empty(k.shape)
+            split = len(methods) > 1  # one method: no masks
+            for i in np.unique(mcand[which]).tolist() if split else [0]:
+                method = methods[i]
+                at = mcand[which] == i if split else slice(None)
+                sub = which[at]
+                gamma = gammas[_NORMAL_FAMILY.get(method, 1)][prow_idx[sub]]
+                if k.ndim == 1:  # p and the coefficients per point
+                    out[at] = _deviation(k[at], n, prow[sub], method, gamma[:, 0])
+                else:
+                    out[at] = _deviation(k[at], n, prow[sub][:, None], method, gamma)
         return sign[row_idx[which]].reshape(which.shape + (1,) * (k.ndim - 1)) * out
 
     while (upper - lower >= BRACKET_LIMIT).any():
@@ -864,10 +870,7 @@ def _shared_deviation(k, n, prow, prow_idx, which, mcand, methods, gammas):
     :func:`_deviation` method by method, so the same values.
     """
     pk = prow[which] if k.ndim == 1 else prow[which][:, None]
-    q = 1.0 - pk
-    sigma = np.sqrt(n * pk * q)
-    z = offset(k.astype(np.float64) + 0.5, np.float64(n), pk, q) / sigma
-    density = -np.exp(-0.5 * z * z) / _SQRT_2PI
+    z, density = _scores(k, n, pk)
     kinds = mcand[which]
     firsts = np.array([_NORMAL_FAMILY.get(m, 1) for m in methods])[kinds]
     out = np.empty(k.shape)
@@ -877,11 +880,9 @@ def _shared_deviation(k, n, prow, prow_idx, which, mcand, methods, gammas):
         gamma = gamma[:, 0] if k.ndim == 1 else gamma
         out[at] = density[at] * asymptotic.hermite_sum(z[at], gamma)
     for i in np.unique(kinds).tolist():
-        method = methods[i]
-        if method in _NORMAL_FAMILY:
-            continue
-        at = kinds == i
-        out[at] = (special.ndtr(z[at]) - approximate_cdf(k[at], n, pk[at], method)) + out[at]
+        if methods[i] not in _NORMAL_FAMILY:
+            at = kinds == i
+            out[at] = _with_g(out[at], z[at], k[at], n, pk[at], methods[i])
     return out
 
 

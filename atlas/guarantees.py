@@ -286,11 +286,10 @@ def threshold_bands(atlas, tol, *, method="normal_cc", metric="interval", depth=
     n_min = np.zeros(bands_count, dtype=np.int64)
     n_max = np.zeros_like(n_min)
     for j, values in enumerate(refined.points):
-        ends = [answers[x].upto for x in values]
         if any(v is None for v in values.values()):
             continue  # "never": some point has no exact answer
         n_min[j] = math.ceil(max(values.values()) * (1.0 + margin))
-        finite = [e for e in ends if e is not None]
+        finite = [answers[x].upto for x in values if answers[x].upto is not None]
         if finite:  # some point is covered only to an end: the band reaches the smallest
             n_max[j] = min(finite)
             if n_min[j] > n_max[j]:

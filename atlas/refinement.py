@@ -150,10 +150,10 @@ def refine(lo, hi, points, solve, *, depth=REFINE_DEPTH, budget=REFINE_BUDGET,
         if float(a) not in known[j] or float(b) not in known[j]:
             raise ValueError(f"`points` must hold both ends of band {j}; got {sorted(known[j])}.")
     added = np.zeros(len(known), dtype=np.int64)
-    rises, rounds, waiting = [], 0, set()
+    rises, rounds = [], 0
     while True:
         new = []  # (band, x, depth of x, larger neighbour's N)
-        waiting = set()
+        waiting = set()  # bands with a qualifying pair left beyond the budget
         for j, values in enumerate(known):
             if widths[j] <= 0 or any(v is None for v in values.values()):
                 continue

@@ -137,33 +137,13 @@ def main(argv=None):
         f"{every / 0.5e-3:.1f}x the target); naive one method / all seven = {full / every:.0f}x; "
         f"200 p at once: {batch / ps.size * 1e3:.3f} ms per cell (7 methods)"
     )
-    if args.build and args.against:
-        build_against(args.n_step, args.against, args.rounds)
-    elif args.build:
-        build(args.n_step)
+    if args.build:
+        build(args.n_step, args.against, args.rounds if args.against else 1)
     print(f"load average after: {_load()}")
 
 
 def _load():
     return " ".join(f"{x:.2f}" for x in os.getloadavg())
-
-
-def build(n_step):
-    """Time the default atlas on every n_step-th default n and every p, 2 workers."""
-    from atlas import METHODS, grid
-    from atlas.build import build_atlas
-
-    n_all, p = grid.default_n(), grid.default_p()
-    n = n_all[::n_step]
-    started = time.perf_counter()
-    build_atlas(n, p, METHODS, workers=2, progress=False)
-    wall = time.perf_counter() - started
-    estimate = wall * n_all.size / n.size
-    print(
-        f"[5] default atlas, every {n_step}th n ({n.size} n x {p.size} p x {len(METHODS)} "
-        f"methods), 2 workers: {wall:.1f} s; full build estimated {estimate:.0f} s "
-        f"({estimate / 60:.2f}x the 60 s target)"
-    )
 
 
 _BUILD = (
@@ -183,23 +163,31 @@ def _build_in(checkout, n_step):
     return float(done.stdout.split()[-1])
 
 
-def build_against(n_step, other, rounds):
-    """The sub-grid build with this checkout and with ``other``, interleaved, best of rounds."""
+def build(n_step, other=None, rounds=1):
+    """The sub-grid build (every n_step-th default n, every p, 2 workers), each in a fresh
+    process; with ``other``, that checkout's too, interleaved; best of ``rounds``."""
+    from atlas import METHODS, grid
+
     here = Path(atlas.__file__).resolve().parent.parent
     ours, theirs = [], []
     for _ in range(rounds):
-        theirs.append(_build_in(Path(other).resolve(), n_step))
+        if other is not None:
+            theirs.append(_build_in(Path(other).resolve(), n_step))
         ours.append(_build_in(here, n_step))
-    from atlas import grid
-
-    count, size = grid.default_n().size, grid.default_n()[::n_step].size
-    best, other_best = min(ours), min(theirs)
-    print(
-        f"[5] default atlas, every {n_step}th n ({size} n), 2 workers, best of {rounds} "
-        f"interleaved rounds: {best:.1f} s against {other_best:.1f} s for {other} "
-        f"({other_best / best:.2f}x); full build estimated {best * count / size:.0f} s "
-        f"against {other_best * count / size:.0f} s (target 60 s)"
+    n_all, p = grid.default_n(), grid.default_p()
+    size, best = n_all[::n_step].size, min(ours)
+    text = (
+        f"[5] default atlas, every {n_step}th n ({size} n x {p.size} p x {len(METHODS)} "
+        f"methods), 2 workers, best of {rounds}: {best:.1f} s; full build estimated "
+        f"{best * n_all.size / size:.0f} s (target 60 s)"
     )
+    if other is not None:
+        other_best = min(theirs)
+        text += (
+            f"; {other}, interleaved: {other_best:.1f} s, estimated "
+            f"{other_best * n_all.size / size:.0f} s ({other_best / best:.2f}x)"
+        )
+    print(text)
 
 
 if __name__ == "__main__":
